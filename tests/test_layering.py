@@ -1,0 +1,49 @@
+"""The engine must stay pure: nothing under model/ may import UI code."""
+
+import ast
+import pathlib
+import subprocess
+import sys
+
+MODEL_DIR = pathlib.Path(__file__).resolve().parents[1] / "model"
+FORBIDDEN = ("textual", "rich", "tui")
+
+
+def _imported_roots(path: pathlib.Path) -> set[str]:
+    tree = ast.parse(path.read_text(encoding="utf-8"), filename=str(path))
+    roots = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            roots.update(alias.name.split(".")[0] for alias in node.names)
+        elif isinstance(node, ast.ImportFrom) and node.level == 0 and node.module:
+            roots.add(node.module.split(".")[0])
+    return roots
+
+
+def test_model_sources_import_no_ui_code():
+    files = sorted(MODEL_DIR.rglob("*.py"))
+    assert files, "model/ has no Python files to check"
+    offenders = {
+        str(f.relative_to(MODEL_DIR)): sorted(_imported_roots(f) & set(FORBIDDEN))
+        for f in files
+    }
+    offenders = {name: mods for name, mods in offenders.items() if mods}
+    assert offenders == {}
+
+
+def test_importing_model_loads_no_ui_module():
+    # Catches indirect imports (a dependency that pulls in rich) that the
+    # static scan above cannot see.
+    code = (
+        "import sys, model, model.analysis\n"
+        "bad = [m for m in sys.modules if m.split('.')[0] in %r]\n"
+        "print(','.join(bad))\n" % (FORBIDDEN,)
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code],
+        capture_output=True,
+        text=True,
+        check=True,
+        cwd=MODEL_DIR.parent,
+    )
+    assert out.stdout.strip() == ""

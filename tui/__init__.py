@@ -1,0 +1,1 @@
+"""stageledger's terminal program: the command line and (later) the workbench screen."""
