@@ -1,0 +1,220 @@
+"""``analyse(design) -> Figures``: every figure of one design, and a batched
+DC-and-midband path for many designs at once.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from typing import Sequence
+
+import numpy as np
+
+from .checks import Warning_, stage_warnings
+from .design import Design
+from .errors import SolveError
+from .hand import HandEstimate, hand_estimate
+from .midband import decibels, device_small_signal, midband
+from .power import dissipation
+from .solve import operating_point
+from .topologies import TRANSISTOR, build, shape_of
+from .transfer import large_signal, region_of
+
+#: Design keys fed to the builders, as "table.key"; transistor.sign is derived.
+_KEYS = (
+    "supply.vcc", "bias.r1", "bias.r2",
+    "stage.rc", "stage.re1", "stage.re2", "stage.ce", "stage.re", "stage.cin", "stage.cout",
+    "source.rs", "source.vpk", "source.freq", "load.rl", "load.cl",
+    "transistor.beta", "transistor.beta_r", "transistor.va", "transistor.i_s",
+    "transistor.xti", "transistor.eg", "transistor.xtb", "environment.ambient",
+)
+
+#: The keys of ``Figures.to_dict()`` that every consumer may rely on.
+FIGURE_KEYS = (
+    "region", "ic", "ib", "vbe", "vce", "vb", "ve", "vc", "gm", "r_pi", "ro", "beta_ac",
+    "av_open", "av_loaded", "av_source", "rin", "rin_base", "rout",
+    "swing_up", "swing_down", "thd", "hd2", "hd3",
+    "p_transistor", "p_supply", "i_supply", "tj",
+)
+
+
+def design_values(designs: Sequence[Design]) -> dict:
+    """Design keys as arrays with one entry per design, ready for a builder."""
+    values = {}
+    for key in _KEYS:
+        table, name = key.split(".")
+        values[key] = np.array([getattr(getattr(d, table), name) for d in designs], dtype=float)
+    values["transistor.sign"] = np.array([1.0 if d.transistor.polarity == "npn" else -1.0 for d in designs])
+    return values
+
+
+@dataclass(frozen=True)
+class Figures:
+    """Everything ``analyse`` derives from one design, in plain SI floats.
+
+    Voltages and currents of the transistor (ic, ib, vbe, vce) are in its
+    forward sense, so a PNP reports the same magnitudes as its NPN twin;
+    vb, ve and vc are node voltages to ground.
+    """
+
+    region: str
+    ic: float
+    ib: float
+    vbe: float
+    vce: float
+    vb: float
+    ve: float
+    vc: float
+    gm: float
+    r_pi: float
+    ro: float
+    beta_ac: float
+    av_open: float
+    av_loaded: float
+    av_source: float
+    rin: float
+    rin_base: float
+    rout: float
+    swing_up: float
+    swing_down: float
+    thd: float
+    hd2: float
+    hd3: float
+    p_transistor: float
+    p_supply: float
+    i_supply: float
+    tj: float
+    hand: HandEstimate
+    warnings: tuple
+    p_resistors: dict = field(default_factory=dict)
+    vout_wanted: float = 0.0
+    ic_beta_half: float = 0.0
+    ic_beta_double: float = 0.0
+    kcl_residual: float = 0.0
+    newton_iterations: int = 0
+
+    def to_dict(self) -> dict:
+        """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras."""
+        out = {k: getattr(self, k) for k in FIGURE_KEYS}
+        out["warnings"] = [w.to_dict() for w in self.warnings]
+        out["hand"] = self.hand.to_dict()
+        for k in ("av_open", "av_loaded", "av_source"):
+            out[k + "_db"] = float(decibels(getattr(self, k)))
+        out["p_resistors"] = dict(self.p_resistors)
+        for k in ("vout_wanted", "ic_beta_half", "ic_beta_double", "kcl_residual", "newton_iterations"):
+            out[k] = getattr(self, k)
+        return {k: _plain(v) for k, v in out.items()}
+
+
+def _plain(v):
+    """JSON has no infinity: an unbounded figure (an open load's rout) becomes null."""
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
+
+
+def analyse(design: Design) -> Figures:
+    """Every figure of ``design``; raises SolveError if no operating point is found."""
+    t = design.transistor
+    variants = [design, _with_beta(design, t.beta / 2.0), _with_beta(design, t.beta * 2.0)]
+    stage = build(design.topology, design_values(variants))
+    op3 = operating_point(stage.net)
+    if not op3.converged[0]:
+        raise SolveError("the operating point did not converge",
+                         f"KCL residual {op3.residual[0]:.1e} after {op3.iterations} iterations")
+    nominal = build(design.topology, design_values([design]))
+    op = op3.take(np.array([0]))
+    dev = device_small_signal(op)
+    mid = midband(nominal, op, np.array([design.source.rs]))
+    st = op.states[TRANSISTOR]
+    vbe, vbc = float(op.junctions[0, 0, 0]), float(op.junctions[0, 0, 1])
+    region = str(region_of(st.ic, op.junctions[:, 0, 1])[0])
+    big = large_signal(nominal, op, design.supply.vcc, design.source.vpk)
+    power = dissipation(nominal, op)
+    p_q = float(power.p_transistor[0])
+    tj = design.environment.ambient + p_q * t.theta_ja
+    ic = float(st.ic[0])
+    av_source = float(mid.av_source[0])
+    wanted = design.source.vpk * abs(av_source)
+    p_res = {k: float(v[0]) for k, v in power.p_resistors.items()}
+    ics = op3.states[TRANSISTOR].ic
+    ic_half = float(ics[1]) if op3.converged[1] else math.nan
+    ic_double = float(ics[2]) if op3.converged[2] else math.nan
+    warnings = stage_warnings(
+        design, region=region, ic=ic, vce=vbe - vbc, vbc=vbc,
+        swing_up=big.swing_up, swing_down=big.swing_down, wanted_out=wanted,
+        p_transistor=p_q, tj=tj, p_resistors=p_res,
+        ic_beta_half=ic_half, ic_beta_double=ic_double,
+    )
+    v = op.voltages
+    return Figures(
+        region=region, ic=ic, ib=float(st.ib[0]), vbe=vbe, vce=vbe - vbc,
+        vb=float(v[nominal.base][0]), ve=float(v[nominal.emitter][0]), vc=float(v[nominal.collector][0]),
+        gm=float(dev.gm[0]), r_pi=float(dev.r_pi[0]), ro=float(dev.ro[0]), beta_ac=float(dev.beta_ac[0]),
+        av_open=float(mid.av_open[0]), av_loaded=float(mid.av_loaded[0]), av_source=av_source,
+        rin=float(mid.rin[0]), rin_base=float(mid.rin_base[0]), rout=float(mid.rout[0]),
+        swing_up=big.swing_up, swing_down=big.swing_down, thd=big.thd, hd2=big.hd2, hd3=big.hd3,
+        p_transistor=p_q, p_supply=float(power.p_supply[0]), i_supply=float(power.i_supply[0]), tj=tj,
+        hand=hand_estimate(design), warnings=warnings, p_resistors=p_res, vout_wanted=wanted,
+        ic_beta_half=ic_half, ic_beta_double=ic_double,
+        kcl_residual=float(op.residual[0]), newton_iterations=op3.iterations,
+    )
+
+
+def _with_beta(design: Design, beta: float) -> Design:
+    return replace(design, transistor=replace(design.transistor, beta=beta))
+
+
+@dataclass(frozen=True)
+class BatchFigures:
+    """DC and midband figures of many designs (arrays, one entry per design)."""
+
+    converged: np.ndarray
+    region: np.ndarray
+    ic: np.ndarray
+    vce: np.ndarray
+    gm: np.ndarray
+    r_pi: np.ndarray
+    ro: np.ndarray
+    av_open: np.ndarray
+    av_loaded: np.ndarray
+    av_source: np.ndarray
+    rin: np.ndarray
+    rin_base: np.ndarray
+    rout: np.ndarray
+
+
+def analyse_batch(topology: str, values: dict) -> BatchFigures:
+    """DC operating point and midband figures for a batch given as arrays.
+
+    ``values`` maps the design keys (see :func:`design_values`) to arrays.
+    Rows of different shape (a zero resistor, an open load, polarity) are
+    grouped and each group is solved as one batch.
+    """
+    n = len(np.atleast_1d(values["supply.vcc"]))
+    full = {k: np.broadcast_to(np.asarray(v, dtype=float), (n,)) for k, v in values.items()}
+    shapes = shape_of(topology, full)
+    _, group = np.unique(shapes, axis=0, return_inverse=True)
+    group = np.ravel(group)
+    parts = {}
+    for g in np.unique(group):
+        rows = np.flatnonzero(group == g)
+        stage = build(topology, {k: v[rows] for k, v in full.items()})
+        op = operating_point(stage.net)
+        dev = device_small_signal(op)
+        mid = midband(stage, op, full["source.rs"][rows])
+        st = op.states[TRANSISTOR]
+        vbe, vbc = op.junctions[:, 0, 0], op.junctions[:, 0, 1]
+        parts[g] = (rows, dict(
+            converged=op.converged, region=region_of(st.ic, vbc), ic=st.ic, vce=vbe - vbc,
+            gm=dev.gm, r_pi=dev.r_pi, ro=dev.ro, av_open=mid.av_open, av_loaded=mid.av_loaded,
+            av_source=mid.av_source, rin=mid.rin, rin_base=mid.rin_base, rout=mid.rout,
+        ))
+    out = {}
+    for name in BatchFigures.__dataclass_fields__:
+        sample = next(iter(parts.values()))[1][name]
+        arr = np.empty(n, dtype=sample.dtype if sample.dtype.kind != "U" else object)
+        for rows, data in parts.values():
+            arr[rows] = data[name]
+        out[name] = arr
+    return BatchFigures(**out)

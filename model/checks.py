@@ -1,0 +1,70 @@
+"""Warnings: each a code of our own and a one-line explanation.
+
+The codes are stable identifiers for scripts and the ledger; the messages are
+for people and carry the numbers that tripped them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .units import format_si
+
+#: Supplies above this are treated as hazardous (conservative common practice;
+#: IEC 62368-1 ES1 as commonly cited and IEC 60598-1 use 60 V DC).
+SAFE_DC_VOLTS = 60.0
+#: Fractional IC change with β halved or doubled that marks bias as β-dependent.
+BETA_SENSITIVITY = 0.10
+
+
+@dataclass(frozen=True)
+class Warning_:
+    code: str
+    message: str
+
+    def to_dict(self) -> dict:
+        return {"code": self.code, "message": self.message}
+
+
+def _v(x, unit):
+    return format_si(x, unit)
+
+
+def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
+                   p_transistor, tj, p_resistors, ic_beta_half, ic_beta_double) -> tuple:
+    """All warnings for one analysed design (scalars in SI units)."""
+    t = d.transistor
+    out = []
+    if region == "saturation":
+        out.append(Warning_("Q-SATURATED", f"transistor saturated at rest: VBC {_v(vbc, 'V')} above 0.4 V "
+                            f"(VCE {_v(vce, 'V')}); the stage cannot amplify"))
+    elif region == "cutoff":
+        out.append(Warning_("Q-CUTOFF", f"transistor cut off at rest: IC {_v(ic, 'A')} below 10 nA; "
+                            "the bias does not turn it on"))
+    short = [(name, s) for name, s in (("up", swing_up), ("down", swing_down)) if s < wanted_out]
+    if wanted_out > 0 and short:
+        sides = ", ".join(f"swing_{name} {_v(s, 'V')}" for name, s in short)
+        out.append(Warning_("HEADROOM-SHORT", f"requested output {_v(wanted_out, 'V')} peak "
+                            f"(vpk × |av_source|) exceeds {sides}: the output clips"))
+    if tj >= t.tj_max:
+        out.append(Warning_("TJ-OVER", f"junction temperature {tj:.1f} °C at or above tj_max {t.tj_max:g} °C"))
+    if p_transistor > t.pd_max:
+        out.append(Warning_("PD-OVER", f"transistor dissipates {_v(p_transistor, 'W')}, above pd_max "
+                            f"{_v(t.pd_max, 'W')}"))
+    if vce > t.vceo:
+        out.append(Warning_("VCE-OVER", f"VCE {_v(vce, 'V')} above vceo {_v(t.vceo, 'V')}"))
+    rating = d.parts.resistor_power
+    for name, p in p_resistors.items():
+        if p > rating:
+            out.append(Warning_("R-OVERLOAD", f"{name} dissipates {_v(p, 'W')}, above its "
+                                f"{_v(rating, 'W')} rating"))
+    if ic > 0:
+        moves = [abs(x / ic - 1.0) for x in (ic_beta_half, ic_beta_double)]
+        if max(moves) > BETA_SENSITIVITY:
+            out.append(Warning_("BETA-DEPENDENT", f"IC moves {100 * moves[0]:.0f} % with β halved and "
+                                f"{100 * moves[1]:.0f} % with β doubled (limit 10 %): stiffen the divider "
+                                "or add emitter resistance"))
+    if d.supply.vcc > SAFE_DC_VOLTS:
+        out.append(Warning_("HAZARDOUS-VOLTAGE", f"supply {_v(d.supply.vcc, 'V')} exceeds 60 V DC: a shock "
+                            "hazard; follow local codes and licensed practice"))
+    return tuple(out)

@@ -1,0 +1,167 @@
+"""Ebers–Moll transport model of a bipolar transistor, with the forward Early
+effect and the usual temperature scaling, evaluated on numpy arrays.
+
+Every array has a leading batch axis (a single design is a batch of one).
+Voltages and currents here are in the device's *forward sense*: for a PNP the
+caller passes VEB and VCB and gets back the currents flowing out of the base
+and collector, so one set of equations serves both polarities.
+
+Sources: the transport form and the Early factor follow Jaeger & Blalock,
+*Microelectronic Circuit Design*, ch. 5, and the Gummel–Poon convention; the
+temperature laws follow Getreu, *Modeling the Bipolar Transistor* (1976).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+#: Exact SI 2019 defining constants (SI Brochure, 9th edition).
+BOLTZMANN = 1.380649e-23  # J/K
+ELEMENTARY_CHARGE = 1.602176634e-19  # C
+ZERO_CELSIUS = 273.15  # K
+#: Temperature at which the transistor parameters are given, 25 °C.
+T_NOMINAL = ZERO_CELSIUS + 25.0  # K
+
+#: Above this many VT a junction's exponential continues as a straight line.
+#: Only wild Newton iterates get there; any real operating point is far below.
+_EXP_LIMIT = 80.0
+_EXP_AT_LIMIT = float(np.exp(_EXP_LIMIT))
+
+
+def thermal_voltage(kelvin):
+    """kT/q in volts for a temperature in kelvin (scalar or array)."""
+    return BOLTZMANN * np.asarray(kelvin, dtype=float) / ELEMENTARY_CHARGE
+
+
+@dataclass(frozen=True)
+class DeviceParams:
+    """Transistor parameters at the simulation temperature, one entry per batch row.
+
+    Attributes
+    ----------
+    i_s : array, A — transport saturation current at temperature
+    beta_f, beta_r : array — forward and reverse current gain at temperature
+    va : array, V — forward Early voltage
+    vt : array, V — thermal voltage kT/q
+    sign : array — +1 for NPN, -1 for PNP
+    """
+
+    i_s: np.ndarray
+    beta_f: np.ndarray
+    beta_r: np.ndarray
+    va: np.ndarray
+    vt: np.ndarray
+    sign: np.ndarray
+
+    def repeat(self, n: int) -> "DeviceParams":
+        """Each row repeated n times in a row (for sweeping one design)."""
+        return DeviceParams(*(np.repeat(getattr(self, f), n) for f in _FIELDS))
+
+    def take(self, index) -> "DeviceParams":
+        """The rows picked by an integer or boolean index array."""
+        return DeviceParams(*(getattr(self, f)[index] for f in _FIELDS))
+
+
+_FIELDS = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
+
+
+def params_at(
+    *, i_s, beta_f, beta_r, va, polarity_sign, celsius, xti=3.0, eg=1.11, xtb=1.5
+) -> DeviceParams:
+    """Scale parameters given at 25 °C to the temperature ``celsius``.
+
+    IS(T) = IS(T0)(T/T0)^XTI exp[(EG/VT(T))(T/T0 − 1)] and
+    βF(T) = βF(T0)(T/T0)^XTB (Getreu 1976).  βR is left unscaled.
+
+    Parameters
+    ----------
+    i_s : A at 25 °C;  va : V;  eg : eV;  celsius : °C.
+    """
+    kelvin = ZERO_CELSIUS + np.asarray(celsius, dtype=float)
+    ratio = kelvin / T_NOMINAL
+    vt = thermal_voltage(kelvin)
+    arrays = np.broadcast_arrays(
+        *(np.asarray(a, dtype=float) for a in (i_s, beta_f, beta_r, va, polarity_sign, xti, eg, xtb)),
+        vt,
+        ratio,
+    )
+    i_s, beta_f, beta_r, va, sign, xti, eg, xtb, vt, ratio = (np.atleast_1d(a).copy() for a in arrays)
+    # EG is in eV, so EG/VT(T) with VT in volts is the dimensionless exponent.
+    i_s_t = i_s * ratio**xti * np.exp((eg / vt) * (ratio - 1.0))
+    beta_t = beta_f * ratio**xtb
+    return DeviceParams(i_s=i_s_t, beta_f=beta_t, beta_r=beta_r, va=va, vt=vt, sign=sign)
+
+
+def _exp_limited(x):
+    """exp(x), continued linearly above _EXP_LIMIT; returns (value, derivative)."""
+    over = x > _EXP_LIMIT
+    e = np.exp(np.minimum(x, _EXP_LIMIT))
+    value = np.where(over, _EXP_AT_LIMIT * (1.0 + x - _EXP_LIMIT), e)
+    return value, e  # e equals _EXP_AT_LIMIT above the limit: the slope of the line
+
+
+@dataclass(frozen=True)
+class JunctionState:
+    """Terminal currents and their partial derivatives at (VBE, VBC), forward sense.
+
+    ic, ib in A; the four conductances in S are ∂IC/∂VBE, ∂IC/∂VBC,
+    ∂IB/∂VBE and ∂IB/∂VBC.
+    """
+
+    ic: np.ndarray
+    ib: np.ndarray
+    dic_dvbe: np.ndarray
+    dic_dvbc: np.ndarray
+    dib_dvbe: np.ndarray
+    dib_dvbc: np.ndarray
+
+
+def evaluate(p: DeviceParams, vbe, vbc) -> JunctionState:
+    """Ebers–Moll transport currents with the forward Early effect.
+
+    IF = IS(e^{VBE/VT} − 1), IR = IS(e^{VBC/VT} − 1),
+    IC = (IF − IR)(1 − VBC/VA) − IR/βR,  IB = IF/βF + IR/βR.
+    """
+    ef, def_ = _exp_limited(vbe / p.vt)
+    er, der = _exp_limited(vbc / p.vt)
+    i_f = p.i_s * (ef - 1.0)
+    i_r = p.i_s * (er - 1.0)
+    gf = p.i_s * def_ / p.vt  # dIF/dVBE
+    gr = p.i_s * der / p.vt  # dIR/dVBC
+    early = 1.0 - vbc / p.va
+    ic = (i_f - i_r) * early - i_r / p.beta_r
+    ib = i_f / p.beta_f + i_r / p.beta_r
+    return JunctionState(
+        ic=ic,
+        ib=ib,
+        dic_dvbe=gf * early,
+        dic_dvbc=-gr * early - (i_f - i_r) / p.va - gr / p.beta_r,
+        dib_dvbe=gf / p.beta_f,
+        dib_dvbc=gr / p.beta_r,
+    )
+
+
+def limit_junction(v_new, v_old, p: DeviceParams):
+    """Limit a Newton step of a junction voltage (volts, forward sense).
+
+    The logarithmic damping used by SPICE-family simulators (Nagel's pnjlim):
+    above the critical voltage, a step of more than 2·VT is replaced by one
+    whose exponential grows only linearly.  This is what keeps Newton from
+    overflowing on a junction that starts far from its final bias.
+    """
+    vt = p.vt
+    v_crit = critical_voltage(p)
+    big_step = (v_new > v_crit) & (np.abs(v_new - v_old) > 2.0 * vt)
+    from_on = v_old > 0.0
+    arg = 1.0 + (v_new - v_old) / vt
+    limited_on = np.where(arg > 0.0, v_old + vt * np.log(np.maximum(arg, 1e-300)), v_crit)
+    limited_off = vt * np.log(np.maximum(v_new / vt, 1e-300))
+    limited = np.where(from_on, limited_on, limited_off)
+    return np.where(big_step, limited, v_new), big_step
+
+
+def critical_voltage(p: DeviceParams):
+    """The junction voltage (V) where the diode current's curvature turns sharp."""
+    return p.vt * np.log(p.vt / (np.sqrt(2.0) * p.i_s))

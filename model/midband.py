@@ -1,0 +1,84 @@
+"""Midband small-signal figures from the linearised nodal solution.
+
+Midband: coupling and bypass capacitors are short circuits, load and device
+capacitances are open.  Each figure is one linear solve of the whole
+linearised circuit with a test current, so no topology formula is assumed.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .solve import OperatingPoint, small_signal
+from .topologies import BIAS, EMF, LOAD, SOURCE, TRANSISTOR, StageCircuit
+
+
+@dataclass(frozen=True)
+class DeviceSmallSignal:
+    """Hybrid-π parameters at the operating point, from the model's derivatives.
+
+    gm = ∂IC/∂VBE and 1/rπ = ∂IB/∂VBE at constant VCE; 1/ro = ∂IC/∂VCE at
+    constant VBE; β_ac = gm·rπ.  Units: S, Ω, Ω, dimensionless.
+    """
+
+    gm: np.ndarray
+    r_pi: np.ndarray
+    ro: np.ndarray
+    beta_ac: np.ndarray
+
+
+def device_small_signal(op: OperatingPoint) -> DeviceSmallSignal:
+    st = op.states[TRANSISTOR]
+    # With VCE held, a change in VBE moves VBC by the same amount.
+    gm = st.dic_dvbe + st.dic_dvbc
+    g_pi = st.dib_dvbe + st.dib_dvbc
+    with np.errstate(divide="ignore"):
+        return DeviceSmallSignal(gm=gm, r_pi=1.0 / g_pi, ro=-1.0 / st.dic_dvbc, beta_ac=gm / g_pi)
+
+
+@dataclass(frozen=True)
+class Midband:
+    """Midband gains (V/V) and resistances (Ω); see README "Figures"."""
+
+    av_open: np.ndarray
+    av_loaded: np.ndarray
+    av_source: np.ndarray
+    rin: np.ndarray
+    rin_base: np.ndarray
+    rout: np.ndarray
+
+
+def midband(stage: StageCircuit, op: OperatingPoint, rs: np.ndarray) -> Midband:
+    """Midband figures of a built stage at its operating point.
+
+    ``rs`` is the source resistance (Ω) used to divide the source EMF.
+    """
+    net = stage.net
+    no_source = net.without(SOURCE)
+    # Driving the input terminal with a test current: rin and the terminal gain.
+    loaded = small_signal(no_source, op, inject={stage.input: 1.0})
+    unloaded = small_signal(no_source.without(LOAD), op, inject={stage.input: 1.0})
+    # Looking into the base alone: bias divider and source removed.
+    base = small_signal(no_source.without(BIAS), op, inject={stage.base: 1.0})
+    # Looking back into the output: EMF at zero with rs in place, load removed.
+    back = small_signal(net.without(LOAD), op, inject={stage.output: 1.0}, excite={EMF: 0.0})
+    rin = loaded[stage.input]
+    av_loaded = loaded[stage.output] / rin
+    with np.errstate(divide="ignore", invalid="ignore"):
+        av_source = av_loaded * rin / (rin + rs)
+    return Midband(
+        av_open=unloaded[stage.output] / unloaded[stage.input],
+        av_loaded=av_loaded,
+        av_source=av_source,
+        rin=rin,
+        rin_base=base[stage.base],
+        rout=back[stage.output],
+    )
+
+
+def decibels(gain) -> np.ndarray:
+    """20·log10|gain|, −inf for a zero gain."""
+    with np.errstate(divide="ignore"):
+        return 20.0 * np.log10(np.abs(gain))

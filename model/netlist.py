@@ -1,0 +1,165 @@
+"""A circuit as a list of elements on named nodes.
+
+Element values are numpy arrays with one entry per batch row (or scalars that
+broadcast), so one netlist describes a whole batch of designs that share a
+shape.  Node ``"0"`` is ground.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from .device import DeviceParams
+
+GROUND = "0"
+
+
+@dataclass(frozen=True)
+class Resistor:
+    """A resistor of ``r`` ohms between nodes ``a`` and ``b``."""
+
+    name: str
+    a: str
+    b: str
+    r: np.ndarray
+    tags: frozenset = field(default_factory=frozenset)
+
+
+@dataclass(frozen=True)
+class Capacitor:
+    """A capacitor of ``c`` farads between ``a`` and ``b``.
+
+    ``coupling`` capacitors (coupling and bypass) are short circuits at midband
+    and hold their quiescent voltage in the large-signal transfer; the others
+    (load and device capacitance) are open at midband.
+    """
+
+    name: str
+    a: str
+    b: str
+    c: np.ndarray
+    coupling: bool = True
+    tags: frozenset = field(default_factory=frozenset)
+
+
+@dataclass(frozen=True)
+class VoltageSource:
+    """An ideal source holding node ``plus`` at ``v`` volts above ``minus``."""
+
+    name: str
+    plus: str
+    minus: str
+    v: np.ndarray
+    tags: frozenset = field(default_factory=frozenset)
+
+
+@dataclass(frozen=True)
+class Bjt:
+    """A bipolar transistor; ``params.sign`` says NPN (+1) or PNP (−1)."""
+
+    name: str
+    c: str
+    b: str
+    e: str
+    params: DeviceParams
+    tags: frozenset = field(default_factory=frozenset)
+
+
+Element = Resistor | Capacitor | VoltageSource | Bjt
+
+
+@dataclass(frozen=True)
+class Netlist:
+    """Elements plus the batch size they describe."""
+
+    elements: tuple
+    batch: int
+
+    def __post_init__(self):
+        names = [e.name for e in self.elements]
+        if len(set(names)) != len(names):
+            raise ValueError(f"duplicate element names in {names}")
+
+    @property
+    def nodes(self) -> tuple[str, ...]:
+        """Every node name except ground, in first-seen order."""
+        seen: dict[str, None] = {}
+        for e in self.elements:
+            for n in terminals(e):
+                if n != GROUND:
+                    seen.setdefault(n, None)
+        return tuple(seen)
+
+    def of_type(self, kind) -> list:
+        return [e for e in self.elements if isinstance(e, kind)]
+
+    def element(self, name: str):
+        for e in self.elements:
+            if e.name == name:
+                return e
+        raise KeyError(name)
+
+    def without(self, *tags: str) -> "Netlist":
+        """The same circuit with every element carrying one of ``tags`` removed."""
+        drop = set(tags)
+        return Netlist(tuple(e for e in self.elements if not (e.tags & drop)), self.batch)
+
+    def with_source(self, name: str, v) -> "Netlist":
+        """The same circuit with voltage source ``name`` set to ``v`` volts."""
+        out = [replace(e, v=_batch_array(v, self.batch)) if e.name == name else e for e in self.elements]
+        return Netlist(tuple(out), self.batch)
+
+    def coupling_as_sources(self, volts: dict[str, np.ndarray]) -> "Netlist":
+        """Coupling capacitors replaced by sources at the given voltages (a − b, V).
+
+        This is the circuit for the large-signal transfer at midband, where each
+        coupling and bypass capacitor is big enough to hold its quiescent charge.
+        Other capacitors (load, device) are left in place; they carry no DC current.
+        """
+        out = []
+        for e in self.elements:
+            if isinstance(e, Capacitor) and e.coupling:
+                out.append(VoltageSource(e.name, e.a, e.b, _batch_array(volts[e.name], self.batch), e.tags))
+            else:
+                out.append(e)
+        return Netlist(tuple(out), self.batch)
+
+    def take(self, rows) -> "Netlist":
+        """Only the batch rows picked by an integer index array."""
+        rows = np.asarray(rows)
+        return Netlist(tuple(_take_element(e, self.batch, rows) for e in self.elements), rows.size)
+
+    def repeat(self, n: int) -> "Netlist":
+        """Each batch row repeated ``n`` times in a row: a sweep of n points per design."""
+        return Netlist(tuple(_repeat_element(e, self.batch, n) for e in self.elements), self.batch * n)
+
+
+def terminals(e) -> tuple[str, ...]:
+    if isinstance(e, Bjt):
+        return (e.c, e.b, e.e)
+    if isinstance(e, VoltageSource):
+        return (e.plus, e.minus)
+    return (e.a, e.b)
+
+
+def _batch_array(v, batch: int) -> np.ndarray:
+    return np.broadcast_to(np.asarray(v, dtype=float), (batch,)).copy()
+
+
+_VALUE = {Resistor: "r", Capacitor: "c", VoltageSource: "v"}
+
+
+def _repeat_element(e, batch: int, n: int):
+    if isinstance(e, Bjt):
+        return replace(e, params=e.params.repeat(n))
+    attr = _VALUE[type(e)]
+    return replace(e, **{attr: np.repeat(_batch_array(getattr(e, attr), batch), n)})
+
+
+def _take_element(e, batch: int, rows):
+    if isinstance(e, Bjt):
+        return replace(e, params=e.params.take(rows))
+    attr = _VALUE[type(e)]
+    return replace(e, **{attr: _batch_array(getattr(e, attr), batch)[rows]})
