@@ -244,7 +244,8 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
         t_offset[:, t] = red.offset[node]
     spread = np.einsum("pt,qs->tspq", pick, pick).reshape(n_t * n_t, n_ports * n_ports)
     dev = _stack_params([q.params for q in bjts])
-    lim_params = _expand(dev)
+    vt_j = dev.vt[..., None]
+    v_crit = device.critical_voltage(_expand(dev))
     companion = _Companion(net.batch, len(bjts))
 
     if start is None:
@@ -263,7 +264,7 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
             new_ports = solve_batched(a, b)
             v_t = (new_ports @ pick + t_offset).reshape(net.batch, len(bjts), 3)
             u_raw = sign * np.stack([v_t[..., 1] - v_t[..., 2], v_t[..., 1] - v_t[..., 0]], axis=-1)
-            u, limited = device.limit_junction(u_raw, u, lim_params)
+            u, limited = device.limit_junction(u_raw, u, vt_j, v_crit)
             step = np.max(np.abs(new_ports - x_ports), axis=1, initial=0.0)
             scale = 1.0 + np.max(np.abs(new_ports), axis=1, initial=0.0)
             done |= (step <= _V_TOL * scale) & ~limited.any(axis=(1, 2))

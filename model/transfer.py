@@ -86,11 +86,27 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
 
     if region_of(op.states[TRANSISTOR].ic, op.junctions[:, 0, 1])[0] != ACTIVE:
         return LargeSignal(0.0, 0.0, thd, hd2, hd3, (0.0, 0.0), grid, curve_out)
-    grid_sol = sol.take(np.arange(grid.size))
+    # Bracket each edge on the coarse grid, then solve a fine grid inside both
+    # brackets at once and extrapolate the active side's margin to zero.
+    sat, cut = _margins(sol.take(np.arange(grid.size)))
+    margin = np.minimum(sat, np.clip(cut, -50.0, 50.0))
+    active = (margin >= 0.0) & sol.converged[: grid.size]
     centre = grid.size // 2
+    brackets = [_bracket(active, centre, step) for step in (-1, 1)]
+    fine = np.concatenate([np.linspace(grid[i], grid[j], _FINE) for i, j in brackets])
+    fine_sol = _solve_at(held, fine, op.junctions[0])
+    f_sat, f_cut = _margins(fine_sol)
+    f_margin = np.minimum(f_sat, np.clip(f_cut, -50.0, 50.0))
+    f_active = (f_margin >= 0.0) & fine_sol.converged
+    f_out = fine_sol.voltages[stage.output] - out_q
     edges, outs = [], []
-    for direction in (-1, 1):
-        emf, o = _edge(held, stage, grid, grid_sol, centre, direction, out_q)
+    for k, (i, j) in enumerate(brackets):
+        if i == j:  # still active at the end of the span: the edge lies beyond it
+            edges.append(float(grid[i]))
+            outs.append(float(curve_out[i]))
+            continue
+        part = slice(k * _FINE, (k + 1) * _FINE)
+        emf, o = _extrapolate(fine[part], f_margin[part], f_active[part], f_out[part])
         edges.append(emf)
         outs.append(o)
     up = max(max(outs), 0.0)
@@ -98,55 +114,50 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
 
 
+#: Points of the fine grid inside each coarse bracket.
+_FINE = 48
+
+
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
     net = held.repeat(emf.size).with_source(EMF, emf)
     return operating_point(net, start=np.repeat(junctions[None], emf.size, axis=0))
 
 
-def _edge(held, stage, grid, sol, centre, direction, out_q):
-    """Walk from the quiescent point in ``direction`` to the first non-active
-    grid point, then close in on the edge by the Illinois false-position method.
-    Returns (EMF at the edge, output excursion there)."""
-    sat, cut = _margins(sol)
-    margin = np.minimum(sat, np.clip(cut, -50.0, 50.0))
-    idx = range(centre, grid.size) if direction > 0 else range(centre, -1, -1)
-    prev = centre
-    for i in idx:
-        if not (margin[i] >= 0.0 and sol.converged[i]):
-            break
-        prev = i
-    else:
-        # Still active at the end of the span: the edge lies beyond it.
-        return float(grid[prev]), float(sol.voltages[stage.output][prev] - out_q)
-    a, fa, b, fb = grid[prev], margin[prev], grid[i], margin[i]
-    if not np.isfinite(fb):
-        fb = -1.0
-    start = sol.junctions[prev]
-    last_out = float(sol.voltages[stage.output][prev] - out_q)
-    side = 0
-    for _ in range(60):
-        c = b - fb * (b - a) / (fb - fa) if fb != fa else 0.5 * (a + b)
-        if not (min(a, b) < c < max(a, b)):
-            c = 0.5 * (a + b)
-        point = _solve_at(held, np.array([c]), start)
-        s, k = _margins(point)
-        fc = float(min(s[0], np.clip(k[0], -50.0, 50.0)))
-        if not point.converged[0]:
-            fc = -1.0
-        if fc >= 0.0:
-            a, fa, start = c, fc, point.junctions[0]
-            last_out = float(point.voltages[stage.output][0] - out_q)
-            if side == 1:
-                fb *= 0.5
-            side = 1
-        else:
-            b, fb = c, fc
-            if side == -1:
-                fa *= 0.5
-            side = -1
-        if abs(b - a) <= 1e-9 * max(abs(a), abs(b), 1e-6) or abs(fc) < 1e-9:
-            break
-    return float(a), last_out
+def _bracket(active, centre, step):
+    """(last active, first non-active) grid indices walking out from ``centre``;
+    both equal the last index if the walk never leaves the active region."""
+    i = centre
+    while 0 <= i + step < active.size:
+        if not active[i + step]:
+            return i, i + step
+        i += step
+    return i, i
+
+
+def _extrapolate(emf, margin, active, out):
+    """Edge EMF and output excursion from the active points next to the edge.
+
+    The margin is smooth on the active side and kinks at the edge, so the
+    zero is found by a quadratic through the last three active points rather
+    than by interpolating across the kink.
+    """
+    last = int(np.flatnonzero(~active)[0]) - 1 if (~active).any() else active.size - 1
+    if last < 0:
+        return float(emf[0]), float(out[0])
+    pts = slice(max(last - 2, 0), last + 1)
+    x, m, o = emf[pts], margin[pts], out[pts]
+    if x.size < 2:
+        return float(x[-1]), float(o[-1])
+    # Fit margin and output against EMF, then step to margin = 0.
+    deg = min(2, x.size - 1)
+    mp = np.polynomial.Polynomial.fit(x, m, deg)
+    roots = [r.real for r in mp.roots() if abs(r.imag) < 1e-12]
+    hi = x[-1] + (emf[1] - emf[0]) if emf.size > 1 else x[-1]
+    lo, hi = sorted((x[-1], hi))
+    inside = [r for r in roots if lo <= r <= hi]
+    edge = inside[0] if inside else x[-1]
+    op_fit = np.polynomial.Polynomial.fit(x, o, deg)
+    return float(edge), float(op_fit(edge))
 
 
 def _harmonics(samples: np.ndarray):
