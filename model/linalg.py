@@ -34,6 +34,8 @@ def solve_batched(a: np.ndarray, b: np.ndarray) -> np.ndarray:
         x = np.zeros_like(rhs, dtype=np.result_type(a, b))
     elif a.shape[0] < _LAPACK_BELOW:
         x = _lapack(a, rhs)
+    elif a.shape[-1] <= 3:
+        x = _cofactor(a, rhs)
     else:
         x = _eliminate(a, rhs)
     return x[..., 0] if vector else x
@@ -45,6 +47,36 @@ def _lapack(a, rhs):
     except np.linalg.LinAlgError:
         # Fall back row by row so only the singular rows come out non-finite.
         return _eliminate(a, rhs)
+
+
+def _cofactor(a, rhs):
+    """Cramer's rule by cofactors for n ≤ 3: a handful of whole-array products.
+
+    Accurate enough here because every caller either iterates (Newton
+    corrects the step) or solves a nodal matrix whose condition number is
+    set by resistor ratios, far below 1/eps.
+    """
+    n = a.shape[-1]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        if n == 1:
+            return rhs / a[:, :1, :1]
+        if n == 2:
+            p, q, r, s = a[:, 0, 0, None], a[:, 0, 1, None], a[:, 1, 0, None], a[:, 1, 1, None]
+            det = p * s - q * r
+            b0, b1 = rhs[:, 0], rhs[:, 1]
+            return np.stack([(s * b0 - q * b1) / det, (p * b1 - r * b0) / det], axis=1)
+        m = [[a[:, i, j, None] for j in range(3)] for i in range(3)]
+        c00 = m[1][1] * m[2][2] - m[1][2] * m[2][1]
+        c01 = m[1][2] * m[2][0] - m[1][0] * m[2][2]
+        c02 = m[1][0] * m[2][1] - m[1][1] * m[2][0]
+        det = m[0][0] * c00 + m[0][1] * c01 + m[0][2] * c02
+        inv = [
+            [c00, m[0][2] * m[2][1] - m[0][1] * m[2][2], m[0][1] * m[1][2] - m[0][2] * m[1][1]],
+            [c01, m[0][0] * m[2][2] - m[0][2] * m[2][0], m[0][2] * m[1][0] - m[0][0] * m[1][2]],
+            [c02, m[0][1] * m[2][0] - m[0][0] * m[2][1], m[0][0] * m[1][1] - m[0][1] * m[1][0]],
+        ]
+        b = [rhs[:, 0], rhs[:, 1], rhs[:, 2]]
+        return np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)], axis=1)
 
 
 def _eliminate(a, rhs):

@@ -1,0 +1,110 @@
+"""Engine benchmark: prints `name: value unit` lines; never fails.
+
+Measures a full single-design analysis, batched DC + midband throughput for
+100,000 varied designs, and a per-design scipy.optimize.root loop doing the
+same DC and midband work, side by side in one run.
+"""
+
+from __future__ import annotations
+
+import pathlib
+import statistics
+import sys
+import time
+
+import numpy as np
+
+sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
+
+from model import analyse, read_design  # noqa: E402
+from model.analysis import analyse_batch, design_values  # noqa: E402
+from model.design import default_design  # noqa: E402
+from model.device import T_NOMINAL, thermal_voltage  # noqa: E402
+
+DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
+
+
+def _median_ms(fn, repeats: int) -> float:
+    times = []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return 1e3 * statistics.median(times)
+
+
+def varied_values(n: int, seed: int = 1) -> dict:
+    """n common-emitter designs with every value spread over a decade or more."""
+    rng = np.random.default_rng(seed)
+    base = design_values([default_design("common-emitter")])
+    values = {k: np.repeat(v, n) for k, v in base.items()}
+    values["supply.vcc"] = rng.uniform(5, 24, n)
+    values["bias.r1"] = 10 ** rng.uniform(4, 5.5, n)
+    values["bias.r2"] = values["bias.r1"] * rng.uniform(0.08, 0.3, n)
+    values["stage.rc"] = 10 ** rng.uniform(3, 4.3, n)
+    values["stage.re1"] = 10 ** rng.uniform(1.5, 3, n)
+    values["stage.re2"] = 10 ** rng.uniform(2.5, 3.5, n)
+    values["transistor.beta"] = rng.uniform(80, 400, n)
+    values["load.rl"] = 10 ** rng.uniform(3.5, 5.5, n)
+    return values
+
+
+def scipy_reference(values: dict, rows: range):
+    """The same DC + midband work per design with scipy.optimize.root."""
+    from scipy.optimize import root
+
+    vt = float(thermal_voltage(T_NOMINAL))
+    out = []
+    for k in rows:
+        v = {name: float(a[k]) for name, a in values.items()}
+        i_s, bf, br, va = v["transistor.i_s"], v["transistor.beta"], v["transistor.beta_r"], v["transistor.va"]
+
+        def kcl(x):
+            vb, vc, ve, vm = x
+            vbe, vbc = vb - ve, vb - vc
+            i_f, i_r = i_s * np.expm1(vbe / vt), i_s * np.expm1(vbc / vt)
+            ic = (i_f - i_r) * (1 - vbc / va) - i_r / br
+            ib = i_f / bf + i_r / br
+            return [
+                (v["supply.vcc"] - vb) / v["bias.r1"] - vb / v["bias.r2"] - ib,
+                (v["supply.vcc"] - vc) / v["stage.rc"] - ic,
+                ic + ib - (ve - vm) / v["stage.re1"],
+                (ve - vm) / v["stage.re1"] - vm / v["stage.re2"],
+            ]
+
+        sol = root(kcl, [1.5, v["supply.vcc"] / 2, 0.8, 0.7], tol=1e-12)
+        vb, vc, ve, _ = sol.x
+        ic = i_s * np.expm1((vb - ve) / vt)
+        gm = ic / vt
+        r_pi = bf / gm
+        rin = 1 / (1 / v["bias.r1"] + 1 / v["bias.r2"] + 1 / (r_pi + (bf + 1) * v["stage.re1"]))
+        out.append((vc, rin))
+    return out
+
+
+def main() -> None:
+    design = read_design(DEMO)
+    analyse(design)  # warm caches and imports
+    print(f"single_design_analysis_median: {_median_ms(lambda: analyse(design), 50):.2f} ms")
+
+    n = 100_000
+    values = varied_values(n)
+    analyse_batch("common-emitter", {k: v[:1000] for k, v in values.items()})
+    t = time.perf_counter()
+    batch = analyse_batch("common-emitter", values)
+    batch_s = time.perf_counter() - t
+    rate = n / batch_s
+    print(f"batch_dc_midband_designs: {n} designs")
+    print(f"batch_dc_midband_converged: {int(batch.converged.sum())} designs")
+    print(f"batch_dc_midband_throughput: {rate:,.0f} designs/s")
+
+    m = 300
+    t = time.perf_counter()
+    scipy_reference(values, range(m))
+    ref_rate = m / (time.perf_counter() - t)
+    print(f"scipy_root_loop_throughput: {ref_rate:,.0f} designs/s")
+    print(f"batch_over_scipy_ratio: {rate / ref_rate:,.0f} x")
+
+
+if __name__ == "__main__":
+    main()

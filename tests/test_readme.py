@@ -1,0 +1,27 @@
+"""The README documents what the code does: every file key and figure key."""
+
+import pathlib
+import re
+
+from model.analysis import FIGURE_KEYS
+from model.design import FIELDS
+
+README = (pathlib.Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+
+
+def test_every_design_key_is_in_the_file_reference():
+    missing = [k for k in FIELDS if f"`{k}`" not in README]
+    assert missing == []
+
+
+def test_every_json_figure_key_is_defined():
+    missing = [k for k in FIGURE_KEYS if f"`{k}`" not in README]
+    assert missing == []
+
+
+def test_quick_start_has_exactly_two_commands_and_ci_runs_the_test_one():
+    quick = README.split("## Quick start", 1)[1].split("\n## ", 1)[0]
+    commands = re.findall(r"```sh\n(.*?)\n```", quick, flags=re.S)
+    assert len(commands) == 2
+    ci = (pathlib.Path(__file__).resolve().parents[1] / ".ci" / "run").read_text(encoding="utf-8")
+    assert commands[1].strip() in ci.splitlines()
