@@ -90,8 +90,9 @@ def test_missing_file_and_bad_arguments_exit_2(tmp_path):
 
 
 def test_installed_package_carries_the_demo_designs(tmp_path):
-    # Run from an empty folder so the source tree is not on the path: whichever
-    # `tui` is importable must still find its demos.
-    code = "from tui.bundled import default_demo; p = default_demo(); print(p.is_file())"
+    # Run from an empty folder so the source tree is not on the path: the
+    # installed package must carry its demos (README's install step).
+    code = ("from tui.bundled import default_demo; p = default_demo(); "
+            "print(p.is_file() and p.parent.name == 'demos')")
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path)
     assert proc.stdout.strip() == "True", proc.stderr
