@@ -10,7 +10,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .checks import Warning_, stage_warnings
+from .checks import stage_warnings
 from .design import Design
 from .errors import SolveError
 from .hand import HandEstimate, hand_estimate

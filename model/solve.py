@@ -2,21 +2,12 @@
 circuit linearised at that point.
 
 Every topology is a builder that produces a :class:`~model.netlist.Netlist`;
-nothing here knows which topology it is solving.
-
-How a netlist becomes equations
--------------------------------
-* Voltage sources (and, at midband, coupling capacitors as 0 V sources) are
-  eliminated first: each node is written as an unknown plus a known offset
-  (a union–find over the sources).  A node tied through sources to ground
-  becomes known.  What is left is plain nodal analysis, whose matrices are
-  small and well conditioned.
-* Nodes with no conductive path to ground in the current analysis (the load
-  side of an unloaded coupling capacitor at DC) are held at 0 V; no current
-  flows there, so the choice changes nothing else.
-* For the DC solve the linear network is reduced onto the transistor
-  terminals once (a Schur complement), so each Newton iteration solves a
-  system the size of the transistor ports only.
+nothing here knows which topology it is solving.  The netlist's shape is
+compiled once into a :class:`~model.plan.Plan` (see there for how sources and
+floating nodes are eliminated); each solve then assembles its matrices by
+matrix products over the batch.  For the DC solve the linear network is
+reduced onto the transistor terminals once, so each Newton iteration solves
+a system the size of the transistor ports only.
 """
 
 from __future__ import annotations
@@ -26,9 +17,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import device
-from .errors import SolveError
 from .linalg import solve_batched
-from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource, terminals
+from .netlist import GROUND, Bjt, Netlist, Resistor
+from .plan import AC, DC, MIDBAND, Plan, plan_for
 
 #: Newton stops when no node moves by more than this (V) and no junction was
 #: limited.  Convergence is quadratic, so the point after such a step is good to
@@ -38,138 +29,6 @@ _V_TOL = 1e-9
 #: at zero bias: a typical small-signal stage is a few Newton steps from there.
 _START_CURRENT = 1e-3
 _MAX_ITER = 200
-
-
-@dataclass(frozen=True)
-class Reduction:
-    """Each node as ``x[index] + offset``; index −1 means the node is known."""
-
-    index: dict
-    offset: dict
-    size: int
-
-    def voltages(self, x: np.ndarray) -> dict:
-        """Node voltages (including ground) from the unknowns x (batch, size)."""
-        out = {GROUND: np.zeros(x.shape[0], dtype=x.dtype)}
-        for node, i in self.index.items():
-            out[node] = self.offset[node] + (x[:, i] if i >= 0 else 0.0)
-        return out
-
-
-def _reduce(nodes, constraints, conductive_pairs, batch, first=()) -> Reduction:
-    """Eliminate ideal voltage constraints (plus, minus, volts) from ``nodes``.
-
-    ``conductive_pairs`` are the node pairs joined by anything that conducts in
-    this analysis; components with no path to ground are tied to it at 0 V.
-    Unknowns listed in ``first`` are numbered first (the transistor ports).
-    """
-    parent = {n: n for n in (*nodes, GROUND)}
-    rel = {n: np.zeros(batch) for n in parent}  # v[n] = v[parent[n]] + rel[n]
-
-    def find(n):
-        if parent[n] == n:
-            return n, rel[n] * 0.0
-        root, acc = find(parent[n])
-        parent[n], rel[n] = root, rel[n] + acc
-        return root, rel[n]
-
-    def tie(plus, minus, volts):
-        rp, op = find(plus)
-        rm, om = find(minus)
-        if rp == rm:
-            raise SolveError(f"voltage sources form a loop through {plus} and {minus}",
-                             "an ideal source or a shorted capacitor closes a loop")
-        # v_rp + op = v_rm + om + volts; ground always stays a root.
-        if rp == GROUND:
-            parent[rm], rel[rm] = GROUND, op - om - volts
-        else:
-            parent[rp], rel[rp] = rm, om + volts - op
-
-    for plus, minus, volts in constraints:
-        tie(plus, minus, np.broadcast_to(np.asarray(volts), (batch,)))
-
-    # Floating islands: join conductive pairs in a plain union–find of roots.
-    group = {n: n for n in parent}
-
-    def top(n):
-        while group[n] != n:
-            group[n] = group[group[n]]
-            n = group[n]
-        return n
-
-    for a, b in conductive_pairs:
-        group[top(find(a)[0])] = top(find(b)[0])
-    grounded = top(GROUND)
-    for n in nodes:
-        r = find(n)[0]
-        if r != GROUND and top(r) != grounded:
-            tie(r, GROUND, np.zeros(batch))
-            group[top(r)] = grounded
-
-    roots = [r for r in dict.fromkeys(find(n)[0] for n in nodes) if r != GROUND]
-    order = [r for r in dict.fromkeys(find(n)[0] for n in first) if r != GROUND]
-    order += [r for r in roots if r not in order]
-    number = {r: i for i, r in enumerate(order)}
-    index, offset = {}, {}
-    for n in nodes:
-        root, off = find(n)
-        index[n] = number.get(root, -1)
-        offset[n] = off
-    return Reduction(index, offset, len(order))
-
-
-class _System:
-    """A batch of nodal equations A x = b being stamped."""
-
-    def __init__(self, red: Reduction, batch: int, size: int | None = None, dtype=float):
-        n = red.size if size is None else size
-        self.red = red
-        self.a = np.zeros((batch, n, n), dtype=dtype)
-        self.b = np.zeros((batch, n), dtype=dtype)
-
-    def vccs(self, row, p, q, g):
-        """Add a current g·(v_p − v_q) leaving node ``row``."""
-        r = self.red.index.get(row, -1)
-        if r < 0:
-            return
-        idx, off = self.red.index, self.red.offset
-        self.b[:, r] -= g * (off.get(p, 0.0) - off.get(q, 0.0))
-        if idx.get(p, -1) >= 0:
-            self.a[:, r, idx[p]] += g
-        if idx.get(q, -1) >= 0:
-            self.a[:, r, idx[q]] -= g
-
-    def admittance(self, na, nb, y):
-        self.vccs(na, na, nb, y)
-        self.vccs(nb, nb, na, y)
-
-    def inject(self, node, current):
-        """A constant current flowing *into* ``node``."""
-        r = self.red.index.get(node, -1)
-        if r >= 0:
-            self.b[:, r] += current
-
-
-def _stamp_bjt(sys: _System, q: Bjt, st: device.JunctionState, vbe0=None, vbc0=None):
-    """Stamp a transistor linearised about (vbe0, vbc0) with state ``st``.
-
-    With vbe0/vbc0 None only the small-signal conductances are stamped.
-    Terminal currents are into the device, so KCL sees them leaving the node.
-    """
-    s = q.params.sign
-    a, bb, cc, d = st.dic_dvbe, st.dic_dvbc, st.dib_dvbe, st.dib_dvbc
-    sys.vccs(q.c, q.b, q.e, a)
-    sys.vccs(q.c, q.b, q.c, bb)
-    sys.vccs(q.b, q.b, q.e, cc)
-    sys.vccs(q.b, q.b, q.c, d)
-    sys.vccs(q.e, q.b, q.e, -(a + cc))
-    sys.vccs(q.e, q.b, q.c, -(bb + d))
-    if vbe0 is not None:
-        i_c = s * (st.ic - a * vbe0 - bb * vbc0)
-        i_b = s * (st.ib - cc * vbe0 - d * vbc0)
-        sys.inject(q.c, -i_c)
-        sys.inject(q.b, -i_b)
-        sys.inject(q.e, i_c + i_b)
 
 
 def junction_voltages(q: Bjt, v: dict):
@@ -184,7 +43,8 @@ class OperatingPoint:
 
     voltages : node → V;  states : transistor name → JunctionState at the solution;
     converged : bool per row;  iterations : Newton iterations used;
-    residual : largest KCL residual over the largest branch current, per row.
+    residual : largest KCL residual over the largest branch current, per row;
+    junctions : (batch, transistor, 2) forward-sense (VBE, VBC), V.
     """
 
     voltages: dict
@@ -209,13 +69,33 @@ class OperatingPoint:
 _STATE_FIELDS = ("ic", "ib", "dic_dvbe", "dic_dvbc", "dib_dvbe", "dib_dvbc")
 
 
-def _dc_reduction(net: Netlist, first=()) -> Reduction:
-    sources = [(e.plus, e.minus, e.v) for e in net.of_type(VoltageSource)]
-    pairs = [(e.a, e.b) for e in net.of_type(Resistor)]
-    pairs += [(e.plus, e.minus) for e in net.of_type(VoltageSource)]
-    for q in net.of_type(Bjt):
-        pairs += [(q.b, q.e), (q.b, q.c)]
-    return _reduce(net.nodes, sources, pairs, net.batch, first)
+def _values(net: Netlist, plan: Plan, omega=None, excite=None):
+    """(g, V): admittances (batch, n_adm) and constraint voltages (batch, n_src)."""
+    g = np.empty((net.batch, len(plan.admittances)), dtype=float if omega is None else complex)
+    for k, name in enumerate(plan.admittances):
+        e = net.element(name)
+        g[:, k] = 1.0 / e.r if isinstance(e, Resistor) else 1j * omega * e.c
+    v = np.zeros((net.batch, len(plan.constraints)))
+    for k, name in enumerate(plan.constraints):
+        if excite is None:
+            v[:, k] = net.element(name).v
+        elif name in excite:
+            v[:, k] = excite[name]
+    return g, v
+
+
+def _assemble_linear(plan: Plan, g, v):
+    batch = g.shape[0]
+    a = (g @ plan.adm_stamp).reshape(batch, plan.n, plan.n)
+    b = (g[:, :, None] * v[:, None, :]).reshape(batch, -1) @ plan.adm_rhs
+    return a, b
+
+
+def _node_dict(plan: Plan, x, v):
+    volts = x @ plan.node_pick + v @ plan.node_coef
+    out = {GROUND: np.zeros(x.shape[0], dtype=volts.dtype)}
+    out.update({node: volts[:, i] for i, node in enumerate(plan.nodes)})
+    return out, volts
 
 
 def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> OperatingPoint:
@@ -228,26 +108,14 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
     begin from, for example a nearby solution; by default each emitter
     junction starts at the voltage for 1 mA and each collector junction at 0.
     """
+    plan = plan_for(net, DC)
     bjts = net.of_type(Bjt)
-    ports = [n for q in bjts for n in (q.c, q.b, q.e)]
-    red = _dc_reduction(net, first=ports)
-    # A terminal joined onto ground (a CE with re1 = re2 = 0) is known: index −1, offset 0.
-    n_ports = len({red.index.get(n, -1) for n in ports if red.index.get(n, -1) >= 0})
-
-    linear = _System(red, net.batch)
-    for r in net.of_type(Resistor):
-        linear.admittance(r.a, r.b, 1.0 / r.r)
-    y, j, back = _schur(linear.a, linear.b, n_ports)
-
-    # Terminal voltages (batch, 3·transistors) are x_ports @ pick + t_offset,
-    # and a terminal conductance block lands in the port matrix by @ spread.
-    n_t = 3 * len(bjts)
-    pick = np.zeros((n_ports, n_t))
-    t_offset = np.zeros((net.batch, n_t))
-    for t, node in enumerate(ports):
-        if red.index.get(node, -1) >= 0:
-            pick[red.index[node], t] = 1.0
-        t_offset[:, t] = red.offset.get(node, 0.0)
+    g, v = _values(net, plan)
+    a, b = _assemble_linear(plan, g, v)
+    n_ports = plan.n_ports
+    y, j, back = _schur(a, b, n_ports)
+    pick = plan.term_pick[:n_ports]
+    t_offset = v @ plan.term_coef
     dev = _stack_params([q.params for q in bjts])
     if start is None:
         u = np.stack([dev.vt * np.log(_START_CURRENT / dev.i_s), np.zeros_like(dev.vt)], axis=-1)
@@ -255,12 +123,30 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
         u = np.array(start, dtype=float).reshape(net.batch, len(bjts), 2)
     x_ports, done, iterations = _newton(y, j, pick, t_offset, dev, u, max_iter)
     x_ports = np.where(np.isfinite(x_ports), x_ports, 0.0)
-    v = red.voltages(_assemble(x_ports, back))
-    states = {q.name: device.evaluate(q.params, *junction_voltages(q, v)) for q in bjts}
-    residual = kcl_residual(net, v, states, red)
+    x = _assemble(x_ports, back)
+    volts, _ = _node_dict(plan, x, v)
+    states = {q.name: device.evaluate(q.params, *junction_voltages(q, volts)) for q in bjts}
+    residual = _kcl_residual(plan, a, b, x, g, volts, bjts, states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
-    junctions = np.stack([np.stack(junction_voltages(q, v), axis=-1) for q in bjts], axis=1)
-    return OperatingPoint(v, states, converged, iterations, residual, junctions)
+    junctions = np.stack([np.stack(junction_voltages(q, volts), axis=-1) for q in bjts], axis=1)
+    return OperatingPoint(volts, states, converged, iterations, residual, junctions)
+
+
+def _kcl_residual(plan, a, b, x, g, volts, bjts, states):
+    """Largest |KCL sum| over the free (super)nodes over the largest branch current."""
+    into = np.stack([c for q in bjts for c in _terminal_currents(q, states[q.name])], axis=1)
+    r = np.einsum("bij,bj->bi", a, x) - b + into @ plan.term_pick.T
+    drops = np.stack([volts[n] for n in plan.nodes], axis=1) @ plan.adm_incidence
+    scale = np.maximum(_row_max(np.abs(g * drops)), _row_max(np.abs(into)))
+    worst = _row_max(np.abs(r))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(scale > 0, worst / scale, worst)
+
+
+def _terminal_currents(q: Bjt, st: device.JunctionState):
+    """Currents into the collector, base and emitter of q (A)."""
+    s = q.params.sign
+    return s * st.ic, s * st.ib, -s * (st.ic + st.ib)
 
 
 def _newton(y, j, pick, t_offset, dev, u, max_iter):
@@ -282,9 +168,8 @@ def _newton(y, j, pick, t_offset, dev, u, max_iter):
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         vt_j, v_crit = dev.vt[..., None], device.critical_voltage(_expand(dev))
         sign = dev.sign[..., None]
-        companion = _Companion(rows.size, count)
         for iterations in range(1, max_iter + 1):
-            g_t, i_eq = companion.at(dev, u)
+            g_t, i_eq = _companion(dev, u)
             a = y + (g_t.reshape(rows.size, -1) @ spread).reshape(y.shape)
             b = j - (i_eq + np.einsum("bts,bs->bt", g_t, t_offset)) @ pick.T
             new = solve_batched(a, b)
@@ -304,7 +189,6 @@ def _newton(y, j, pick, t_offset, dev, u, max_iter):
                 rows, x, u, y, j, t_offset = rows[keep], x[keep], u[keep], y[keep], j[keep], t_offset[keep]
                 dev, vt_j, v_crit, sign = dev.take(keep), vt_j[keep], v_crit[keep], sign[keep]
                 done = done[keep]
-                companion = _Companion(rows.size, count)
         else:
             x_out[rows] = x
     return x_out, done_out, iterations
@@ -332,34 +216,34 @@ def _expand(p: device.DeviceParams) -> device.DeviceParams:
     return device.DeviceParams(*(getattr(p, f)[..., None] for f in fields))
 
 
-class _Companion:
+def _terminal_conductance(states: list) -> np.ndarray:
+    """(batch, 3k, 3k) conductance from terminal voltages (c, b, e of each of
+    the k transistors) to the currents into those terminals, block-diagonal."""
+    k = len(states)
+    g = np.zeros((states[0].ic.shape[0], k, 3, k, 3))
+    for i, st in enumerate(states):
+        a, bb, cc, d = st.dic_dvbe, st.dic_dvbc, st.dib_dvbe, st.dib_dvbc
+        g[:, i, 0, i, 0], g[:, i, 0, i, 1], g[:, i, 0, i, 2] = -bb, a + bb, -a
+        g[:, i, 1, i, 0], g[:, i, 1, i, 1], g[:, i, 1, i, 2] = -d, cc + d, -cc
+        g[:, i, 2, i, :] = -(g[:, i, 0, i, :] + g[:, i, 1, i, :])
+    return g.reshape(-1, 3 * k, 3 * k)
+
+
+def _companion(dev: device.DeviceParams, u: np.ndarray):
     """Linearised terminal currents about junction voltages u = (VBE, VBC).
 
-    ``at`` returns g_t (batch, 3k, 3k), block-diagonal over the k transistors,
-    the conductance from terminal voltages (c, b, e of each) to the currents
-    into the terminals, and i_eq (batch, 3k) so that the currents are
-    i_eq + g_t @ v_terminal.  Buffers are reused across Newton iterations.
+    Returns (g_t, i_eq): the terminal conductance (see
+    :func:`_terminal_conductance`) and currents i_eq (batch, 3k) such that the
+    currents into the terminals are i_eq + g_t @ v_terminal.
     """
-
-    def __init__(self, batch: int, count: int):
-        self.g = np.zeros((batch, count, 3, count, 3))
-        self.i = np.zeros((batch, count, 3))
-        self.diag = np.arange(count)
-
-    def at(self, dev: device.DeviceParams, u: np.ndarray):
-        st = device.evaluate(dev, u[..., 0], u[..., 1])
-        a, bb, cc, d = st.dic_dvbe, st.dic_dvbc, st.dib_dvbe, st.dib_dvbc
-        blk = self.g[:, self.diag, :, self.diag, :]  # (count, batch, 3, 3) copy
-        blk[..., 0, 0], blk[..., 0, 1], blk[..., 0, 2] = (-bb).T, (a + bb).T, (-a).T
-        blk[..., 1, 0], blk[..., 1, 1], blk[..., 1, 2] = (-d).T, (cc + d).T, (-cc).T
-        blk[..., 2, :] = -(blk[..., 0, :] + blk[..., 1, :])
-        self.g[:, self.diag, :, self.diag, :] = blk
-        s = dev.sign
-        i_c = s * (st.ic - a * u[..., 0] - bb * u[..., 1])
-        i_b = s * (st.ib - cc * u[..., 0] - d * u[..., 1])
-        self.i[..., 0], self.i[..., 1], self.i[..., 2] = i_c, i_b, -(i_c + i_b)
-        n = self.i.shape[1] * 3
-        return self.g.reshape(-1, n, n), self.i.reshape(-1, n)
+    st = device.evaluate(dev, u[..., 0], u[..., 1])
+    count = u.shape[1]
+    per = [device.JunctionState(*(getattr(st, f)[:, i] for f in _STATE_FIELDS)) for i in range(count)]
+    s = dev.sign
+    i_c = s * (st.ic - st.dic_dvbe * u[..., 0] - st.dic_dvbc * u[..., 1])
+    i_b = s * (st.ib - st.dib_dvbe * u[..., 0] - st.dib_dvbc * u[..., 1])
+    i_eq = np.stack([i_c, i_b, -(i_c + i_b)], axis=-1).reshape(u.shape[0], 3 * count)
+    return _terminal_conductance(per), i_eq
 
 
 def _schur(a, b, n_ports):
@@ -417,22 +301,6 @@ def node_outflows(net: Netlist, v: dict, states: dict) -> dict:
     return total
 
 
-def kcl_residual(net: Netlist, v: dict, states: dict, red: Reduction) -> np.ndarray:
-    """Largest |KCL sum| over the free nodes (a supernode counts as one),
-    divided by the largest branch current; per batch row.
-    """
-    outflow = node_outflows(net, v, states)
-    sums: dict[int, np.ndarray] = {}
-    for node, i in red.index.items():
-        if i >= 0:
-            sums[i] = sums.get(i, 0.0) + outflow[node]
-    currents = branch_currents(net, v, states)
-    scale = np.max(np.abs(np.stack(list(currents.values()))), axis=0) if currents else np.ones(net.batch)
-    worst = np.max(np.abs(np.stack(list(sums.values()))), axis=0) if sums else np.zeros(net.batch)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(scale > 0, worst / scale, worst)
-
-
 def small_signal(
     net: Netlist,
     op: OperatingPoint,
@@ -449,28 +317,17 @@ def small_signal(
     is zero except those named in ``excite`` (name → volts); ``inject`` adds
     test currents into nodes (node → A).
     """
-    excite, inject = excite or {}, inject or {}
-    sources = [(e.plus, e.minus, excite.get(e.name, 0.0)) for e in net.of_type(VoltageSource)]
-    pairs = [(e.a, e.b) for e in net.of_type(Resistor)]
-    pairs += [(e.plus, e.minus) for e in net.of_type(VoltageSource)]
-    caps = net.of_type(Capacitor)
-    if omega is None:
-        sources += [(c.a, c.b, 0.0) for c in caps if c.coupling]
-        pairs += [(c.a, c.b) for c in caps if c.coupling]
-    else:
-        pairs += [(c.a, c.b) for c in caps]
+    plan = plan_for(net, MIDBAND if omega is None else AC)
+    g, v = _values(net, plan, omega=omega, excite=excite or {})
+    a, b = _assemble_linear(plan, g, v)
     bjts = net.of_type(Bjt)
-    for q in bjts:
-        pairs += [(q.b, q.e), (q.b, q.c)]
-    red = _reduce(net.nodes, sources, pairs, net.batch)
-    sys = _System(red, net.batch, dtype=float if omega is None else complex)
-    for r in net.of_type(Resistor):
-        sys.admittance(r.a, r.b, 1.0 / r.r)
-    if omega is not None:
-        for c in caps:
-            sys.admittance(c.a, c.b, 1j * omega * c.c)
-    for q in bjts:
-        _stamp_bjt(sys, q, op.states[q.name])
-    for node, current in inject.items():
-        sys.inject(node, current)
-    return red.voltages(solve_batched(sys.a, sys.b))
+    if bjts:
+        g_t = _terminal_conductance([op.states[q.name] for q in bjts])
+        a = a + (g_t.reshape(net.batch, -1) @ plan.term_spread).reshape(a.shape)
+        b = b - np.einsum("bts,bs->bt", g_t, v @ plan.term_coef) @ plan.term_pick.T
+    for node, current in (inject or {}).items():
+        i = plan.index.get(node, -1)
+        if i >= 0:
+            b[:, i] = b[:, i] + current
+    x = solve_batched(a, b)
+    return _node_dict(plan, x, v)[0]

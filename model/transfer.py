@@ -94,7 +94,9 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     centre = grid.size // 2
     brackets = [_bracket(active, centre, step) for step in (-1, 1)]
     fine = np.concatenate([np.linspace(grid[i], grid[j], _FINE) for i, j in brackets])
-    fine_sol = _solve_at(held, fine, op.junctions[0])
+    # Each fine point starts from the coarse solution at its bracket's active end.
+    starts = np.concatenate([np.repeat(sol.junctions[i][None], _FINE, axis=0) for i, _ in brackets])
+    fine_sol = _solve_at(held, fine, starts)
     f_sat, f_cut = _margins(fine_sol)
     f_margin = np.minimum(f_sat, np.clip(f_cut, -50.0, 50.0))
     f_active = (f_margin >= 0.0) & fine_sol.converged
@@ -119,8 +121,12 @@ _FINE = 48
 
 
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
+    """The held circuit solved at each EMF (V); ``junctions`` is one start for
+    all points (transistor, 2) or one per point (point, transistor, 2)."""
     net = held.repeat(emf.size).with_source(EMF, emf)
-    return operating_point(net, start=np.repeat(junctions[None], emf.size, axis=0))
+    if junctions.ndim == 2:
+        junctions = np.repeat(junctions[None], emf.size, axis=0)
+    return operating_point(net, start=junctions)
 
 
 def _bracket(active, centre, step):
@@ -145,19 +151,41 @@ def _extrapolate(emf, margin, active, out):
     if last < 0:
         return float(emf[0]), float(out[0])
     pts = slice(max(last - 2, 0), last + 1)
-    x, m, o = emf[pts], margin[pts], out[pts]
-    if x.size < 2:
-        return float(x[-1]), float(o[-1])
-    # Fit margin and output against EMF, then step to margin = 0.
-    deg = min(2, x.size - 1)
-    mp = np.polynomial.Polynomial.fit(x, m, deg)
-    roots = [r.real for r in mp.roots() if abs(r.imag) < 1e-12]
-    hi = x[-1] + (emf[1] - emf[0]) if emf.size > 1 else x[-1]
-    lo, hi = sorted((x[-1], hi))
-    inside = [r for r in roots if lo <= r <= hi]
-    edge = inside[0] if inside else x[-1]
-    op_fit = np.polynomial.Polynomial.fit(x, o, deg)
-    return float(edge), float(op_fit(edge))
+    x, m, o = (float_list(a[pts]) for a in (emf, margin, out))
+    step = float(emf[1] - emf[0]) if emf.size > 1 else 0.0
+    if len(x) < 2 or step == 0.0:
+        return x[-1], o[-1]
+    # Newton on the interpolating polynomial, from the secant estimate.
+    edge = x[-1] - m[-1] * (x[-1] - x[-2]) / (m[-1] - m[-2]) if m[-1] != m[-2] else x[-1]
+    for _ in range(4):
+        value, slope = _lagrange(x, m, edge)
+        if slope == 0.0:
+            break
+        edge -= value / slope
+    lo, hi = sorted((x[-1], x[-1] + step))
+    edge = min(max(edge, lo), hi)
+    return edge, _lagrange(x, o, edge)[0]
+
+
+def float_list(a) -> list:
+    return [float(v) for v in a]
+
+
+def _lagrange(xs: list, ys: list, t: float):
+    """Value and slope at t of the polynomial through the points (xs, ys)."""
+    value = slope = 0.0
+    for i, (xi, yi) in enumerate(zip(xs, ys)):
+        others = [xj for j, xj in enumerate(xs) if j != i]
+        denom = 1.0
+        for xj in others:
+            denom *= xi - xj
+        basis, dbasis = 1.0, 0.0
+        for xj in others:
+            dbasis = dbasis * (t - xj) + basis
+            basis *= t - xj
+        value += yi * basis / denom
+        slope += yi * dbasis / denom
+    return value, slope
 
 
 def _harmonics(samples: np.ndarray):
