@@ -22,7 +22,7 @@ How a netlist becomes equations
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cached_property, lru_cache
 
 import numpy as np
 
@@ -56,6 +56,20 @@ class Plan:
     term_coef: np.ndarray
     index: dict  # node → unknown number, −1 when known
     term_spread: np.ndarray  # (3k·3k, n·n): where a terminal conductance block lands in A
+
+    # The same products as sparse sums, for big batches where a dense matrix
+    # product would mostly multiply zeros: each entry is (target, ((i, c), ...)).
+    @cached_property
+    def adm_terms(self):
+        return _sparse(self.adm_stamp)
+
+    @cached_property
+    def rhs_terms(self):
+        return _sparse(self.adm_rhs)
+
+    @cached_property
+    def node_terms(self):
+        return _sparse(self.node_coef)
 
 
 def plan_for(net: Netlist, kind: str) -> Plan:
@@ -136,6 +150,15 @@ def _build(signature: tuple, kind: str) -> Plan:
         adm_incidence=incidence, node_pick=node_pick, node_coef=node_coef,
         term_pick=term_pick, term_coef=term_coef, index=index,
         term_spread=np.einsum("pt,qs->tspq", term_pick, term_pick).reshape(len(ports) ** 2, n * n),
+    )
+
+
+def _sparse(dense: np.ndarray) -> tuple:
+    """Columns of a (sources, targets) matrix as (target, ((source, coef), ...))."""
+    return tuple(
+        (t, tuple((int(i), float(dense[i, t])) for i in np.flatnonzero(dense[:, t])))
+        for t in range(dense.shape[1])
+        if dense[:, t].any()
     )
 
 

@@ -84,18 +84,51 @@ def _values(net: Netlist, plan: Plan, omega=None, excite=None):
     return g, v
 
 
+#: From this batch size on, matrices are assembled by sparse sums rather
+#: than dense products (which then mostly multiply zeros).
+_SPARSE_FROM = 256
+
+
 def _assemble_linear(plan: Plan, g, v):
-    batch = g.shape[0]
-    a = (g @ plan.adm_stamp).reshape(batch, plan.n, plan.n)
-    b = (g[:, :, None] * v[:, None, :]).reshape(batch, -1) @ plan.adm_rhs
-    return a, b
+    """The linear network's A (batch, n, n) and b (batch, n)."""
+    batch, n = g.shape[0], plan.n
+    gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
+    if batch < _SPARSE_FROM:
+        return (g @ plan.adm_stamp).reshape(batch, n, n), gv @ plan.adm_rhs
+    return (_sparse_product(g, plan.adm_terms, n * n).reshape(batch, n, n),
+            _sparse_product(gv, plan.rhs_terms, n))
+
+
+def _sparse_product(values, terms, width):
+    """values @ M for a sparse M given as (column, ((row, coef), ...)) terms."""
+    out = np.zeros((values.shape[0], width), dtype=values.dtype)
+    for col, acc in _sparse_columns(values, terms):
+        out[:, col] = acc
+    return out
 
 
 def _node_dict(plan: Plan, x, v):
-    volts = x @ plan.node_pick + v @ plan.node_coef
-    out = {GROUND: np.zeros(x.shape[0], dtype=volts.dtype)}
-    out.update({node: volts[:, i] for i, node in enumerate(plan.nodes)})
-    return out, volts
+    """Node name → voltage (batch,), ground included, from the unknowns x."""
+    if x.shape[0] < _SPARSE_FROM:
+        volts = x @ plan.node_pick + v @ plan.node_coef
+        cols = {node: volts[:, i] for i, node in enumerate(plan.nodes)}
+    else:
+        known = dict(_sparse_columns(v, plan.node_terms))
+        cols = {}
+        for i, node in enumerate(plan.nodes):
+            k = plan.index[node]
+            base = x[:, k] if k >= 0 else np.zeros(x.shape[0], dtype=x.dtype)
+            cols[node] = base + known[i] if i in known else base
+    return {GROUND: np.zeros(x.shape[0], dtype=x.dtype), **cols}
+
+
+def _sparse_columns(values, terms):
+    """(column, values @ M[:, column]) for each non-zero column of a sparse M."""
+    for col, entries in terms:
+        acc = entries[0][1] * values[:, entries[0][0]]
+        for row, c in entries[1:]:
+            acc = acc + c * values[:, row]
+        yield col, acc
 
 
 def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> OperatingPoint:
@@ -124,7 +157,7 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
     x_ports, done, iterations = _newton(y, j, pick, t_offset, dev, u, max_iter)
     x_ports = np.where(np.isfinite(x_ports), x_ports, 0.0)
     x = _assemble(x_ports, back)
-    volts, _ = _node_dict(plan, x, v)
+    volts = _node_dict(plan, x, v)
     states = {q.name: device.evaluate(q.params, *junction_voltages(q, volts)) for q in bjts}
     residual = _kcl_residual(plan, a, b, x, g, volts, bjts, states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
@@ -330,4 +363,4 @@ def small_signal(
         if i >= 0:
             b[:, i] = b[:, i] + current
     x = solve_batched(a, b)
-    return _node_dict(plan, x, v)[0]
+    return _node_dict(plan, x, v)
