@@ -129,7 +129,11 @@ def analyse(design: Design) -> Figures:
     st = op.states[TRANSISTOR]
     vbe, vbc = float(op.junctions[0, 0, 0]), float(op.junctions[0, 0, 1])
     region = str(region_of(st.ic, op.junctions[:, 0, 1])[0])
-    big = large_signal(nominal, op, design.supply.vcc, design.source.vpk)
+    # Where the swing search first looks: the output can move at most about vcc,
+    # plus room for the ~0.5 V base-emitter excursion that reaches cut-off.
+    rs, rin = design.source.rs, float(mid.rin[0])
+    span = 3.0 * design.supply.vcc / max(abs(float(mid.av_source[0])), 1e-6) + 1.0 * (1.0 + rs / rin)
+    big = large_signal(nominal, op, design.supply.vcc, design.source.vpk, span)
     power = dissipation(nominal, op)
     p_q = float(power.p_transistor[0])
     tj = design.environment.ambient + p_q * t.theta_ja

@@ -67,8 +67,15 @@ class LargeSignal:
     curve_out: np.ndarray
 
 
-def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float) -> LargeSignal:
-    """Swing and distortion of a single-design stage at its operating point ``op``."""
+def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float,
+                 span: float | None = None) -> LargeSignal:
+    """Swing and distortion of a single-design stage at its operating point ``op``.
+
+    ``span`` (V) is how far either side of zero the EMF sweep first looks for
+    the edges; a side whose edge lies beyond it is searched again out to the
+    full ±4·vcc.  A good guess (a few times vcc/|av_source|) saves most of the
+    Newton work, since points far past an edge converge slowly.
+    """
     caps = {
         e.name: op.voltages[e.a] - op.voltages[e.b]
         for e in stage.net.elements
@@ -76,7 +83,9 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     }
     held = stage.net.coupling_as_sources(caps)
     out_q = float(op.voltages[stage.output][0])
-    grid = _SPAN_PER_VOLT * vcc * np.concatenate([-_GRID[:0:-1], _GRID])
+    full = _SPAN_PER_VOLT * vcc
+    span = full if span is None else min(span, full)
+    grid = span * np.concatenate([-_GRID[:0:-1], _GRID])
     phase = 2.0 * np.pi * np.arange(FFT_POINTS) / FFT_POINTS
     wave = vpk * np.sin(phase)
     sol = _solve_at(held, np.concatenate([grid, wave]), op.junctions[0])
@@ -86,16 +95,32 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
 
     if region_of(op.states[TRANSISTOR].ic, op.junctions[:, 0, 1])[0] != ACTIVE:
         return LargeSignal(0.0, 0.0, thd, hd2, hd3, (0.0, 0.0), grid, curve_out)
-    # Bracket each edge on the coarse grid, then solve a fine grid inside both
-    # brackets at once and extrapolate the active side's margin to zero.
-    sat, cut = _margins(sol.take(np.arange(grid.size)))
-    margin = np.minimum(sat, np.clip(cut, -50.0, 50.0))
-    active = (margin >= 0.0) & sol.converged[: grid.size]
-    centre = grid.size // 2
-    brackets = [_bracket(active, centre, step) for step in (-1, 1)]
+    coarse = sol.take(np.arange(grid.size))
+    brackets = _brackets(coarse, grid)
+    if span < full and any(i == j for i, j in brackets):
+        grid = full * np.concatenate([-_GRID[:0:-1], _GRID])
+        coarse = _solve_at(held, grid, op.junctions[0])
+        curve_out = coarse.voltages[stage.output] - out_q
+        brackets = _brackets(coarse, grid)
+    edges, outs = _edges(held, stage, grid, coarse, brackets, curve_out, out_q)
+    up = max(max(outs), 0.0)
+    down = max(-min(outs), 0.0)
+    return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
+
+
+def _brackets(coarse: OperatingPoint, grid):
+    """For each direction, (last active, first non-active) grid indices."""
+    sat, cut = _margins(coarse)
+    active = (np.minimum(sat, np.clip(cut, -50.0, 50.0)) >= 0.0) & coarse.converged
+    return [_bracket(active, grid.size // 2, step) for step in (-1, 1)]
+
+
+def _edges(held, stage, grid, coarse, brackets, curve_out, out_q):
+    """Solve a fine grid inside both brackets at once and extrapolate the
+    active side's margin to zero.  Returns (edge EMFs, output excursions)."""
     fine = np.concatenate([np.linspace(grid[i], grid[j], _FINE) for i, j in brackets])
     # Each fine point starts from the coarse solution at its bracket's active end.
-    starts = np.concatenate([np.repeat(sol.junctions[i][None], _FINE, axis=0) for i, _ in brackets])
+    starts = np.concatenate([np.repeat(coarse.junctions[i][None], _FINE, axis=0) for i, _ in brackets])
     fine_sol = _solve_at(held, fine, starts)
     f_sat, f_cut = _margins(fine_sol)
     f_margin = np.minimum(f_sat, np.clip(f_cut, -50.0, 50.0))
@@ -111,9 +136,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
         emf, o = _extrapolate(fine[part], f_margin[part], f_active[part], f_out[part])
         edges.append(emf)
         outs.append(o)
-    up = max(max(outs), 0.0)
-    down = max(-min(outs), 0.0)
-    return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
+    return edges, outs
 
 
 #: Points of the fine grid inside each coarse bracket.
