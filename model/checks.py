@@ -42,7 +42,9 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
         out.append(Warning_("Q-CUTOFF", f"transistor cut off at rest: IC {_v(ic, 'A')} below 10 nA; "
                             "the bias does not turn it on"))
     short = [(name, s) for name, s in (("up", swing_up), ("down", swing_down)) if s < wanted_out]
-    if wanted_out > 0 and short:
+    # A stage that is not active at rest already has its own warning; saying
+    # that its zero swing is short of the request would only add noise.
+    if wanted_out > 0 and short and region == "active":
         sides = ", ".join(f"swing_{name} {_v(s, 'V')}" for name, s in short)
         out.append(Warning_("HEADROOM-SHORT", f"requested output {_v(wanted_out, 'V')} peak "
                             f"(vpk × |av_source|) exceeds {sides}: the output clips"))

@@ -1,0 +1,281 @@
+"""Property tests of the exact engine over random valid designs.
+
+Designs are drawn across decades (supply 3–48 V, resistors 10 Ω–1 MΩ,
+β 20–800, VA 10–1000 V, IS 1e-16–1e-12 A, ambient −40–85 °C), in both
+topologies and both polarities, with optional parts absent (open load, no
+source resistance, zero emitter resistors).  Many land in saturation or
+cut-off; that is fine, and they must still solve.
+
+The independent checks recompute the device currents with our own copy of
+the model equations as written in REFERENCES.md (Ebers–Moll transport form,
+Jaeger & Blalock ch. 5, with the forward Early factor; IS(T) and βF(T) of
+Getreu 1976) using scipy.constants for k and q, not the engine's functions.
+"""
+
+import math
+
+import numpy as np
+import pytest
+import scipy.constants as sc
+from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import strategies as st
+
+from model import analyse
+from model.analysis import analyse_batch, design_values
+from model.design import TOPOLOGIES, default_design, with_values
+from model.netlist import GROUND, Resistor
+from model.solve import operating_point
+from model.topologies import EMF, SUPPLY, TRANSISTOR, build
+
+SETTINGS = settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+#: Region edges as documented in README "Regions" and model/transfer.py
+#: (common practice): saturation when VBC > 0.4 V, else cut-off below 10 nA.
+VBC_SATURATION = 0.4
+IC_CUTOFF = 10e-9
+
+
+def _decades(lo, hi):
+    """Log-uniform floats in [lo, hi]."""
+    return st.floats(math.log10(lo), math.log10(hi)).map(lambda x: 10.0**x)
+
+
+def _maybe_zero(strategy):
+    return st.one_of(st.just(0.0), strategy)
+
+
+RESISTOR = _decades(10.0, 1e6)
+
+
+@st.composite
+def designs(draw, topology=None):
+    """A random design that passes validation."""
+    if topology is None:
+        topology = draw(st.sampled_from(TOPOLOGIES))
+    values = {
+        "supply.vcc": draw(st.floats(3.0, 48.0)),
+        "bias.r1": draw(RESISTOR),
+        "bias.r2": draw(RESISTOR),
+        "transistor.polarity": draw(st.sampled_from(("npn", "pnp"))),
+        "transistor.beta": draw(_decades(20.0, 800.0)),
+        "transistor.beta_r": draw(_decades(0.1, 20.0)),
+        "transistor.va": draw(_decades(10.0, 1000.0)),
+        "transistor.i_s": draw(_decades(1e-16, 1e-12)),
+        "environment.ambient": draw(st.floats(-40.0, 85.0)),
+        "load.rl": draw(st.one_of(st.just("open"), RESISTOR)),
+        "load.cl": draw(st.sampled_from((0.0, 1e-9))),
+        "source.rs": draw(_maybe_zero(RESISTOR)),
+        "source.vpk": draw(st.one_of(st.just(0.0), _decades(1e-4, 2.0))),
+    }
+    if topology == "common-emitter":
+        values["stage.rc"] = draw(RESISTOR)
+        values["stage.re1"] = draw(_maybe_zero(RESISTOR))
+        values["stage.re2"] = draw(_maybe_zero(RESISTOR))
+    else:
+        values["stage.rc"] = draw(_maybe_zero(RESISTOR))
+        values["stage.re"] = draw(RESISTOR)
+    return with_values(default_design(topology), values)
+
+
+# ------------------------------------------------ our own device equations
+def _params(d):
+    """(IS, βF, βR, VA, VT) at the design's ambient, from REFERENCES.md."""
+    t = d.transistor
+    kelvin = sc.zero_Celsius + d.environment.ambient
+    t0 = sc.zero_Celsius + 25.0
+    vt = sc.k * kelvin / sc.e
+    ratio = kelvin / t0
+    i_s = t.i_s * ratio**t.xti * math.exp((t.eg / vt) * (ratio - 1.0))
+    beta_f = t.beta * ratio**t.xtb
+    return i_s, beta_f, t.beta_r, t.va, vt
+
+
+def _device(d, vbe, vbc):
+    """Forward-sense (IC, IB) by Ebers–Moll transport with the Early factor."""
+    i_s, beta_f, beta_r, va, vt = _params(d)
+    i_f = i_s * math.expm1(vbe / vt)
+    i_r = i_s * math.expm1(vbc / vt)
+    ic = (i_f - i_r) * (1.0 - vbc / va) - i_r / beta_r
+    ib = i_f / beta_f + i_r / beta_r
+    return ic, ib
+
+
+def _sign(d):
+    return 1.0 if d.transistor.polarity == "npn" else -1.0
+
+
+# ----------------------------------------------------------------- properties
+@SETTINGS
+@given(designs())
+def test_every_valid_design_solves(d):
+    f = analyse(d)  # must not raise SolveError
+    assert f.kcl_residual < 1e-9
+    assert f.region in ("active", "saturation", "cutoff")
+    for name in ("ic", "ib", "vbe", "vce", "vb", "ve", "vc", "p_transistor", "p_supply", "tj",
+                 "av_open", "av_loaded", "av_source", "rin", "rin_base"):
+        assert math.isfinite(getattr(f, name)), name
+    # Every node voltage lies between the rails: the stage has no source of
+    # energy other than the supply at DC (the EMF is zero at rest).
+    vcc = d.supply.vcc
+    for v in (f.vb, f.ve, f.vc):
+        assert -1e-9 * vcc <= v <= vcc * (1 + 1e-9)
+
+
+@SETTINGS
+@given(designs())
+def test_kcl_recomputed_independently(d):
+    """Rebuild the operating point and sum currents at every free node with
+    our own device equations; residual below 1e-9 of the largest branch current."""
+    stage = build(d.topology, design_values([d]))
+    op = operating_point(stage.net)
+    assert bool(op.converged[0])
+    v = {n: float(x[0]) for n, x in op.voltages.items()}
+    s = _sign(d)
+    q = stage.net.element(TRANSISTOR)
+    ic, ib = _device(d, s * (v[q.b] - v[q.e]), s * (v[q.b] - v[q.c]))
+    into = {q.c: 0.0, q.b: 0.0, q.e: 0.0}
+    into[q.c] += s * ic
+    into[q.b] += s * ib
+    into[q.e] += -s * (ic + ib)
+    outflow = {n: 0.0 for n in v}
+    branch = [abs(ic), abs(ib), abs(ic + ib)]
+    for r in stage.net.of_type(Resistor):
+        i = (v[r.a] - v[r.b]) / float(r.r[0])
+        outflow[r.a] += i
+        outflow[r.b] -= i
+        branch.append(abs(i))
+    for node, i in into.items():
+        outflow[node] += i
+    scale = max(branch)
+    assert scale > 0
+    # Ground, the supply node and the source node are held by voltage sources.
+    free = [n for n in v if n not in (GROUND, SUPPLY, stage.net.element(EMF).plus)]
+    assert stage.base in free  # r1 and r2 are never zero, so the base always floats
+    worst = max(abs(outflow[n]) for n in free)
+    assert worst <= 1e-9 * scale, {n: outflow[n] for n in free}
+
+
+@SETTINGS
+@given(designs())
+def test_figures_agree_with_node_voltages(d):
+    """analyse's VBE, VCE, IC and IB are those of its own node voltages."""
+    f = analyse(d)
+    s, vcc = _sign(d), d.supply.vcc
+    assert f.vbe == pytest.approx(s * (f.vb - f.ve), abs=1e-12 * vcc)
+    assert f.vce == pytest.approx(s * (f.vc - f.ve), abs=1e-12 * vcc)
+    ic, ib = _device(d, f.vbe, f.vbe - f.vce)
+    # A junction-voltage rounding of 1e-12·vcc moves a current by at most
+    # that over VT (≈ 2e-9 relative); tiny cut-off currents get an absolute floor.
+    floor = 1e-12 * (abs(f.i_supply) + abs(f.ic))
+    assert f.ic == pytest.approx(ic, rel=1e-8, abs=floor)
+    assert f.ib == pytest.approx(ib, rel=1e-8, abs=floor)
+
+
+@SETTINGS
+@given(designs())
+def test_region_follows_documented_criteria(d):
+    f = analyse(d)
+    vbc = f.vbe - f.vce
+    if vbc > VBC_SATURATION:
+        want = "saturation"
+    elif f.ic < IC_CUTOFF:
+        want = "cutoff"
+    else:
+        want = "active"
+    assert f.region == want
+    # The same from the node voltages to ground, in the device's forward sense.
+    assert (_sign(d) * (f.vb - f.vc) > VBC_SATURATION) == (f.region == "saturation")
+    if f.region != "active":
+        # Swing is defined only for a stage active at rest (README "Figures").
+        assert f.swing_up == 0.0 and f.swing_down == 0.0
+    warning_codes = {w.code for w in f.warnings}
+    assert ("Q-SATURATED" in warning_codes) == (f.region == "saturation")
+    assert ("Q-CUTOFF" in warning_codes) == (f.region == "cutoff")
+
+
+@SETTINGS
+@given(designs())
+def test_energy_balance(d):
+    """Tellegen at rest: the supply's power goes into the transistor and the
+    resistors (the EMF is zero and the capacitors carry no DC current)."""
+    f = analyse(d)
+    total = f.p_transistor + sum(f.p_resistors.values())
+    assert f.p_supply > 0  # the divider alone draws current from the supply
+    assert f.p_supply == pytest.approx(total, rel=1e-9)
+    assert f.p_supply == pytest.approx(d.supply.vcc * f.i_supply, rel=1e-12)
+    assert all(p >= 0 for p in f.p_resistors.values())
+    # Forward-sense dissipation of the transistor is positive in every region.
+    assert f.p_transistor >= 0
+
+
+BATCH_FIELDS = ("ic", "vce", "gm", "r_pi", "ro", "av_open", "av_loaded", "av_source",
+                "rin", "rin_base", "rout")
+
+
+@SETTINGS
+@given(st.sampled_from(TOPOLOGIES).flatmap(
+    lambda top: st.lists(designs(top), min_size=2, max_size=7).map(lambda ds: (top, ds))))
+def test_batch_equals_one_at_a_time(case):
+    """analyse_batch over a mixed list gives the same figures as analyse on
+    each design: the batching is a speed-up, never a different answer."""
+    topology, ds = case
+    batch = analyse_batch(topology, design_values(ds))
+    assert bool(np.all(batch.converged))
+    for k, d in enumerate(ds):
+        f = analyse(d)
+        assert batch.region[k] == f.region
+        for name in BATCH_FIELDS:
+            got, want = float(getattr(batch, name)[k]), getattr(f, name)
+            if math.isinf(want):
+                assert got == want, name
+                continue
+            assert got == pytest.approx(want, rel=1e-9, abs=1e-300), (k, name)
+
+
+@SETTINGS
+@given(designs())
+def test_load_never_raises_the_gain(d):
+    """A resistive load divides the open-circuit output against rout, so
+    |av_loaded| ≤ |av_open| (equal when there is no load)."""
+    f = analyse(d)
+    assert abs(f.av_loaded) <= abs(f.av_open) * (1 + 1e-9) + 1e-15
+    if math.isinf(d.load.rl):
+        assert f.av_loaded == pytest.approx(f.av_open, rel=1e-9, abs=1e-15)
+    # And the source resistance only divides further: |av_source| ≤ |av_loaded|.
+    assert abs(f.av_source) <= abs(f.av_loaded) * (1 + 1e-9) + 1e-15
+
+
+@SETTINGS
+@given(designs())
+def test_swing_and_distortion_are_non_negative(d):
+    f = analyse(d)
+    for name in ("swing_up", "swing_down", "thd", "hd2", "hd3"):
+        value = getattr(f, name)
+        assert math.isfinite(value) and value >= 0, name
+    # The load voltage cannot move beyond the supply span.
+    assert f.swing_up <= d.supply.vcc * (1 + 1e-6) and f.swing_down <= d.supply.vcc * (1 + 1e-6)
+    assert f.hd2 <= f.thd * (1 + 1e-12) and f.hd3 <= f.thd * (1 + 1e-12)
+
+
+SMALL_VPK = 1e-4  # V
+
+
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+@given(designs())
+def test_small_signal_distortion_is_small(d):
+    """An active stage driven by 0.1 mV, far inside its swing, barely distorts.
+
+    The base–emitter signal is at most the EMF (the source divider and any
+    degeneration only reduce it), so x = v̂/VT ≤ 0.1 mV / 20 mV = 0.005 even
+    at −40 °C, and the exponential's HD2 ≈ x/4 ≈ 0.13 % (Gray, Hurst, Lewis &
+    Meyer, nonlinear analysis).  The Early effect and the output's own
+    excursion add terms of the same order in x; a 1 % limit leaves a factor
+    of about 8 for them while still failing on any gross error in the
+    transfer (clipping, a wrong harmonic bin, a badly solved point).
+    """
+    d = with_values(d, {"source.vpk": SMALL_VPK})
+    f = analyse(d)
+    assume(f.region == "active")
+    assume(f.vout_wanted < 0.25 * min(f.swing_up, f.swing_down))
+    assert f.thd < 0.01
