@@ -19,7 +19,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .solve import OperatingPoint, operating_point
+from .device import critical_voltage
+from .solve import OperatingPoint, junction_voltages, operating_point, small_signal
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
@@ -88,7 +89,9 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     grid = span * np.concatenate([-_GRID[:0:-1], _GRID])
     phase = 2.0 * np.pi * np.arange(FFT_POINTS) / FFT_POINTS
     wave = vpk * np.sin(phase)
-    sol = _solve_at(held, np.concatenate([grid, wave]), op.junctions[0])
+    predict = _predictor(stage, op)
+    points = np.concatenate([grid, wave])
+    sol = _solve_at(held, points, predict(points))
     out = sol.voltages[stage.output] - out_q
     curve_out, wave_out = out[: grid.size], out[grid.size :]
     thd, hd2, hd3 = _harmonics(wave_out) if vpk > 0 else (0.0, 0.0, 0.0)
@@ -99,10 +102,10 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     brackets = _brackets(coarse, grid)
     if span < full and any(i == j for i, j in brackets):
         grid = full * np.concatenate([-_GRID[:0:-1], _GRID])
-        coarse = _solve_at(held, grid, op.junctions[0])
+        coarse = _solve_at(held, grid, predict(grid))
         curve_out = coarse.voltages[stage.output] - out_q
         brackets = _brackets(coarse, grid)
-    edges, outs = _edges(held, stage, grid, coarse, brackets, curve_out, out_q)
+    edges, outs = _edges(held, stage, grid, brackets, curve_out, out_q, predict)
     up = max(max(outs), 0.0)
     down = max(-min(outs), 0.0)
     return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
@@ -115,13 +118,11 @@ def _brackets(coarse: OperatingPoint, grid):
     return [_bracket(active, grid.size // 2, step) for step in (-1, 1)]
 
 
-def _edges(held, stage, grid, coarse, brackets, curve_out, out_q):
+def _edges(held, stage, grid, brackets, curve_out, out_q, predict):
     """Solve a fine grid inside both brackets at once and extrapolate the
     active side's margin to zero.  Returns (edge EMFs, output excursions)."""
     fine = np.concatenate([np.linspace(grid[i], grid[j], _FINE) for i, j in brackets])
-    # Each fine point starts from the coarse solution at its bracket's active end.
-    starts = np.concatenate([np.repeat(coarse.junctions[i][None], _FINE, axis=0) for i, _ in brackets])
-    fine_sol = _solve_at(held, fine, starts)
+    fine_sol = _solve_at(held, fine, predict(fine))
     f_sat, f_cut = _margins(fine_sol)
     f_margin = np.minimum(f_sat, np.clip(f_cut, -50.0, 50.0))
     f_active = (f_margin >= 0.0) & fine_sol.converged
@@ -141,6 +142,21 @@ def _edges(held, stage, grid, coarse, brackets, curve_out, out_q):
 
 #: Points of the fine grid inside each coarse bracket.
 _FINE = 48
+
+
+def _predictor(stage: StageCircuit, op: OperatingPoint):
+    """Newton starts for the sweep: the junction voltages the linearised stage
+    predicts at each EMF, kept below the critical voltage so a point far past
+    an edge does not start with a wildly forward-biased junction."""
+    q = stage.net.element(TRANSISTOR)
+    slope = np.stack(junction_voltages(q, small_signal(stage.net, op, excite={EMF: 1.0})), axis=-1)
+    ceiling = critical_voltage(q.params)[0]
+
+    def predict(emf):
+        u = op.junctions[0, 0] + np.outer(emf, slope[0])
+        return np.minimum(u, ceiling)[:, None, :]
+
+    return predict
 
 
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
