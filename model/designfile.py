@@ -1,4 +1,4 @@
-"""Design files on disk: TOML text in, a validated Design out.
+"""Design files on disk: TOML text in, a validated Design and its history out.
 
 A design file is something a person edits by hand or receives from someone
 else, so reading it must never crash or hang: every failure becomes one
@@ -16,12 +16,17 @@ import tomllib
 
 import tomli_w
 
+from dataclasses import dataclass
+
 from .design import Design, design_from_dict, design_to_dict
 from .errors import DesignFileError
+from .historyfile import history_from_list
+from .savefile import Fingerprint
 
-# A real design file is a few kilobytes; the caps keep a wrong or hostile
-# file from costing memory or time before the parser even sees it.
-MAX_FILE_BYTES = 1 << 20
+# A design is a few kilobytes and each history entry under one; the caps keep
+# a wrong or hostile file from costing memory or time before the parser even
+# sees it, while leaving room for tens of thousands of logged changes.
+MAX_FILE_BYTES = 32 << 20
 MAX_LINE_CHARS = 10_000
 
 _BOM = "\ufeff"
@@ -43,9 +48,39 @@ def _os_reason(err: OSError) -> str:
     return _OS_REASONS.get(err.errno) or f"cannot be read ({(err.strerror or 'unknown error').lower()})"
 
 
+@dataclass(frozen=True)
+class Document:
+    """A design file as read: the design, its history (a list of ledger
+    Entries, empty for a file never edited by the tool), the fingerprint of the
+    bytes read and the lines that hold hand-written comments."""
+
+    path: str
+    design: Design
+    history: list
+    fingerprint: Fingerprint
+    comment_lines: tuple
+
+
 def read_design(path: str | os.PathLike) -> Design:
     """The Design in the file at ``path``; DesignFileError or DesignError if it is not one."""
+    return read_document(path).design
+
+
+def read_document(path: str | os.PathLike) -> Document:
+    """The whole design file at ``path``; DesignFileError or DesignError if it is not one."""
     name = os.fsdecode(path)
+    raw = _read_bytes(name)
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as err:
+        line = raw.count(b"\n", 0, err.start) + 1
+        bad = raw[err.start:err.start + 1].hex()
+        raise DesignFileError(name, line, f"is not valid UTF-8 text (byte 0x{bad})") from None
+    design, history = loads_document(text, name)
+    return Document(name, design, history, Fingerprint.of(name, raw), comment_lines(text))
+
+
+def _read_bytes(name: str) -> bytes:
     try:
         info = os.stat(name)
         # Reading a FIFO or device could block for ever or never end.
@@ -63,21 +98,20 @@ def read_design(path: str | os.PathLike) -> Design:
         raise DesignFileError(name, None, "the file name contains a NUL character") from None
     if len(raw) > MAX_FILE_BYTES:
         raise DesignFileError(name, None, _too_large())
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as err:
-        line = raw.count(b"\n", 0, err.start) + 1
-        bad = raw[err.start:err.start + 1].hex()
-        raise DesignFileError(name, line, f"is not valid UTF-8 text (byte 0x{bad})") from None
-    return loads_design(text, name)
+    return raw
 
 
 def _too_large() -> str:
-    return f"is larger than {MAX_FILE_BYTES // 1024} KiB; a design file is a few kilobytes"
+    return f"is larger than {MAX_FILE_BYTES // 1024} KiB, far more than any design and its history"
 
 
 def loads_design(text: str, path: str = "<string>") -> Design:
     """The Design in TOML ``text``; ``path`` names it in error messages."""
+    return loads_document(text, path)[0]
+
+
+def loads_document(text: str, path: str = "<string>") -> tuple:
+    """(Design, history entries) from TOML ``text``; ``path`` names it in errors."""
     if len(text) > MAX_FILE_BYTES:
         raise DesignFileError(path, None, _too_large())
     if text.startswith(_BOM):
@@ -97,7 +131,8 @@ def loads_design(text: str, path: str = "<string>") -> Design:
         long_number = _LONG_NUMBER.search(text)
         line = text.count("\n", 0, long_number.start()) + 1 if long_number else None
         raise DesignFileError(path, line, "not valid TOML: a number has too many digits") from None
-    return design_from_dict(data, path)
+    history = history_from_list(data.pop("history"), path) if "history" in data else []
+    return design_from_dict(data, path), history
 
 
 def _decode_error(path: str, err: tomllib.TOMLDecodeError) -> DesignFileError:
@@ -119,3 +154,40 @@ def _decode_error(path: str, err: tomllib.TOMLDecodeError) -> DesignFileError:
 def dumps_design(design: Design) -> str:
     """``design`` as the TOML text of a design file."""
     return tomli_w.dumps(design_to_dict(design))
+
+
+def dumps_document(design: Design, entry_texts: list) -> str:
+    """The design followed by its history, given each entry's TOML text."""
+    return dumps_design(design) + "".join("\n" + t for t in entry_texts)
+
+
+def comment_lines(text: str) -> tuple:
+    """Line numbers (from 1) that carry a ``#`` comment outside any string.
+
+    A rewrite cannot keep them, so callers warn before a save would drop them.
+    """
+    lines, line, i, n = [], 1, 0, len(text)
+    while i < n:
+        ch = text[i]
+        if ch == "\n":
+            line += 1
+        elif ch == "#":
+            lines.append(line)
+            end = text.find("\n", i)
+            i = n if end < 0 else end
+            continue
+        elif ch in "\"'":
+            quote = text[i : i + 3] if text[i : i + 3] in ('"""', "'''") else ch
+            j = i + len(quote)
+            while j < n and text.startswith(quote, j) is False:
+                if text[j] == "\\" and quote[0] == '"':
+                    j += 1
+                elif text[j] == "\n":
+                    if len(quote) == 1:
+                        break  # an unterminated one-line string: the parser will object
+                    line += 1
+                j += 1
+            i = j + len(quote)
+            continue
+        i += 1
+    return tuple(dict.fromkeys(lines))

@@ -10,6 +10,7 @@ import argparse
 import json
 import sys
 
+from model.design import TOPOLOGIES
 from model.errors import StageledgerError
 
 
@@ -24,7 +25,55 @@ def _parser() -> argparse.ArgumentParser:
     rep = sub.add_parser("report", help="print every figure of a design")
     rep.add_argument("file", help="design file (TOML)")
     rep.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
+
+    new = sub.add_parser("new", help="create a design file from defaults or from another design")
+    new.add_argument("file")
+    new.add_argument("--topology", choices=TOPOLOGIES)
+    new.add_argument("--from", dest="origin", metavar="OTHER", help="copy this design (FILE or FILE@N)")
+
+    st = sub.add_parser("set", help="apply a what-if change, log it with its consequences and save")
+    st.add_argument("file")
+    st.add_argument("assignments", nargs="+", metavar="KEY=VALUE", help="for example stage.rc=10k")
+    st.add_argument("--note", default="", help="why, in a few words")
+    st.add_argument("--dry-run", action="store_true", help="show the consequences without saving")
+    st.add_argument("--drop-comments", action="store_true", help="allow the save to drop # comments")
+
+    for name, text in (("undo", "reverse the last change (logged as a new entry)"),
+                       ("redo", "re-apply the last undone change (logged as a new entry)")):
+        rev = sub.add_parser(name, help=text)
+        rev.add_argument("file")
+        rev.add_argument("--note", default="")
+        rev.add_argument("--drop-comments", action="store_true")
+
+    hist = sub.add_parser("history", help="print the change log")
+    hist.add_argument("file")
+    hist.add_argument("--json", action="store_true")
+
+    diff = sub.add_parser("diff", help="parameter and figure differences between two designs")
+    diff.add_argument("a", help="FILE or FILE@N (the design after history entry N)")
+    diff.add_argument("b", help="FILE or FILE@N")
     return p
+
+
+def _dispatch(args) -> int:
+    from . import commands
+
+    if args.command == "report":
+        return _report(args.file, args.json)
+    if args.command == "new":
+        return commands.cmd_new(args.file, args.topology, args.origin)
+    if args.command == "set":
+        return commands.cmd_set(args.file, args.assignments, args.note, args.dry_run, args.drop_comments)
+    if args.command in ("undo", "redo"):
+        return commands.cmd_reverse(args.file, args.command, args.note, args.drop_comments)
+    if args.command == "history":
+        return commands.cmd_history(args.file, args.json)
+    if args.command == "diff":
+        return commands.cmd_diff(args.a, args.b)
+    # No command yet opens the workbench; until it exists, show the demo's report.
+    from .bundled import default_demo
+
+    return _report(str(default_demo()), False)
 
 
 def _report(path: str, as_json: bool) -> int:
@@ -43,12 +92,7 @@ def _report(path: str, as_json: bool) -> int:
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
-        if args.command == "report":
-            return _report(args.file, args.json)
-        # No command yet opens the workbench; until it exists, show the demo's report.
-        from .bundled import default_demo
-
-        return _report(str(default_demo()), False)
+        return _dispatch(args)
     except StageledgerError as exc:
         print(f"stageledger: {exc}", file=sys.stderr)
         return 2

@@ -1,0 +1,175 @@
+"""History entries to and from the ``[[history]]`` tables of a design file.
+
+The layout is meant to be read by a person following the story of a design::
+
+    [[history]]
+    entry = 2
+    time = 2026-12-01 20:31:00+00:00
+    action = "set"
+    note = "more gain for the quieter sensor"
+    changes = [
+        { key = "stage.rc", old = 6800.0, new = 10000.0 },
+    ]
+    raised = ["HEADROOM-SHORT"]
+
+    [history.before]
+    ic = 0.000408
+    ...
+    [history.after]
+    ...
+
+Reading validates every field, so a hand-edited or damaged history is
+refused with the entry and field named, never half-loaded.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+
+import tomli_w
+
+from .design import design_from_dict
+from .errors import DesignError
+from .ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
+
+_ENTRY_KEYS = ("entry", "time", "action", "from", "reverses", "note", "changes", "raised",
+               "cleared", "before", "after", "design")
+
+
+def entry_to_dict(e: Entry) -> dict:
+    d: dict = {"entry": e.number, "time": e.time, "action": e.action}
+    if e.origin:
+        d["from"] = e.origin
+    if e.reverses is not None:
+        d["reverses"] = e.reverses
+    if e.note:
+        d["note"] = e.note
+    if e.changes:
+        d["changes"] = [{"key": c.key, "old": c.old, "new": c.new} for c in e.changes]
+    if e.raised:
+        d["raised"] = list(e.raised)
+    if e.cleared:
+        d["cleared"] = list(e.cleared)
+    if e.before:
+        d["before"] = dict(e.before)
+    d["after"] = dict(e.after)
+    if e.snapshot is not None:
+        d["design"] = e.snapshot
+    return d
+
+
+def entry_text(e: Entry) -> str:
+    """The TOML of one entry; entries never change, so callers may cache it."""
+    return tomli_w.dumps({"history": [entry_to_dict(e)]})
+
+
+def history_from_list(items: object, path: str | None = None) -> list:
+    """Validated entries from the parsed ``history`` array."""
+    try:
+        return _history(items)
+    except DesignError as err:
+        raise (err.in_file(path) if path else err) from None
+
+
+def _history(items: object) -> list:
+    if not isinstance(items, list):
+        raise DesignError("history", _short(items), "must be an array of [[history]] tables")
+    out: list = []
+    for i, item in enumerate(items, start=1):
+        out.append(_entry(item, i, out))
+    return out
+
+
+def _entry(item: object, number: int, earlier: list) -> Entry:
+    where = f"history[{number}]"
+    if not isinstance(item, dict):
+        raise DesignError(where, _short(item), "must be a table")
+    for key in item:
+        if key not in _ENTRY_KEYS:
+            raise DesignError(f"{where}.{key}", _short(item[key]),
+                              f"is not a history key; expected {', '.join(_ENTRY_KEYS)}")
+    if item.get("entry") != number or type(item.get("entry")) is not int:
+        raise DesignError(f"{where}.entry", _short(item.get("entry")), f"must be {number}: entries count up from 1")
+    time = item.get("time")
+    if not isinstance(time, _dt.datetime) or time.utcoffset() is None:
+        raise DesignError(f"{where}.time", _short(time), "must be a date and time with its UTC offset")
+    action = item.get("action")
+    if action not in ACTIONS or (action == START) != (number == 1):
+        rule = "must be 'start'" if number == 1 else f"must be one of {', '.join(ACTIONS[1:])}"
+        raise DesignError(f"{where}.action", _short(action), rule)
+    reverses = item.get("reverses")
+    if action in (UNDO, REDO):
+        if type(reverses) is not int or not 1 <= reverses < number:
+            raise DesignError(f"{where}.reverses", _short(reverses), "must name an earlier entry")
+        wanted = (UNDO,) if action == REDO else tuple(a for a in ACTIONS if a not in (START, UNDO))
+        if earlier[reverses - 1].action not in wanted:
+            raise DesignError(f"{where}.reverses", reverses, f"must name an entry of kind {' or '.join(wanted)}")
+    elif reverses is not None:
+        raise DesignError(f"{where}.reverses", _short(reverses), "belongs only to undo and redo entries")
+    snapshot = item.get("design")
+    if action == START:
+        if not isinstance(snapshot, dict):
+            raise DesignError(f"{where}.design", _short(snapshot), "a start entry must hold the whole design")
+        design_from_dict({"format": 1, **snapshot})  # validates the snapshot
+    elif snapshot is not None:
+        raise DesignError(f"{where}.design", "...", "only the start entry holds a design snapshot")
+    return Entry(
+        number=number, time=time.astimezone(_dt.timezone.utc), action=action,
+        changes=_changes(item.get("changes", []), where),
+        note=_text(item.get("note", ""), f"{where}.note"),
+        before=_figures(item.get("before", {}), f"{where}.before"),
+        after=_figures(item.get("after", {}), f"{where}.after"),
+        raised=_codes(item.get("raised", []), f"{where}.raised"),
+        cleared=_codes(item.get("cleared", []), f"{where}.cleared"),
+        reverses=reverses,
+        origin=_text(item["from"], f"{where}.from") if "from" in item else None,
+        snapshot=snapshot,
+    )
+
+
+def _changes(items, where) -> tuple:
+    if not isinstance(items, list):
+        raise DesignError(f"{where}.changes", _short(items), "must be an array of {key, old, new} tables")
+    out = []
+    for k, c in enumerate(items, start=1):
+        here = f"{where}.changes[{k}]"
+        if not isinstance(c, dict) or set(c) != {"key", "old", "new"}:
+            raise DesignError(here, _short(c), "must be a table with exactly key, old and new")
+        if not isinstance(c["key"], str):
+            raise DesignError(f"{here}.key", _short(c["key"]), "must be a design key such as stage.rc")
+        for side in ("old", "new"):
+            if not isinstance(c[side], (int, float, str)) or isinstance(c[side], bool):
+                raise DesignError(f"{here}.{side}", _short(c[side]), "must be a number or text")
+        out.append(Change(c["key"], c["old"], c["new"]))
+    return tuple(out)
+
+
+def _figures(table, where) -> dict:
+    if not isinstance(table, dict):
+        raise DesignError(where, _short(table), "must be a table of figures")
+    for key, value in table.items():
+        if key not in HEADLINE:
+            raise DesignError(f"{where}.{key}", _short(value), f"is not a recorded figure; expected {', '.join(HEADLINE)}")
+        ok = isinstance(value, str) if key == "region" else (
+            isinstance(value, (int, float)) and not isinstance(value, bool) and not math.isnan(value))
+        if not ok:
+            raise DesignError(f"{where}.{key}", _short(value), "must be a number" if key != "region" else "must be text")
+    return dict(table)
+
+
+def _codes(items, where) -> tuple:
+    if not isinstance(items, list) or not all(isinstance(c, str) for c in items):
+        raise DesignError(where, _short(items), "must be an array of warning codes")
+    return tuple(items)
+
+
+def _text(value, where) -> str:
+    if not isinstance(value, str):
+        raise DesignError(where, _short(value), "must be text")
+    return value
+
+
+def _short(value: object) -> object:
+    text = repr(value)
+    return value if len(text) <= 60 else text[:57] + "..."

@@ -1,0 +1,163 @@
+"""The ledger: every committed change to a design, with its consequences.
+
+The history is append-only.  Undo and redo are new entries that point at the
+entry they reverse, so nothing is ever deleted or rewritten.  The first entry
+(``start``) holds a full snapshot of the design; every later entry holds only
+the keys it changed (old and new values), so the design as it stood after any
+entry is the start snapshot with the changes replayed in order.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from dataclasses import dataclass, field
+
+from .analysis import Figures
+from .design import Design, design_from_dict, design_to_dict, get_value, with_values
+from .errors import DesignError, StageledgerError
+
+#: Entry kinds, in the words the file uses.
+START, SET, UNDO, REDO, HAND_EDIT = "start", "set", "undo", "redo", "hand-edit"
+ACTIONS = (START, SET, UNDO, REDO, HAND_EDIT)
+
+#: The figures every entry records before and after its change.
+HEADLINE = ("ic", "vce", "region", "av_loaded", "av_source", "rin", "rout", "swing_up",
+            "swing_down", "thd", "p_transistor", "p_supply", "tj")
+
+
+@dataclass(frozen=True)
+class Change:
+    """One key's step: ``key`` is "table.key" (or "name"/"notes")."""
+
+    key: str
+    old: object
+    new: object
+
+
+@dataclass(frozen=True)
+class Entry:
+    """One history entry.
+
+    ``time`` is a timezone-aware UTC datetime; ``before``/``after`` map each
+    HEADLINE figure to its value (``before`` is empty for a start entry);
+    ``raised``/``cleared`` are warning codes; ``snapshot`` is the full design
+    table dict of a start entry; ``reverses`` the entry an undo or redo reverses.
+    """
+
+    number: int
+    time: _dt.datetime
+    action: str
+    changes: tuple = ()
+    note: str = ""
+    before: dict = field(default_factory=dict)
+    after: dict = field(default_factory=dict)
+    raised: tuple = ()
+    cleared: tuple = ()
+    reverses: int | None = None
+    origin: str | None = None
+    snapshot: dict | None = None
+
+
+def headline(fig: Figures) -> dict:
+    """The HEADLINE figures of an analysis, to six significant figures: the
+    ledger is read by people, and the design itself can always be re-analysed."""
+    return {k: _sig(getattr(fig, k)) for k in HEADLINE}
+
+
+def _sig(value, digits: int = 6):
+    if isinstance(value, float) and math.isfinite(value) and value != 0.0:
+        return float(f"{value:.{digits}g}")
+    return value
+
+
+def warning_codes(fig: Figures) -> tuple:
+    return tuple(dict.fromkeys(w.code for w in fig.warnings))
+
+
+def now() -> _dt.datetime:
+    # Whole seconds: the file is for people, and TOML round-trips them exactly.
+    return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0)
+
+
+def changes_between(old: Design, new: Design) -> tuple:
+    """Every key whose value differs between two designs of one topology."""
+    a, b = _flat(design_to_dict(old)), _flat(design_to_dict(new))
+    return tuple(Change(k, a.get(k), b.get(k)) for k in b if a.get(k) != b.get(k))
+
+
+def _flat(data: dict) -> dict:
+    out = {}
+    for k, v in data.items():
+        if isinstance(v, dict):
+            out.update({f"{k}.{kk}": vv for kk, vv in v.items()})
+        elif k != "format":
+            out[k] = v
+    return out
+
+
+def start_entry(design: Design, fig: Figures, *, origin: str | None = None, note: str = "") -> Entry:
+    snapshot = {k: v for k, v in design_to_dict(design).items() if k != "format"}
+    return Entry(1, now(), START, note=note, after=headline(fig), raised=warning_codes(fig),
+                 origin=origin, snapshot=snapshot)
+
+
+def change_entry(number: int, action: str, changes: tuple, before: Figures, after: Figures, *,
+                 note: str = "", reverses: int | None = None) -> Entry:
+    old, new = set(warning_codes(before)), set(warning_codes(after))
+    return Entry(number, now(), action, changes=changes, note=note, before=headline(before),
+                 after=headline(after), raised=tuple(c for c in warning_codes(after) if c not in old),
+                 cleared=tuple(c for c in warning_codes(before) if c not in new), reverses=reverses)
+
+
+def apply(design: Design, changes: tuple) -> Design:
+    """``design`` with each change's new value."""
+    return with_values(design, {c.key: c.new for c in changes})
+
+
+def inverse(changes: tuple) -> tuple:
+    return tuple(Change(c.key, c.new, c.old) for c in changes)
+
+
+def replay(history: list, upto: int | None = None) -> Design:
+    """The design as it stood after entry ``upto`` (the last entry by default)."""
+    if not history or history[0].action != START:
+        raise StageledgerError("the history has no start entry to replay from")
+    last = len(history) if upto is None else upto
+    if not 1 <= last <= len(history):
+        raise StageledgerError(f"there is no history entry {upto}; entries run from 1 to {len(history)}")
+    design = design_from_dict({"format": 1, **history[0].snapshot})
+    for entry in history[1:last]:
+        design = apply(design, entry.changes)
+    return design
+
+
+def stacks(history: list) -> tuple[list, list]:
+    """(undoable, redoable) entry numbers, most recent last, derived from the history.
+
+    A set or hand edit can be undone; an undo can be redone until the next new
+    change; a redo can be undone again.
+    """
+    undoable, redoable = [], []
+    for e in history:
+        if e.action in (SET, HAND_EDIT):
+            undoable.append(e.number)
+            redoable.clear()
+        elif e.action == UNDO:
+            if undoable and undoable[-1] == e.reverses:
+                undoable.pop()
+            redoable.append(e.number)
+        elif e.action == REDO:
+            if redoable and redoable[-1] == e.reverses:
+                redoable.pop()
+            undoable.append(e.number)
+    return undoable, redoable
+
+
+def check_changes_apply(design: Design, changes: tuple) -> None:
+    """Refuse to reverse a change whose new values the design no longer holds."""
+    for c in changes:
+        current = get_value(design, c.key)
+        current = "open" if current == math.inf else current
+        if current != c.old:
+            raise DesignError(c.key, current, f"no longer holds {c.old!r}; cannot reverse that entry")

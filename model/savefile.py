@@ -1,0 +1,213 @@
+"""Saving a design file safely, and letting only one writer at a time.
+
+The promise: a user who loses the link, is killed or fills the disk loses at
+most the change in flight, and a file that was changed by someone else since
+it was read is never overwritten.
+
+* A save writes a temporary file beside the target (same directory, so the
+  rename cannot cross file systems), fsyncs it, renames it over the target
+  with ``os.replace`` and then fsyncs the directory, because a rename is not
+  durable until its directory is.  Only then is the change reported saved.
+* Any OSError means "not saved": the temporary file is removed and the
+  original is untouched.  A failed fsync is never retried on the same
+  descriptor (Linux may report success the second time after losing the
+  data); the next save writes a fresh temporary file.
+* One writer: an exclusive ``flock`` on a sidecar ``<file>.lock``, never on
+  the data file itself, whose inode each save replaces.  The kernel drops the
+  lock when its holder dies, so a killed process leaves no stale lock.
+"""
+
+from __future__ import annotations
+
+import errno
+import fcntl
+import hashlib
+import json
+import os
+import secrets
+import socket
+import time
+from dataclasses import dataclass
+
+from .errors import StageledgerError
+
+
+class SaveError(StageledgerError):
+    """A save that did not happen; the file on disk is as it was."""
+
+    def __init__(self, path: str, reason: str):
+        self.path = path
+        self.reason = reason
+        super().__init__(f"{path}: not saved: {reason}")
+
+
+class LockHeld(StageledgerError):
+    """Another process is editing the design."""
+
+    def __init__(self, path: str, holder: dict):
+        self.path = path
+        self.holder = holder
+        who = f"pid {holder.get('pid', '?')} on {holder.get('host', '?')}"
+        since = holder.get("since")
+        when = f" since {since}" if since else ""
+        super().__init__(f"{path}: being edited by {who}{when}; open it read-only, or wait")
+
+
+@dataclass(frozen=True)
+class Fingerprint:
+    """What a file was when it was read: size (bytes), mtime (ns) and SHA-256."""
+
+    size: int
+    mtime_ns: int
+    sha256: str
+
+    @staticmethod
+    def of(path: str, data: bytes) -> "Fingerprint":
+        info = os.stat(path)
+        return Fingerprint(len(data), info.st_mtime_ns, hashlib.sha256(data).hexdigest())
+
+
+def _reason(err: OSError) -> str:
+    names = {
+        errno.ENOSPC: "the disk is full",
+        errno.EDQUOT: "the disk quota is exhausted",
+        errno.EROFS: "the file system is read-only",
+        errno.EACCES: "permission denied",
+        errno.EPERM: "permission denied",
+        errno.EIO: "an input/output error",
+        errno.ENOENT: "the folder no longer exists",
+    }
+    return names.get(err.errno) or (err.strerror or "unknown error").lower()
+
+
+def unchanged_since(path: str, seen: Fingerprint | None) -> bool:
+    """Whether ``path`` is still what ``seen`` describes (absent if ``seen`` is None)."""
+    try:
+        with open(path, "rb") as handle:
+            data = handle.read()
+    except FileNotFoundError:
+        return seen is None
+    if seen is None:
+        return False
+    # The hash decides; size and mtime only make the common case cheap to explain.
+    return len(data) == seen.size and hashlib.sha256(data).hexdigest() == seen.sha256
+
+
+def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bool = False) -> Fingerprint:
+    """Replace ``path`` with ``data`` durably; returns the new fingerprint.
+
+    ``seen`` is the fingerprint taken when the file was read; if the file has
+    changed since, nothing is written.  With ``create`` the file must not
+    exist yet.  Raises SaveError, leaving the original byte-identical.
+    """
+    folder = os.path.dirname(os.path.abspath(path))
+    if create:
+        if os.path.lexists(path):
+            raise SaveError(path, "the file already exists; choose another name")
+    elif not unchanged_since(path, seen):
+        raise SaveError(path, "the file changed on disk since it was read; "
+                              "reload it, or save your change to another file")
+    try:
+        mode = os.stat(path).st_mode & 0o7777
+    except FileNotFoundError:
+        mode = 0o666
+    tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.{secrets.token_hex(4)}.tmp")
+    fd = None
+    try:
+        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
+        view = memoryview(data)
+        while view:
+            written = os.write(fd, view)
+            view = view[written:]
+        os.fsync(fd)
+        os.close(fd)
+        fd = None
+        if create and os.path.lexists(path):
+            raise SaveError(path, "the file appeared while saving; choose another name")
+        os.replace(tmp, path)
+        tmp = None
+        _fsync_dir(folder)
+    except OSError as err:
+        raise SaveError(path, _reason(err)) from None
+    finally:
+        if fd is not None:
+            try:
+                os.close(fd)
+            except OSError:
+                pass
+        if tmp is not None:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+    return Fingerprint.of(path, data)
+
+
+def _fsync_dir(folder: str) -> None:
+    fd = os.open(folder, os.O_RDONLY | os.O_DIRECTORY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def lock_path(path: str) -> str:
+    return os.fspath(path) + ".lock"
+
+
+class DesignLock:
+    """An exclusive edit lock on a design file (a context manager).
+
+    The sidecar lock file holds the holder's pid, host and start time so a
+    second instance can say who has the design.  It is never deleted:
+    deleting it would let two writers lock two different inodes.
+    """
+
+    def __init__(self, path: str):
+        self.path = os.fspath(path)
+        self._fd: int | None = None
+
+    def acquire(self) -> "DesignLock":
+        name = lock_path(self.path)
+        try:
+            fd = os.open(name, os.O_RDWR | os.O_CREAT, 0o666)
+        except OSError as err:
+            raise SaveError(self.path, f"cannot create the lock file {name}: {_reason(err)}") from None
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            holder = _read_holder(fd)
+            os.close(fd)
+            raise LockHeld(self.path, holder) from None
+        except OSError as err:
+            os.close(fd)
+            raise SaveError(self.path, f"cannot lock {name}: {_reason(err)}") from None
+        stamp = json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
+                            "since": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())})
+        try:
+            os.ftruncate(fd, 0)
+            os.pwrite(fd, stamp.encode() + b"\n", 0)
+        except OSError:
+            pass  # who holds the lock is a courtesy; the flock itself is what protects
+        self._fd = fd
+        return self
+
+    def release(self) -> None:
+        if self._fd is not None:
+            os.close(self._fd)  # closing the descriptor drops the flock
+            self._fd = None
+
+    def __enter__(self) -> "DesignLock":
+        return self.acquire()
+
+    def __exit__(self, *exc) -> None:
+        self.release()
+
+
+def _read_holder(fd: int) -> dict:
+    try:
+        text = os.pread(fd, 4096, 0).decode("utf-8", "replace").strip()
+        holder = json.loads(text) if text else {}
+        return holder if isinstance(holder, dict) else {}
+    except (OSError, ValueError):
+        return {}

@@ -1,0 +1,190 @@
+"""An open design file being tuned: the current design, its history, and safe saves.
+
+Both the command line and the workbench screen commit changes through a
+:class:`DesignSession`, so the ledger and the saving rules live in one place.
+A commit is reported only after the file is durably on disk; if the save
+fails, the session is left exactly as it was before the commit.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+
+from . import ledger
+from .analysis import Figures, analyse
+from .design import Design, design_from_dict, with_values
+from .designfile import Document, dumps_document, read_document
+from .errors import StageledgerError
+from .historyfile import entry_text
+from .ledger import Entry
+from .savefile import DesignLock, atomic_write
+
+
+class CommentsWouldBeLost(StageledgerError):
+    """The file has hand-written comments that a rewrite would drop."""
+
+    def __init__(self, path: str, lines: tuple):
+        self.lines = lines
+        shown = ", ".join(str(n) for n in lines[:8]) + (" …" if len(lines) > 8 else "")
+        super().__init__(
+            f"{path}: has hand-written comments (line {shown}) that saving would drop; "
+            "move them into the notes field, or allow dropping them"
+        )
+
+
+@dataclass(frozen=True)
+class Preview:
+    """What a candidate change would do, before it is committed."""
+
+    design: Design
+    changes: tuple
+    before: Figures
+    after: Figures
+
+
+class DesignSession:
+    """One design file opened for tuning.
+
+    Parameters
+    ----------
+    path : the design file.
+    lock : take the single-writer lock (False opens read-only).
+    drop_comments : allow a save to drop hand-written ``#`` comments.
+    """
+
+    def __init__(self, path: str, *, lock: bool = True, drop_comments: bool = False):
+        self.path = os.fspath(path)
+        self._lock = DesignLock(self.path).acquire() if lock else None
+        try:
+            doc = read_document(self.path)
+        except BaseException:
+            self.close()
+            raise
+        self.read_only = not lock
+        self.drop_comments = drop_comments
+        self._load(doc)
+
+    def _load(self, doc: Document) -> None:
+        self.design = doc.design
+        self.history = list(doc.history)
+        self._texts = [entry_text(e) for e in self.history]
+        self.fingerprint = doc.fingerprint
+        self.comment_lines = doc.comment_lines
+        self.figures = analyse(self.design)
+        self.hand_edits = self._hand_edits()
+
+    def _hand_edits(self) -> tuple:
+        """Changes made to the file by hand since its last logged entry."""
+        if not self.history:
+            return ()
+        return ledger.changes_between(ledger.replay(self.history), self.design)
+
+    def close(self) -> None:
+        if self._lock is not None:
+            self._lock.release()
+            self._lock = None
+
+    def __enter__(self) -> "DesignSession":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- what-if ---------------------------------------------------------------
+
+    def preview(self, values: dict) -> Preview:
+        """The consequences of setting ``values`` ("table.key" → number or text)."""
+        design = with_values(self.design, values)
+        changes = ledger.changes_between(self.design, design)
+        return Preview(design, changes, self.figures, analyse(design))
+
+    def commit(self, values: dict, note: str = "") -> Entry:
+        """Apply ``values``, log the change and save; returns the new entry."""
+        p = self.preview(values)
+        if not p.changes:
+            raise StageledgerError("nothing to commit: every value is already as given")
+        return self._commit(ledger.SET, p.design, p.changes, p.after, note, None)
+
+    def undo(self, note: str = "") -> Entry:
+        undoable, _ = ledger.stacks(self._pending_history())
+        if not undoable:
+            raise StageledgerError("nothing to undo")
+        return self._reverse(undoable[-1], ledger.UNDO, note)
+
+    def redo(self, note: str = "") -> Entry:
+        _, redoable = ledger.stacks(self._pending_history())
+        if not redoable:
+            raise StageledgerError("nothing to redo")
+        return self._reverse(redoable[-1], ledger.REDO, note)
+
+    def _reverse(self, target: int, action: str, note: str) -> Entry:
+        changes = ledger.inverse(self._pending_history()[target - 1].changes)
+        ledger.check_changes_apply(self.design, changes)
+        design = ledger.apply(self.design, changes)
+        return self._commit(action, design, changes, analyse(design), note, target)
+
+    # -- logging and saving -----------------------------------------------------
+
+    def _prefix(self) -> list:
+        """Entries owed before the next one: a start entry for a file never
+        logged, or a hand-edit entry for changes made outside the tool."""
+        if not self.history:
+            return [ledger.start_entry(self.design, self.figures)]
+        if self.hand_edits:
+            logged = ledger.replay(self.history)
+            return [ledger.change_entry(len(self.history) + 1, ledger.HAND_EDIT, self.hand_edits,
+                                        analyse(logged), self.figures,
+                                        note="changed in the file outside stageledger")]
+        return []
+
+    def _pending_history(self) -> list:
+        return self.history + self._prefix()
+
+    def _commit(self, action, design, changes, after, note, reverses) -> Entry:
+        if self.read_only:
+            raise StageledgerError(f"{self.path}: opened read-only; nothing was saved")
+        if self.comment_lines and not self.drop_comments:
+            raise CommentsWouldBeLost(self.path, self.comment_lines)
+        prefix = self._prefix()
+        number = len(self.history) + len(prefix) + 1
+        entry = ledger.change_entry(number, action, changes, self.figures, after,
+                                    note=note, reverses=reverses)
+        added = prefix + [entry]
+        texts = self._texts + [entry_text(e) for e in added]
+        data = dumps_document(design, texts).encode("utf-8")
+        self.fingerprint = atomic_write(self.path, data, self.fingerprint)
+        # Only now, with the file durably saved, does the session move on.
+        self.design, self.figures = design, after
+        self.history += added
+        self._texts = texts
+        self.comment_lines = ()
+        self.hand_edits = ()
+        return entry
+
+
+def create(path: str, design: Design, *, origin: str | None = None, note: str = "") -> Entry:
+    """Write a new design file holding ``design`` and its start entry.
+
+    Refuses to overwrite an existing file.
+    """
+    entry = ledger.start_entry(design, analyse(design), origin=origin, note=note)
+    data = dumps_document(design, [entry_text(entry)]).encode("utf-8")
+    with DesignLock(path):
+        atomic_write(path, data, None, create=True)
+    return entry
+
+
+def design_at(spec: str) -> tuple:
+    """(Design, label) for ``FILE`` or ``FILE@N`` (the design after history entry N)."""
+    path, _, number = spec.rpartition("@")
+    if path and number.isdigit() and not os.path.exists(spec):
+        doc = read_document(path)
+        if not doc.history:
+            raise StageledgerError(f"{path}: has no history, so there is no entry {number}")
+        return ledger.replay(doc.history, int(number)), spec
+    return read_document(spec).design, spec
+
+
+def snapshot_design(entry: Entry) -> Design:
+    return design_from_dict({"format": 1, **entry.snapshot})

@@ -1,0 +1,121 @@
+"""The ledger commands: new, set, undo, redo, history and diff.
+
+Each prints a clear result and returns 0; a StageledgerError raised here
+becomes one line on stderr and exit status 2 in :mod:`tui.cli`.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+from model import analyse
+from model.design import TOPOLOGIES, default_design
+from model.errors import StageledgerError
+from model.historyfile import entry_to_dict
+from model.ledger import changes_between, headline, warning_codes
+from model.session import DesignSession, create, design_at
+
+from .consequences import render_changes, render_consequences, render_entry
+
+
+def parse_assignments(items: list) -> dict:
+    """``["stage.rc=10k", ...]`` → ``{"stage.rc": "10k"}``; bad items are refused."""
+    values = {}
+    for item in items:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            raise StageledgerError(f"{item!r}: expected KEY=VALUE, for example stage.rc=10k")
+        values[key.strip()] = value.strip()
+    return values
+
+
+def cmd_new(path: str, topology: str | None, origin: str | None) -> int:
+    if origin:
+        design, label = design_at(origin)
+        if topology and topology != design.topology:
+            raise StageledgerError(f"--topology {topology} conflicts with {origin}, a {design.topology} design")
+    else:
+        design, label = default_design(topology or TOPOLOGIES[0]), None
+    create(path, design, origin=label)
+    print(f"created {path}: a {design.topology} design" + (f" from {label}" if label else " from defaults"))
+    return 0
+
+
+def cmd_set(path: str, items: list, note: str, dry_run: bool, drop_comments: bool) -> int:
+    values = parse_assignments(items)
+    if dry_run:
+        with DesignSession(path, lock=False) as s:
+            p = s.preview(values)
+            lines = ["preview (not saved):", *render_changes(p.changes)]
+            before, after = headline(p.before), headline(p.after)
+            old, new = set(warning_codes(p.before)), set(warning_codes(p.after))
+            lines += render_consequences(before, after, sorted(new - old), sorted(old - new))
+        print("\n".join(lines))
+        return 0
+    with DesignSession(path, drop_comments=drop_comments) as s:
+        entry = s.commit(values, note)
+    _print_entry(path, entry)
+    return 0
+
+
+def cmd_reverse(path: str, which: str, note: str, drop_comments: bool) -> int:
+    with DesignSession(path, drop_comments=drop_comments) as s:
+        entry = s.undo(note) if which == "undo" else s.redo(note)
+    _print_entry(path, entry)
+    return 0
+
+
+def _print_entry(path: str, entry) -> None:
+    print("\n".join(render_entry(entry)))
+    print(f"saved {path} (entry {entry.number})")
+
+
+def cmd_history(path: str, as_json: bool) -> int:
+    with DesignSession(path, lock=False) as s:
+        history, hand = s.history, s.hand_edits
+    if as_json:
+        items = []
+        for e in history:
+            d = entry_to_dict(e)
+            d["time"] = e.time.isoformat().replace("+00:00", "Z")
+            items.append(d)
+        data = {"entries": items, "unlogged_hand_edits": [vars(c) for c in hand]}
+        print(json.dumps(_finite(data), indent=2, allow_nan=False))
+        return 0
+    if not history:
+        print(f"{path}: no history yet; the first change will start it")
+    for e in history:
+        print("\n".join(render_entry(e)))
+    if hand:
+        print("changed by hand since the last entry (logged with the next change):")
+        print("\n".join(render_changes(hand)))
+    return 0
+
+
+def _finite(value):
+    """JSON has no infinity: an unbounded figure (an open load's rout) becomes null."""
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def cmd_diff(a: str, b: str) -> int:
+    design_a, label_a = design_at(a)
+    design_b, label_b = design_at(b)
+    lines = [f"{label_a} → {label_b}"]
+    if design_a.topology != design_b.topology:
+        lines.append(f"  topology: {design_a.topology} → {design_b.topology}")
+        lines.append("  (different topologies: parameters are not compared key by key)")
+    else:
+        changes = changes_between(design_a, design_b)
+        lines += render_changes(changes) or ["  parameters: identical"]
+    fa, fb = analyse(design_a), analyse(design_b)
+    old, new = set(warning_codes(fa)), set(warning_codes(fb))
+    lines += render_consequences(headline(fa), headline(fb), sorted(new - old), sorted(old - new))
+    print("\n".join(lines))
+    return 0

@@ -1,0 +1,88 @@
+"""Plain-text tables of what a change did: figures before → after, and warnings."""
+
+from __future__ import annotations
+
+import math
+
+from model.design import FIELDS
+from model.ledger import HEADLINE, Entry
+from model.units import format_si
+
+#: How each headline figure is shown: (label, unit for format_si, or a special kind).
+_SHOW = {
+    "ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),
+    "av_loaded": ("av_loaded", "gain"), "av_source": ("av_source", "gain"),
+    "rin": ("rin", "Ω"), "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"),
+    "swing_down": ("swing_down", "V"), "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"),
+    "p_supply": ("p_supply", "W"), "tj": ("tj", "°C"),
+}
+
+
+def show_figure(key: str, value) -> str:
+    unit = _SHOW[key][1]
+    if value is None:
+        return "—"
+    if unit is None:
+        return str(value)
+    if unit == "gain":
+        return f"{value:+.4g} V/V"
+    if unit == "%":
+        return f"{100 * value:.3g} %"
+    if unit == "°C":
+        return f"{value:.1f} °C"
+    if isinstance(value, float) and math.isinf(value):
+        return f"∞ {unit}"
+    return format_si(value, unit)
+
+
+def show_value(key: str, value) -> str:
+    """A design value with its unit, e.g. ``stage.rc`` 6800 → "6.80 kΩ"."""
+    field = FIELDS.get(key)
+    if isinstance(value, str) or field is None or not field.unit or field.unit == "°C":
+        return f"{value:g} {field.unit}" if isinstance(value, float) and field and field.unit else str(value)
+    return format_si(value, field.unit)
+
+
+def relative_change(before, after, key: str = "") -> str:
+    """The change from ``before`` to ``after``: in dB for gains (so a larger
+    inverting gain reads as a gain, not a loss), else in per cent."""
+    if not all(isinstance(v, (int, float)) for v in (before, after)):
+        return "" if before == after else "changed"
+    if key in _SHOW and _SHOW[key][1] == "gain" and before and after:
+        return f"{20.0 * math.log10(abs(after) / abs(before)):+.2f} dB"
+    if before == after:
+        return "0 %"
+    if before == 0 or not (math.isfinite(before) and math.isfinite(after)):
+        return "—"
+    return f"{100.0 * (after - before) / abs(before):+.3g} %"
+
+
+def render_changes(changes) -> list:
+    return [f"  {c.key}: {show_value(c.key, c.old)} → {show_value(c.key, c.new)}" for c in changes]
+
+
+def render_consequences(before: dict, after: dict, raised, cleared) -> list:
+    rows = [f"  {'figure':<14}{'before':>16}{'after':>16}{'change':>12}"]
+    for key in HEADLINE:
+        if key not in after:
+            continue
+        b, a = before.get(key), after[key]
+        rows.append(f"  {_SHOW[key][0]:<14}{show_figure(key, b) if key in before else '':>16}"
+                    f"{show_figure(key, a):>16}{relative_change(b, a, key) if key in before else '':>12}")
+    rows.append(f"  warnings raised: {', '.join(raised) or 'none'}")
+    rows.append(f"  warnings cleared: {', '.join(cleared) or 'none'}")
+    return rows
+
+
+def render_entry(e: Entry) -> list:
+    head = f"#{e.number}  {e.time:%Y-%m-%d %H:%M:%S}Z  {e.action}"
+    if e.reverses is not None:
+        head += f" of #{e.reverses}"
+    if e.origin:
+        head += f" from {e.origin}"
+    rows = [head]
+    if e.note:
+        rows.append(f"  note: {e.note}")
+    rows += render_changes(e.changes)
+    rows += render_consequences(e.before, e.after, e.raised, e.cleared)
+    return rows
