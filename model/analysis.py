@@ -18,7 +18,8 @@ from .midband import decibels, device_small_signal, midband
 from .power import dissipation
 from .solve import operating_point
 from .topologies import TRANSISTOR, build, shape_of
-from .transfer import large_signal, region_of
+from .transfer import LargeSignal, region_of
+from .transfer import large_signal as _large_signal
 
 #: Design keys fed to the builders, as "table.key"; transistor.sign is derived.
 _KEYS = (
@@ -92,6 +93,8 @@ class Figures:
     ic_beta_double: float = 0.0
     kcl_residual: float = 0.0
     newton_iterations: int = 0
+    #: False when swing and distortion were not computed (they are NaN).
+    large_signal: bool = True
 
     def to_dict(self) -> dict:
         """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras."""
@@ -113,8 +116,13 @@ def _plain(v):
     return v
 
 
-def analyse(design: Design) -> Figures:
-    """Every figure of ``design``; raises SolveError if no operating point is found."""
+def analyse(design: Design, *, large_signal: bool = True) -> Figures:
+    """Every figure of ``design``; raises SolveError if no operating point is found.
+
+    With ``large_signal=False`` the swing and distortion figures are NaN and
+    the headroom warning is not judged: the quick figures a live readout shows
+    while the large-signal sweep runs elsewhere.
+    """
     t = design.transistor
     variants = [design, _with_beta(design, t.beta / 2.0), _with_beta(design, t.beta * 2.0)]
     stage = build(design.topology, design_values(variants))
@@ -122,7 +130,7 @@ def analyse(design: Design) -> Figures:
     if not op3.converged[0]:
         raise SolveError("the operating point did not converge",
                          f"KCL residual {op3.residual[0]:.1e} after {op3.iterations} iterations")
-    nominal = build(design.topology, design_values([design]))
+    nominal = replace(stage, net=stage.net.take(np.array([0])))
     op = op3.take(np.array([0]))
     dev = device_small_signal(op)
     mid = midband(nominal, op, np.array([design.source.rs]))
@@ -133,7 +141,8 @@ def analyse(design: Design) -> Figures:
     # plus room for the ~0.5 V base-emitter excursion that reaches cut-off.
     rs, rin = design.source.rs, float(mid.rin[0])
     span = 3.0 * design.supply.vcc / max(abs(float(mid.av_source[0])), 1e-6) + 1.0 * (1.0 + rs / rin)
-    big = large_signal(nominal, op, design.supply.vcc, design.source.vpk, span)
+    big = (_large_signal(nominal, op, design.supply.vcc, design.source.vpk, span) if large_signal
+           else LargeSignal(*(math.nan,) * 5, (math.nan, math.nan), np.zeros(0), np.zeros(0)))
     power = dissipation(nominal, op)
     p_q = float(power.p_transistor[0])
     tj = design.environment.ambient + p_q * t.theta_ja
@@ -162,6 +171,7 @@ def analyse(design: Design) -> Figures:
         hand=hand_estimate(design), warnings=warnings, p_resistors=p_res, vout_wanted=wanted,
         ic_beta_half=ic_half, ic_beta_double=ic_double,
         kcl_residual=float(op.residual[0]), newton_iterations=op3.iterations,
+        large_signal=large_signal,
     )
 
 

@@ -29,7 +29,7 @@ import math
 
 import tomli_w
 
-from .design import design_from_dict
+from .design import CE, check_value, design_from_dict, rule_for
 from .errors import DesignError
 from .ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
@@ -111,12 +111,18 @@ def _entry(item: object, number: int, earlier: list) -> Entry:
     if action == START:
         if not isinstance(snapshot, dict):
             raise DesignError(f"{where}.design", _short(snapshot), "a start entry must hold the whole design")
-        design_from_dict({"format": 1, **snapshot})  # validates the snapshot
+        try:
+            topology = design_from_dict({"format": 1, **snapshot}).topology  # validates the snapshot
+        except DesignError as err:
+            # Name the snapshot's key, not the design key of the same name above it.
+            raise DesignError(f"{where}.design.{err.field}", err.value, err.rule) from None
     elif snapshot is not None:
         raise DesignError(f"{where}.design", "...", "only the start entry holds a design snapshot")
+    else:
+        topology = check_value("topology", CE, earlier[0].snapshot.get("topology", CE))
     return Entry(
         number=number, time=time.astimezone(_dt.timezone.utc), action=action,
-        changes=_changes(item.get("changes", []), where),
+        changes=_changes(item.get("changes", []), where, topology),
         note=_text(item.get("note", ""), f"{where}.note"),
         before=_figures(item.get("before", {}), f"{where}.before"),
         after=_figures(item.get("after", {}), f"{where}.after"),
@@ -128,7 +134,7 @@ def _entry(item: object, number: int, earlier: list) -> Entry:
     )
 
 
-def _changes(items, where) -> tuple:
+def _changes(items, where, topology) -> tuple:
     if not isinstance(items, list):
         raise DesignError(f"{where}.changes", _short(items), "must be an array of {key, old, new} tables")
     out = []
@@ -138,9 +144,21 @@ def _changes(items, where) -> tuple:
             raise DesignError(here, _short(c), "must be a table with exactly key, old and new")
         if not isinstance(c["key"], str):
             raise DesignError(f"{here}.key", _short(c["key"]), "must be a design key such as stage.rc")
+        # Checked here, against the design's rules, so that a history that
+        # would not replay is refused with its entry named, not later by replay.
+        if c["key"] == "topology":
+            raise DesignError(f"{here}.key", c["key"], "cannot change; a new topology is a new design")
+        try:
+            rule_for(c["key"], topology)
+        except DesignError as err:
+            raise DesignError(f"{here}.key", _short(c["key"]), err.rule) from None
         for side in ("old", "new"):
             if not isinstance(c[side], (int, float, str)) or isinstance(c[side], bool):
                 raise DesignError(f"{here}.{side}", _short(c[side]), "must be a number or text")
+            try:
+                check_value(c["key"], topology, c[side])
+            except DesignError as err:
+                raise DesignError(f"{here}.{side}", err.value, err.rule) from None
         out.append(Change(c["key"], c["old"], c["new"]))
     return tuple(out)
 

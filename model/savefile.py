@@ -14,7 +14,8 @@ it was read is never overwritten.
   data); the next save writes a fresh temporary file.
 * One writer: an exclusive ``flock`` on a sidecar ``<file>.lock``, never on
   the data file itself, whose inode each save replaces.  The kernel drops the
-  lock when its holder dies, so a killed process leaves no stale lock.
+  lock when its holder dies, so a killed process leaves no stale lock; the
+  temporary it may leave is removed by the next writer to take the lock.
 """
 
 from __future__ import annotations
@@ -24,6 +25,7 @@ import fcntl
 import hashlib
 import json
 import os
+import re
 import secrets
 import socket
 import time
@@ -63,8 +65,11 @@ class Fingerprint:
 
     @staticmethod
     def of(path: str, data: bytes) -> "Fingerprint":
-        info = os.stat(path)
-        return Fingerprint(len(data), info.st_mtime_ns, hashlib.sha256(data).hexdigest())
+        try:
+            mtime = os.stat(path).st_mtime_ns
+        except OSError:
+            mtime = 0  # only the hash decides whether the file changed
+        return Fingerprint(len(data), mtime, hashlib.sha256(data).hexdigest())
 
 
 def _reason(err: OSError) -> str:
@@ -111,8 +116,8 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
         mode = os.stat(path).st_mode & 0o7777
     except FileNotFoundError:
         mode = 0o666
-    tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.{secrets.token_hex(4)}.tmp")
-    fd = None
+    tmp = _temp_name(path)
+    fd = backup = None
     try:
         fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
         view = memoryview(data)
@@ -120,13 +125,29 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
             written = os.write(fd, view)
             view = view[written:]
         os.fsync(fd)
-        os.close(fd)
-        fd = None
+        fd, closing = None, fd
+        os.close(closing)  # never closed twice, even if this raises
         if create and os.path.lexists(path):
             raise SaveError(path, "the file appeared while saving; choose another name")
+        if not create:
+            # A second name for the original, so that it can be put back if the
+            # rename cannot be made durable: a SaveError promises the file as it was.
+            backup = _temp_name(path)
+            try:
+                os.link(path, backup, follow_symlinks=False)
+            except OSError:
+                backup = None  # a file system without hard links: no way back, as before
         os.replace(tmp, path)
         tmp = None
-        _fsync_dir(folder)
+        try:
+            _fsync_dir(folder)
+        except OSError:
+            if create:
+                os.unlink(path)
+            elif backup is not None:
+                os.replace(backup, path)
+                backup = None
+            raise
     except OSError as err:
         raise SaveError(path, _reason(err)) from None
     finally:
@@ -135,12 +156,38 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
                 os.close(fd)
             except OSError:
                 pass
-        if tmp is not None:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
+        for leftover in (tmp, backup):
+            if leftover is not None:
+                try:
+                    os.unlink(leftover)
+                except OSError:
+                    pass
     return Fingerprint.of(path, data)
+
+
+def _temp_name(path: str) -> str:
+    folder, base = os.path.split(os.path.abspath(path))
+    return os.path.join(folder, f".{base}.{os.getpid()}.{secrets.token_hex(4)}.tmp")
+
+
+def _remove_stale_temps(path: str) -> None:
+    """Delete temporaries of ``path`` left by a writer killed mid-save.
+
+    Called with the edit lock held: every writer takes it, so no other save
+    of this file can be in progress and any temporary found is stale.
+    """
+    folder, base = os.path.split(os.path.abspath(path))
+    pattern = re.compile(rf"\.{re.escape(base)}\.\d+\.[0-9a-f]{{8}}\.tmp")
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return
+    for name in names:
+        if pattern.fullmatch(name):
+            try:
+                os.unlink(os.path.join(folder, name))
+            except OSError:
+                pass  # tidying up is a courtesy; the design file is never at stake
 
 
 def _fsync_dir(folder: str) -> None:
@@ -190,6 +237,7 @@ class DesignLock:
         except OSError:
             pass  # who holds the lock is a courtesy; the flock itself is what protects
         self._fd = fd
+        _remove_stale_temps(self.path)
         return self
 
     def release(self) -> None:

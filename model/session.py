@@ -55,15 +55,19 @@ class DesignSession:
 
     def __init__(self, path: str, *, lock: bool = True, drop_comments: bool = False):
         self.path = os.fspath(path)
+        if lock and not os.path.isfile(self.path):
+            # Say "no such file" rather than leave a lock file beside a mistyped name.
+            read_document(self.path)
         self._lock = DesignLock(self.path).acquire() if lock else None
+        self.read_only = not lock
+        self.drop_comments = drop_comments
         try:
-            doc = read_document(self.path)
+            # Loading replays the history, which can refuse the file too; the
+            # lock must not outlive a session that never opened.
+            self._load(read_document(self.path))
         except BaseException:
             self.close()
             raise
-        self.read_only = not lock
-        self.drop_comments = drop_comments
-        self._load(doc)
 
     def _load(self, doc: Document) -> None:
         self.design = doc.design
@@ -78,7 +82,15 @@ class DesignSession:
         """Changes made to the file by hand since its last logged entry."""
         if not self.history:
             return ()
-        return ledger.changes_between(ledger.replay(self.history), self.design)
+        logged = ledger.replay(self.history)
+        if logged.topology != self.design.topology:
+            # Key-by-key changes cannot express a new topology (its keys differ),
+            # and logging them would leave a history that no longer replays.
+            raise StageledgerError(
+                f"{self.path}: topology changed by hand from {logged.topology} to "
+                f"{self.design.topology} since the last history entry, which the ledger "
+                f"cannot log; start a new file from it with: stageledger new NEW --from {self.path}")
+        return ledger.changes_between(logged, self.design)
 
     def close(self) -> None:
         if self._lock is not None:

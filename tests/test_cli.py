@@ -52,9 +52,13 @@ def test_text_report_fits_80_columns_and_names_the_sections(capsys):
         assert heading in out
 
 
-def test_no_arguments_reports_the_bundled_demo(capsys):
-    assert main([]) == 0
-    assert "Geophone" in capsys.readouterr().out
+def test_no_arguments_opens_the_bundled_demo_without_writing_to_it():
+    from tui.bundled import default_demo
+    from tui.launch import make_app
+
+    app = make_app(None)
+    assert app.session is None and app.source == str(default_demo())
+    assert app.design.name.startswith("Geophone")
 
 
 @pytest.mark.parametrize(

@@ -70,10 +70,9 @@ def _dispatch(args) -> int:
         return commands.cmd_history(args.file, args.json)
     if args.command == "diff":
         return commands.cmd_diff(args.a, args.b)
-    # No command yet opens the workbench; until it exists, show the demo's report.
-    from .bundled import default_demo
+    from .launch import run
 
-    return _report(str(default_demo()), False)
+    return run(args.file, args.read_only)
 
 
 def _report(path: str, as_json: bool) -> int:
@@ -89,8 +88,25 @@ def _report(path: str, as_json: bool) -> int:
     return 0
 
 
+#: The subcommands; anything else in first place is a design file for the workbench.
+COMMANDS = ("report", "new", "set", "undo", "redo", "history", "diff")
+
+
+def _workbench_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="stageledger", description="Open a design in the workbench "
+                "(the bundled demo without FILE). Subcommands: " + ", ".join(COMMANDS) + ".")
+    p.add_argument("file", nargs="?", help="design file (TOML); offered for creation if missing")
+    p.add_argument("--read-only", action="store_true", help="open without taking the edit lock")
+    return p
+
+
 def main(argv: list[str] | None = None) -> int:
-    args = _parser().parse_args(argv)
+    argv = sys.argv[1:] if argv is None else argv
+    if argv and argv[0] in COMMANDS:
+        args = _parser().parse_args(argv)
+    else:
+        args = _workbench_parser().parse_args(argv)
+        args.command = None
     try:
         return _dispatch(args)
     except StageledgerError as exc:

@@ -86,3 +86,31 @@ def render_entry(e: Entry) -> list:
     rows += render_changes(e.changes)
     rows += render_consequences(e.before, e.after, e.raised, e.cleared)
     return rows
+
+
+#: Figures a ledger line may mention, with the short name used there.
+_COMPACT = (("av_source", "gain"), ("rin", "rin"), ("rout", "rout"), ("swing_up", "swing↑"),
+            ("swing_down", "swing↓"), ("thd", "thd"), ("p_supply", "p_supply"), ("tj", "tj"),
+            ("ic", "ic"), ("vce", "vce"))
+
+
+def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
+    """The biggest moves of a change in a few words, e.g. "gain +6.1 dB, rin −48 %".
+
+    The gain always comes first; the others are the largest relative changes.
+    """
+    parts, ranked = [], []
+    for key, short in _COMPACT:
+        b, a = before.get(key), after.get(key)
+        if not isinstance(b, (int, float)) or not isinstance(a, (int, float)) or b == a:
+            continue
+        text = f"{short} {relative_change(b, a, key)}".replace("-", "−")
+        if key == "av_source":
+            parts.append(text)
+        elif b and math.isfinite(b) and math.isfinite(a):
+            ranked.append((abs((a - b) / b), text))
+    ranked.sort(key=lambda item: -item[0])
+    parts += [text for _, text in ranked[: most - len(parts) + 1]]
+    if before.get("region") != after.get("region") and "region" in after:
+        parts.append(f"now {after['region']}")
+    return ", ".join(parts) or "no change in the figures"

@@ -1,0 +1,365 @@
+"""The ledger commands on the command line: set, --dry-run, history, diff and
+the one-line errors.
+
+Figures shown are read back from the printed text and compared with a fresh
+analyse() of the designs before and after, never with copied output.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import math
+import pathlib
+import re
+import subprocess
+import sys
+import tomllib
+
+import pytest
+
+from model import analyse, read_design
+from model.design import TOPOLOGIES, default_design, rule_for
+from model.designfile import dumps_design, read_document
+from model.ledger import HEADLINE
+from model.session import create
+from model.units import parse_value
+from tui.cli import main
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+CE, EF = TOPOLOGIES
+
+# How each headline figure is labelled and in what unit it is printed.
+LABEL = {"ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),
+         "av_loaded": ("av_loaded", "V/V"), "av_source": ("av_source", "V/V"), "rin": ("rin", "Ω"),
+         "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"), "swing_down": ("swing_down", "V"),
+         "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"), "p_supply": ("p_supply", "W"),
+         "tj": ("tj", "°C")}
+
+
+def plain_file(tmp_path, name="d.toml", topology=CE) -> pathlib.Path:
+    path = tmp_path / name
+    path.write_text(dumps_design(default_design(topology)), encoding="utf-8")
+    return path
+
+
+def run(*args):
+    return subprocess.run([sys.executable, "-m", "tui", *args], capture_output=True, text=True,
+                          cwd=ROOT, timeout=120)
+
+
+def figure_rows(out: str) -> dict:
+    """{figure key: [before, after, change]} as printed (columns are 2+ spaces apart)."""
+    rows = {}
+    by_label = {label: key for key, (label, _) in LABEL.items()}
+    for line in out.splitlines():
+        cells = re.split(r"\s{2,}", line.strip())
+        if cells and cells[0] in by_label and len(cells) >= 3:
+            rows[by_label[cells[0]]] = cells[1:]
+    return rows
+
+
+def read_back(key: str, text: str):
+    unit = LABEL[key][1]
+    if unit is None:
+        return text
+    number = text.split()[0]
+    if unit == "V/V" or unit == "°C":
+        return float(number)
+    if unit == "%":
+        return float(number) / 100.0
+    return parse_value(text, unit)
+
+
+def assert_shown(key, text, value):
+    got = read_back(key, text)
+    if isinstance(value, str):
+        assert got == value, key
+    elif key == "tj":
+        assert abs(got - value) <= 0.051, key  # one decimal
+    else:
+        assert math.isclose(got, value, rel_tol=5.1e-3, abs_tol=1e-15), (key, text, value)  # 3 figures
+
+
+def codes(fig):
+    return list(dict.fromkeys(w.code for w in fig.warnings))
+
+
+def one_error_line(capsys, *needles):
+    cap = capsys.readouterr()
+    lines = cap.err.strip().splitlines()
+    assert cap.out == "" and len(lines) == 1 and "Traceback" not in cap.err, cap.err
+    for needle in needles:
+        assert needle in lines[0], (needle, lines[0])
+    return lines[0]
+
+
+# -- set -----------------------------------------------------------------------
+
+def test_set_prints_every_figure_before_and_after_with_the_change(tmp_path, capsys):
+    path = plain_file(tmp_path)
+    before_design = read_design(path)
+    assert main(["set", str(path), "stage.rc=10k", "--note", "more gain"]) == 0
+    out = capsys.readouterr().out
+    before, after = analyse(before_design), analyse(read_design(path))
+
+    assert re.search(r"^  stage\.rc: 6\.8\d* kΩ → 10\.0* kΩ$", out, flags=re.M)
+    assert "more gain" in out
+    rows = figure_rows(out)
+    assert set(rows) == set(HEADLINE)
+    for key in HEADLINE:
+        b, a = getattr(before, key), getattr(after, key)
+        assert_shown(key, rows[key][0], b)
+        assert_shown(key, rows[key][1], a)
+        if key.startswith("av_"):
+            # Gains change in dB, by magnitude, so a bigger inverting gain reads as more gain.
+            shown = rows[key][2]
+            assert shown.endswith(" dB")
+            assert abs(float(shown.split()[0]) - 20 * math.log10(abs(a) / abs(b))) <= 0.006, key
+        elif key != "region":
+            shown = rows[key][2]
+            assert shown.endswith("%"), key
+            if key == "ic":
+                assert math.isclose(float(shown.split()[0]), 100 * (a - b) / abs(b), rel_tol=5.1e-3)
+    assert f"saved {path} (entry 2)" in out
+
+
+def test_set_names_the_warnings_it_raises_and_then_clears(tmp_path, capsys):
+    path = plain_file(tmp_path)
+    quiet = analyse(read_design(path))
+    assert main(["set", str(path), "source.vpk=0.5"]) == 0
+    loud = analyse(read_design(path))
+    raised = [c for c in codes(loud) if c not in codes(quiet)]
+    assert "HEADROOM-SHORT" in raised
+    out = capsys.readouterr().out
+    assert f"warnings raised: {', '.join(raised)}" in out
+    assert "warnings cleared: none" in out
+    assert main(["set", str(path), "source.vpk=10m"]) == 0
+    out = capsys.readouterr().out
+    assert f"warnings cleared: {', '.join(raised)}" in out and "warnings raised: none" in out
+
+
+def test_dry_run_previews_and_leaves_the_file_byte_identical(tmp_path, capsys):
+    for path in (plain_file(tmp_path), tmp_path / "c.toml"):
+        if not path.exists():
+            create(str(path), default_design(EF))
+        before = path.read_bytes()
+        key = "bias.r1=47k" if read_design(path).topology == CE else "stage.re=3k3"
+        assert main(["set", str(path), key, "--dry-run"]) == 0
+        out = capsys.readouterr().out
+        assert "preview (not saved)" in out and "saved " + str(path) not in out
+        assert key.split("=")[0] + ":" in out and set(figure_rows(out)) == set(HEADLINE)
+        assert path.read_bytes() == before
+
+
+def test_several_assignments_in_one_set_are_one_entry(tmp_path, capsys):
+    path = plain_file(tmp_path)
+    assert main(["set", str(path), "stage.rc=10k", "bias.r1=47k", "load.rl=open"]) == 0
+    out = capsys.readouterr().out
+    assert "(entry 2)" in out
+    h = read_document(path).history
+    assert [e.action for e in h] == ["start", "set"]
+    assert {c.key for c in h[1].changes} == {"stage.rc", "bias.r1", "load.rl"}
+    d = read_design(path)
+    assert (d.stage.rc, d.bias.r1, d.load.rl) == (10e3, 47e3, math.inf)
+
+
+def test_undo_and_redo_print_the_entry_and_save(tmp_path, capsys):
+    path = plain_file(tmp_path)
+    original = read_design(path)
+    assert main(["set", str(path), "stage.rc=10k"]) == 0
+    changed = read_design(path)
+    capsys.readouterr()
+    assert main(["undo", str(path), "--note", "too hot"]) == 0
+    out = capsys.readouterr().out
+    assert "undo of #2" in out and "too hot" in out and f"saved {path} (entry 3)" in out
+    assert read_design(path) == original
+    assert main(["redo", str(path)]) == 0
+    assert "redo of #3" in capsys.readouterr().out
+    assert read_design(path) == changed
+
+
+# -- history -------------------------------------------------------------------
+
+def _story(tmp_path, capsys) -> pathlib.Path:
+    path = plain_file(tmp_path)
+    for argv in (["set", str(path), "stage.rc=10k", "--note", "first"],
+                 ["set", str(path), "load.rl=open"],
+                 ["undo", str(path)], ["redo", str(path)]):
+        assert main(argv) == 0
+    capsys.readouterr()
+    return path
+
+
+def test_history_prints_every_entry_in_order(tmp_path, capsys):
+    path = _story(tmp_path, capsys)
+    assert main(["history", str(path)]) == 0
+    out = capsys.readouterr().out
+    heads = re.findall(r"^#(\d+)  (\d{4}-\d\d-\d\d \d\d:\d\d:\d\d)Z  (\S+)", out, flags=re.M)
+    assert [(int(n), a) for n, _, a in heads] == [(1, "start"), (2, "set"), (3, "set"), (4, "undo"), (5, "redo")]
+    assert "note: first" in out and "undo of #3" in out and "redo of #4" in out
+
+
+def test_history_json_is_strict_json_in_order_with_utc_times(tmp_path, capsys):
+    path = _story(tmp_path, capsys)
+    assert main(["history", str(path), "--json"]) == 0
+
+    def refuse(constant):
+        raise AssertionError(f"{constant} is not JSON")
+
+    data = json.loads(capsys.readouterr().out, parse_constant=refuse)
+    entries = data["entries"]
+    assert [e["entry"] for e in entries] == [1, 2, 3, 4, 5]
+    assert data["unlogged_hand_edits"] == []
+    raw = tomllib.loads(path.read_text(encoding="utf-8"))["history"]
+    for e, r in zip(entries, raw):
+        assert e["time"].endswith("Z")
+        assert dt.datetime.fromisoformat(e["time"]) == r["time"]
+        assert {k: v for k, v in e.items() if k != "time"} == {k: v for k, v in r.items() if k != "time"}
+    assert entries[3]["reverses"] == 3 and entries[4]["reverses"] == 4
+
+
+def test_history_json_lists_unlogged_hand_edits(tmp_path, capsys):
+    path = _story(tmp_path, capsys)
+    text = path.read_text(encoding="utf-8")
+    top, sep, rest = text.partition("\n[[history]]")
+    path.write_text(top.replace("vcc = 9.0", "vcc = 10.0") + sep + rest, encoding="utf-8")
+    assert main(["history", str(path), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["unlogged_hand_edits"] == [{"key": "supply.vcc", "old": 9.0, "new": 10.0}]
+
+
+def test_history_of_a_file_without_one(tmp_path, capsys):
+    path = plain_file(tmp_path)
+    assert main(["history", str(path), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out) == {"entries": [], "unlogged_hand_edits": []}
+
+
+# -- diff ----------------------------------------------------------------------
+
+def test_diff_of_a_file_and_an_earlier_entry(tmp_path, capsys):
+    path = _story(tmp_path, capsys)
+    assert main(["diff", f"{path}@1", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert out.splitlines()[0] == f"{path}@1 → {path}"
+    assert set(re.findall(r"^  (\S+): .* → ", out, flags=re.M)) == {"stage.rc", "load.rl"}
+    assert set(figure_rows(out)) == set(HEADLINE)
+
+
+def test_diff_of_two_files(tmp_path, capsys):
+    a, b = plain_file(tmp_path, "a.toml"), plain_file(tmp_path, "b.toml")
+    assert main(["diff", str(a), str(b)]) == 0
+    assert "parameters: identical" in capsys.readouterr().out
+    ef = plain_file(tmp_path, "ef.toml", EF)
+    assert main(["diff", str(a), str(ef)]) == 0
+    out = capsys.readouterr().out
+    assert "topology: common-emitter → emitter-follower" in out and "different topologies" in out
+
+
+# -- bad input -----------------------------------------------------------------
+
+@pytest.fixture
+def logged(tmp_path):
+    path = tmp_path / "l.toml"
+    create(str(path), default_design(CE))
+    return path
+
+
+def test_unknown_key(logged, capsys):
+    before = logged.read_bytes()
+    assert main(["set", str(logged), "stage.rcc=10k"]) == 2
+    one_error_line(capsys, "stage.rcc", "not a design key")
+    assert logged.read_bytes() == before
+
+
+@pytest.mark.parametrize("key, value", [("supply.vcc", "lots"), ("stage.rc", "-5"), ("supply.vcc", "2000"),
+                                        ("parts.series", "E7")])
+def test_bad_value_names_key_value_and_rule(logged, capsys, key, value):
+    before = logged.read_bytes()
+    assert main(["set", str(logged), f"{key}={value}"]) == 2
+    one_error_line(capsys, key, value, rule_for(key, CE).text)
+    assert logged.read_bytes() == before
+
+
+def test_assignment_without_equals(logged, capsys):
+    assert main(["set", str(logged), "stage.rc"]) == 2
+    one_error_line(capsys, "stage.rc", "KEY=VALUE")
+
+
+def test_key_of_the_other_topology(logged, capsys):
+    assert main(["set", str(logged), "stage.re=1k"]) == 2
+    one_error_line(capsys, "stage.re", "common-emitter")
+
+
+def test_topology_cannot_be_set(logged, capsys):
+    before = logged.read_bytes()
+    assert main(["set", str(logged), "topology=emitter-follower"]) == 2
+    one_error_line(capsys, "topology")
+    assert logged.read_bytes() == before
+
+
+def test_setting_a_value_already_held(logged, capsys):
+    before = logged.read_bytes()
+    assert main(["set", str(logged), "stage.rc=6k8"]) == 2
+    one_error_line(capsys, "nothing to commit")
+    assert logged.read_bytes() == before
+
+
+@pytest.mark.parametrize("n", ["0", "2", "99"])
+def test_entry_out_of_range(logged, capsys, n):
+    assert main(["diff", f"{logged}@{n}", str(logged)]) == 2
+    one_error_line(capsys, f"no history entry {n}")
+    assert main(["new", str(logged.with_name("x.toml")), "--from", f"{logged}@{n}"]) == 2
+    one_error_line(capsys, f"no history entry {n}")
+    assert not logged.with_name("x.toml").exists()
+
+
+def test_entry_of_a_file_without_history(tmp_path, capsys):
+    path = plain_file(tmp_path)
+    assert main(["diff", f"{path}@1", str(path)]) == 2
+    one_error_line(capsys, str(path), "no history")
+
+
+@pytest.mark.parametrize("argv", [["set", "{m}", "stage.rc=1k"], ["set", "{m}", "stage.rc=1k", "--dry-run"],
+                                  ["undo", "{m}"], ["history", "{m}"], ["diff", "{m}", "{m}"],
+                                  ["diff", "{m}@1", "{m}"], ["new", "{o}", "--from", "{m}"]])
+def test_missing_file(tmp_path, capsys, argv):
+    missing, out = tmp_path / "missing.toml", tmp_path / "out.toml"
+    assert main([a.format(m=missing, o=out) for a in argv]) == 2
+    one_error_line(capsys, str(missing), "no such file")
+    # Nothing is left behind, not even a lock file for the mistyped name.
+    assert sorted(p.name for p in tmp_path.iterdir()) == []
+
+
+def test_missing_folder_says_no_such_file(tmp_path, capsys):
+    missing = tmp_path / "nowhere" / "d.toml"
+    assert main(["set", str(missing), "stage.rc=1k"]) == 2
+    one_error_line(capsys, str(missing), "no such file")
+
+
+def test_undo_with_nothing_to_undo(logged, capsys):
+    assert main(["undo", str(logged)]) == 2
+    one_error_line(capsys, "nothing to undo")
+    assert main(["redo", str(logged)]) == 2
+    one_error_line(capsys, "nothing to redo")
+
+
+def test_tampered_history_is_one_line_naming_the_entry(logged, capsys):
+    text = logged.read_text(encoding="utf-8")
+    logged.write_text(text.replace('action = "start"', 'action = "begin"'), encoding="utf-8")
+    for argv in (["history", str(logged)], ["set", str(logged), "stage.rc=1k"], ["report", str(logged)]):
+        assert main(argv) == 2
+        one_error_line(capsys, str(logged), "history[1].action", "begin")
+
+
+def test_exit_codes_in_a_real_process(tmp_path):
+    path = plain_file(tmp_path)
+    ok = run("set", str(path), "stage.rc=10k")
+    assert ok.returncode == 0 and "saved" in ok.stdout and ok.stderr == ""
+    for args in (("set", str(path), "stage.rcc=1k"), ("set", str(path)),
+                 ("diff", f"{path}@7", str(path)), ("undo", str(tmp_path / "missing.toml"))):
+        proc = run(*args)
+        assert proc.returncode == 2, args
+        assert proc.stdout == "" and len(proc.stderr.strip().splitlines()) == 1, args
+        assert "Traceback" not in proc.stderr
+    assert [e.action for e in read_document(path).history] == ["start", "set"]

@@ -1,0 +1,317 @@
+"""The workbench: Knobs beside a live Readout, with the Ledger of every commit.
+
+The app owns the open design (through a :class:`~model.session.DesignSession`)
+and routes messages; it does no physics.  Each keystroke in a field makes a
+candidate design whose quick figures (operating point, midband, dissipation)
+are computed at once; the slower swing and distortion sweep runs in a thread
+worker, debounced, and posts its result back.
+"""
+
+from __future__ import annotations
+
+import os
+import pathlib
+import shutil
+from dataclasses import dataclass
+
+from textual import work
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.message import Message
+from textual.widgets import Footer, Header, OptionList, Static
+
+from model import ledger
+from model.analysis import Figures, analyse
+from model.design import Design, SERIES, get_value, with_values
+from model.errors import StageledgerError
+from model.session import DesignSession
+from model.stepping import choices, step, step_decade
+
+from .readout_table import readout_table, warnings_text
+from .screens import HelpScreen, NotePrompt
+from .widgets.knobs import (KnobAbandoned, KnobCommitted, KnobEdited, KnobInput, Knobs,
+                            KnobStepped, field_text)
+from .widgets.ledger_pane import LedgerPane
+
+#: Seconds of quiet typing before the swing and distortion sweep starts.
+DEBOUNCE = 0.15
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """An uncommitted value in one field, and what it would do."""
+
+    key: str
+    text: str
+    design: Design
+    figures: Figures
+
+
+@dataclass(frozen=True)
+class Baseline:
+    label: str
+    design: Design
+    figures: Figures
+
+
+class LargeSignalReady(Message):
+    """The worker's full analysis of ``design``."""
+
+    def __init__(self, design: Design, figures: Figures):
+        super().__init__()
+        self.design, self.figures = design, figures
+
+
+class Workbench(App):
+    """Tune one design from the keyboard and keep the record."""
+
+    CSS_PATH = "app.tcss"
+    TITLE = "stageledger"
+    HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]
+    BINDINGS = [
+        Binding("f1", "help", "help", id="help"),
+        Binding("f2,ctrl+n", "note", "note", id="note"),
+        Binding("f3", "toggle_ledger", "ledger", id="toggle-ledger"),
+        Binding("f4", "baseline", "baseline", id="baseline"),
+        Binding("f5", "cycle_series", "series", id="series"),
+        Binding("f7,ctrl+z", "undo", "undo", id="undo"),
+        Binding("f8,ctrl+y", "redo", "redo", id="redo"),
+        Binding("f10,ctrl+q", "quit", "quit", id="quit", priority=True),
+    ]
+
+    def __init__(self, design: Design, *, session: DesignSession | None, source: str,
+                 demo_copy_dir: str | None = None):
+        """``session`` None means read-only, or (with ``demo_copy_dir``) a bundled
+        demo whose first commit saves a copy in that folder."""
+        super().__init__()
+        self.session = session
+        self.source = source
+        self.demo_copy_dir = demo_copy_dir
+        self.design = design
+        self.figures = session.figures if session else analyse(design)
+        self.candidate: Candidate | None = None
+        self.baseline: Baseline | None = None
+        self.note = ""
+        self._sweep_timer = None
+
+    # -- layout ---------------------------------------------------------------
+
+    def compose(self) -> ComposeResult:
+        yield Header(show_clock=False)
+        with Horizontal(id="main"):
+            yield Knobs(self.design, id="knobs")
+            with VerticalScroll(id="readout-box"):
+                yield Static(id="readout")
+                yield Static(id="warnings", markup=False)
+            with Vertical(id="ledger-box"):
+                yield Static("Ledger", classes="pane-title")
+                yield LedgerPane(id="ledger")
+        yield Static(id="status", markup=False)
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.sub_title = self._where()
+        self.query_one(LedgerPane).show(self.history)
+        self._refresh_readout()
+        self.query_one(Knobs).query(KnobInput).first().focus()
+        self._say("Tab moves, type or Up/Down to try a value, Enter commits, Esc abandons, F1 help")
+
+    @property
+    def history(self) -> list:
+        return self.session.history if self.session else []
+
+    def _where(self) -> str:
+        if self.session is None:
+            return f"{self.source} (bundled demo: the first commit saves a copy)" if self.demo_copy_dir \
+                else f"{self.source} (read-only)"
+        return self.session.path + (" (read-only)" if self.session.read_only else "")
+
+    # -- the readout --------------------------------------------------------------
+
+    def _refresh_readout(self) -> None:
+        shown = self.candidate.figures if self.candidate else self.figures
+        if self.baseline:
+            reference, ref_label = self.baseline.figures, self.baseline.label
+        elif self.candidate:
+            reference, ref_label = self.figures, "committed"
+        else:
+            reference, ref_label = None, ""
+        shown_label = "candidate" if self.candidate else ("now" if self.baseline else "committed")
+        table = readout_table(shown, reference, shown_label=shown_label, reference_label=ref_label,
+                              tj_max=self.design.transistor.tj_max)
+        self.query_one("#readout", Static).update(table)
+        self.query_one("#warnings", Static).update(warnings_text(shown))
+        if not shown.large_signal:
+            self._schedule_sweep(self.candidate.design if self.candidate else self.design)
+
+    def _schedule_sweep(self, design: Design) -> None:
+        if self._sweep_timer is not None:
+            self._sweep_timer.stop()
+        self._sweep_timer = self.set_timer(DEBOUNCE, lambda: self._sweep(design))
+
+    @work(thread=True, exclusive=True, exit_on_error=False, group="sweep")
+    def _sweep(self, design: Design) -> None:
+        try:
+            figures = analyse(design)
+        except StageledgerError:
+            return  # the quick analysis already reported the problem
+        self.post_message(LargeSignalReady(design, figures))
+
+    def on_large_signal_ready(self, message: LargeSignalReady) -> None:
+        if self.candidate and self.candidate.design == message.design:
+            self.candidate = Candidate(self.candidate.key, self.candidate.text, message.design, message.figures)
+        elif message.design == self.design:
+            self.figures = message.figures
+        else:
+            return
+        self._refresh_readout()
+
+    def _say(self, text: str, error: bool = False) -> None:
+        status = self.query_one("#status", Static)
+        status.update(("✗ " if error else "") + text)
+        status.set_class(error, "-error")
+
+    # -- editing ----------------------------------------------------------------
+
+    def on_knob_edited(self, message: KnobEdited) -> None:
+        field = self.query_one(Knobs).field(message.key)
+        committed = field_text(message.key, get_value(self.design, message.key))
+        if message.text.strip() == committed:
+            self._abandon(message.key, quiet=True)
+            return
+        try:
+            design = with_values(self.design, {message.key: message.text})
+            figures = analyse(design, large_signal=False)
+        except StageledgerError as err:
+            field.set_class(True, "-invalid")
+            self._say(f"{err} — the readout shows the last valid candidate", error=True)
+            return
+        field.set_class(False, "-invalid")
+        field.set_class(True, "-candidate")
+        self.candidate = Candidate(message.key, message.text, design, figures)
+        self._say(f"candidate {message.key} = {message.text.strip()}: Enter commits, Esc abandons")
+        self._refresh_readout()
+
+    def on_knob_stepped(self, message: KnobStepped) -> None:
+        key = message.key
+        field = self.query_one(Knobs).field(key)
+        current = self.candidate.design if self.candidate and self.candidate.key == key else self.design
+        value = get_value(current, key)
+        words = choices(key)
+        if words:
+            new = words[(words.index(value) + message.steps) % len(words)]
+        elif isinstance(value, (int, float)) and key != "name":
+            move = step_decade if message.decade else step
+            new = move(key, value, message.steps) if message.decade else \
+                move(key, value, message.steps, self.design.parts.series)
+        else:
+            return
+        field.value = field_text(key, new)  # fires KnobEdited, which previews it
+
+    def on_knob_abandoned(self, message: KnobAbandoned) -> None:
+        self._abandon(message.key)
+
+    def _abandon(self, key: str, quiet: bool = False) -> None:
+        self.query_one(Knobs).show(self.design, keys=[key])
+        if self.candidate and self.candidate.key == key:
+            self.candidate = None
+            self._refresh_readout()
+        if not quiet:
+            self._say(f"{key}: candidate abandoned")
+
+    def on_knob_committed(self, message: KnobCommitted) -> None:
+        if self.candidate is None or self.candidate.key != message.key:
+            if self.query_one(Knobs).field(message.key).has_class("-invalid"):
+                self._say("not committed: the value is invalid (see above)", error=True)
+            else:
+                self._say(f"{message.key}: nothing to commit")
+            return
+        self._commit(lambda s: s.commit({message.key: message.text}, self.note))
+
+    def _commit(self, act) -> None:
+        """Run ``act(session)`` (a commit, undo or redo); report saved or not saved."""
+        try:
+            session = self._writable_session()
+            entry = act(session)
+        except StageledgerError as err:
+            self._say(f"not saved: {err}", error=True)
+            self.notify(str(err), title="not saved", severity="error", timeout=8)
+            return
+        self.design, self.figures = session.design, session.figures
+        self.candidate, self.note = None, ""
+        knobs = self.query_one(Knobs)
+        knobs.show(self.design)
+        self.query_one(LedgerPane).show(session.history)
+        self.sub_title = self._where()
+        self._refresh_readout()
+        self._say(f"saved entry #{entry.number} ({entry.action}) to {session.path}")
+
+    def _writable_session(self) -> DesignSession:
+        if self.session is not None:
+            return self.session
+        if self.demo_copy_dir is None:
+            raise StageledgerError(f"{self.source} is open read-only")
+        copy = _free_name(pathlib.Path(self.demo_copy_dir) / pathlib.Path(self.source).name)
+        shutil.copyfile(self.source, copy)
+        self.session = DesignSession(str(copy))
+        self.notify(f"saved a copy of the demo as {copy}", title="demo copied", timeout=8)
+        return self.session
+
+    # -- actions ----------------------------------------------------------------
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen())
+
+    def action_note(self) -> None:
+        def keep(text: str | None) -> None:
+            if text is not None:
+                self.note = text
+                self._say(f"note for the next commit: {text!r}" if text else "note cleared")
+
+        self.push_screen(NotePrompt(self.note), keep)
+
+    def action_toggle_ledger(self) -> None:
+        # The size classes (-narrow/-wide) live on the screen, so this one does too.
+        self.screen.toggle_class("-show-ledger")
+
+    def action_baseline(self) -> None:
+        if self.baseline is not None:
+            self.baseline = None
+            self._say("baseline unpinned: changes are shown against the committed design")
+        else:
+            self.baseline = Baseline("baseline", self.design, self.figures)
+            self._say("baseline pinned: the committed design as it is now")
+        self._refresh_readout()
+
+    def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
+        number = int(event.option.id.split("-")[1])
+        design = ledger.replay(self.history, number)
+        self.baseline = Baseline(f"#{number}", design, analyse(design))
+        self._say(f"baseline pinned: the design after entry #{number} (F4 unpins)")
+        self._refresh_readout()
+
+    def action_cycle_series(self) -> None:
+        current = self.design.parts.series
+        wanted = next((s for s in ("E12", "E24", "E96") if SERIES.index(s) > SERIES.index(current)), "E12")
+        self._commit(lambda s: s.commit({"parts.series": wanted}, self.note or f"step along {wanted}"))
+
+    def action_undo(self) -> None:
+        self._commit(lambda s: s.undo(self.note))
+
+    def action_redo(self) -> None:
+        self._commit(lambda s: s.redo(self.note))
+
+    def on_unmount(self) -> None:
+        if self.session is not None:
+            self.session.close()
+
+
+def _free_name(path: pathlib.Path) -> pathlib.Path:
+    """``path``, or ``name-2.toml``, ``name-3.toml``… if it is taken."""
+    if not os.path.lexists(path):
+        return path
+    n = 2
+    while os.path.lexists(path.with_name(f"{path.stem}-{n}{path.suffix}")):
+        n += 1
+    return path.with_name(f"{path.stem}-{n}{path.suffix}")

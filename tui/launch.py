@@ -1,0 +1,63 @@
+"""Starting the workbench: open, create or copy the design, then run the app."""
+
+from __future__ import annotations
+
+import os
+import signal
+import sys
+
+from model.design import default_design
+from model.designfile import read_design
+from model.savefile import LockHeld
+from model.session import DesignSession, create
+
+from .bundled import default_demo
+
+
+def ask(question: str) -> bool:
+    """A yes/no question on the terminal; anything but y/yes (or no terminal) is no."""
+    if not sys.stdin.isatty():
+        return False
+    try:
+        return input(f"{question} [y/N] ").strip().lower() in ("y", "yes")
+    except EOFError:
+        return False
+
+
+def make_app(path: str | None, *, read_only: bool = False, asker=ask):
+    """The Workbench for ``path`` (None: the bundled demo), or None if the user declined.
+
+    Used by the command line and by the tests, so both build the real app.
+    """
+    from .app import Workbench
+
+    if path is None:
+        demo = str(default_demo())
+        return Workbench(read_design(demo), session=None, source=demo,
+                         demo_copy_dir=None if read_only else os.getcwd())
+    if not os.path.lexists(path):
+        if read_only or not asker(f"{path} does not exist. Create it from the common-emitter defaults?"):
+            return None
+        create(path, default_design())
+    if read_only:
+        session = DesignSession(path, lock=False)
+    else:
+        try:
+            session = DesignSession(path)
+        except LockHeld as held:
+            if not asker(f"{held}. Open it read-only?"):
+                return None
+            session = DesignSession(path, lock=False)
+    return Workbench(session.design, session=session, source=path)
+
+
+def run(path: str | None, read_only: bool) -> int:
+    app = make_app(path, read_only=read_only)
+    if app is None:
+        print("stageledger: nothing opened", file=sys.stderr)
+        return 2
+    # A hang-up must be no worse than a kill (every commit is already on disk),
+    # but the app should end, not spin on a dead terminal.
+    signal.signal(signal.SIGHUP, lambda *_: app.exit())
+    app.run(mouse=False)
+    return 0

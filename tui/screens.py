@@ -1,0 +1,81 @@
+"""Modal screens: help, the note prompt and yes/no questions."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.widgets import Input, Label, Static
+
+#: Every key of the workbench, as the help screen lists it.
+KEYS = (
+    ("Tab / Shift+Tab", "move between fields"),
+    ("type", "a value with an SI prefix or letter code: 4k7, 2.2k, 100n, R47"),
+    ("Up / Down", "step a part along the preferred series; plain numbers by a fixed step"),
+    ("PgUp / PgDn", "step a decade"),
+    ("Enter", "commit the candidate: logged in the ledger and saved"),
+    ("Esc", "abandon the candidate (Esc only ever cancels)"),
+    ("F2 or Ctrl+N", "write a note for the next commit"),
+    ("F3", "show the ledger or the readout (narrow screens)"),
+    ("F4", "pin the committed design as the baseline, or unpin it"),
+    ("Enter on a ledger entry", "pin the design as it stood after that entry"),
+    ("F5", "switch the preferred series (E12, E24, E96) — a logged change"),
+    ("F7 or Ctrl+Z", "undo the last change (logged as a new entry)"),
+    ("F8 or Ctrl+Y", "redo (logged as a new entry)"),
+    ("F1", "this help"),
+    ("Ctrl+P", "every action by name"),
+    ("F10 or Ctrl+Q", "quit; every commit is already saved"),
+)
+
+
+class HelpScreen(ModalScreen):
+    BINDINGS = [Binding("escape,f1,q,enter", "dismiss", "close")]
+
+    def compose(self) -> ComposeResult:
+        width = max(len(k) for k, _ in KEYS) + 2
+        lines = [f"{k:<{width}}{what}" for k, what in KEYS]
+        with Vertical(id="help-box", classes="dialog"):
+            yield Label("Keys", classes="dialog-title")
+            yield Static("\n".join(lines), markup=False)
+            yield Label("Esc, F1 or Enter closes this.", classes="dialog-hint")
+
+
+class NotePrompt(ModalScreen[str | None]):
+    """One line of text for the next commit's note."""
+
+    BINDINGS = [Binding("escape", "cancel", "cancel")]
+
+    def __init__(self, current: str):
+        super().__init__()
+        self._current = current
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="note-box", classes="dialog"):
+            yield Label("Note for the next commit (Enter keeps it, Esc cancels)", classes="dialog-title")
+            yield Input(self._current, id="note-input", compact=True)
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self.dismiss(event.value.strip())
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+
+class Question(ModalScreen[bool]):
+    """A yes/no question; y or Enter says yes, n or Esc says no."""
+
+    BINDINGS = [Binding("y,enter", "answer(True)", "yes"), Binding("n,escape", "answer(False)", "no")]
+
+    def __init__(self, text: str):
+        super().__init__()
+        self._text = text
+
+    def compose(self) -> ComposeResult:
+        with Vertical(classes="dialog"):
+            yield Static(self._text, markup=False)
+            yield Label("y / Enter: yes     n / Esc: no", classes="dialog-hint")
+
+    def action_answer(self, yes: bool) -> None:
+        self.dismiss(yes)

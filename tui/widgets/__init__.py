@@ -1,0 +1,1 @@
+"""The workbench's widgets: knobs, readout, ledger pane and dialogs."""
