@@ -140,8 +140,13 @@ class Workbench(App):
         shown_label = "candidate" if self.candidate else ("now" if self.baseline else "committed")
         table = readout_table(shown, reference, shown_label=shown_label, reference_label=ref_label,
                               tj_max=self.design.transistor.tj_max)
-        self.query_one("#readout", Static).update(table)
-        self.query_one("#warnings", Static).update(warnings_text(shown))
+        # The readout keeps its size from one keystroke to the next, so skip the
+        # layout pass that would otherwise follow every update.
+        self.query_one("#readout", Static).update(table, layout=False)
+        warnings = warnings_text(shown)
+        box = self.query_one("#warnings", Static)
+        if warnings.plain != str(box.content):
+            box.update(warnings)
         if not shown.large_signal:
             self._schedule_sweep(self.candidate.design if self.candidate else self.design)
 
@@ -169,7 +174,7 @@ class Workbench(App):
 
     def _say(self, text: str, error: bool = False) -> None:
         status = self.query_one("#status", Static)
-        status.update(("✗ " if error else "") + text)
+        status.update(("✗ " if error else "") + text, layout=False)  # always one line
         status.set_class(error, "-error")
 
     # -- editing ----------------------------------------------------------------
@@ -221,11 +226,17 @@ class Workbench(App):
             self._say(f"{key}: candidate abandoned")
 
     def on_knob_committed(self, message: KnobCommitted) -> None:
+        # Invalid text is checked first: a field can keep an earlier valid
+        # candidate under text that no longer parses, and Enter on it is "not
+        # committed" (with the rule), not a failed save.
+        if self.query_one(Knobs).field(message.key).has_class("-invalid"):
+            try:
+                with_values(self.design, {message.key: message.text})
+            except StageledgerError as err:
+                self._say(f"not committed: {err}", error=True)
+                return
         if self.candidate is None or self.candidate.key != message.key:
-            if self.query_one(Knobs).field(message.key).has_class("-invalid"):
-                self._say("not committed: the value is invalid (see above)", error=True)
-            else:
-                self._say(f"{message.key}: nothing to commit")
+            self._say(f"{message.key}: nothing to commit")
             return
         self._commit(lambda s: s.commit({message.key: message.text}, self.note))
 

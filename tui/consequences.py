@@ -50,6 +50,8 @@ def relative_change(before, after, key: str = "") -> str:
         return "" if before == after else "changed"
     if key in _SHOW and _SHOW[key][1] == "gain" and before and after:
         return f"{20.0 * math.log10(abs(after) / abs(before)):+.2f} dB"
+    if key == "tj":  # a per cent of a Celsius reading means nothing
+        return f"{after - before:+.3g} K"
     if before == after:
         return "0 %"
     if before == 0 or not (math.isfinite(before) and math.isfinite(after)):

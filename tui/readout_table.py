@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import math
 
-from rich.table import Table
 from rich.text import Text
 
 from model.analysis import Figures
@@ -57,32 +56,40 @@ def _arrow(key, before, after) -> str:
     return "↑" if after > before else "↓"
 
 
+#: Column widths of the readout (characters); it is laid out as plain text
+#: because a table widget's measuring on every keystroke costs more than the
+#: analysis behind it.
+_LABEL, _VALUE, _CHANGE = 15, 10, 12
+
+
 def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str, reference_label: str,
-                  tj_max: float) -> Table:
+                  tj_max: float) -> Text:
     """Figures of ``shown``; with a ``reference``, its values and the change beside them."""
-    table = Table(box=None, show_header=True, pad_edge=False, expand=False, header_style="bold")
-    table.add_column("figure", no_wrap=True)
-    if reference is not None:
-        table.add_column(reference_label, justify="right", no_wrap=True)
-    table.add_column(shown_label, justify="right", no_wrap=True)
-    if reference is not None:
-        table.add_column("change", justify="right", no_wrap=True)
+    compare = reference is not None
+    value_width = _VALUE if compare else _VALUE + 8
+    head = f"{'figure':<{_LABEL}}"
+    if compare:
+        head += f"{reference_label:>{_VALUE}}"
+    head += f"{shown_label:>{value_width}}"
+    if compare:
+        head += f"{'change':>{_CHANGE}}"
+    out = Text(head + "\n", style="bold")
     for heading, rows in ROWS:
-        table.add_row(Text(heading, style="italic"))
+        out.append(heading + "\n", style="italic")
         for label, key, kind in rows:
             a = getattr(shown, key)
-            cells = [Text("  " + label)]
-            if reference is not None:
+            line = f"  {label:<{_LABEL - 2}}"
+            if compare:
                 b = getattr(reference, key)
-                cells.append(Text(show(b, kind, compact=True)))
-            cells.append(Text(show(a, kind, compact=reference is not None)))
-            if reference is not None:
+                line += f"{show(b, kind, compact=True):>{_VALUE}}"
+            line += f"{show(a, kind, compact=compare):>{value_width}}"
+            if compare:
                 moved = "" if _nan(a) or _nan(b) else relative_change(b, a, key)
-                cells.append(Text(f"{moved} {_arrow(key, b, a)}".strip()))
-            table.add_row(*cells)
-    table.add_row(Text("  tj_max"), *([Text("")] if reference is not None else []),
-                  Text(f"{tj_max:g} °C"), *([Text("")] if reference is not None else []))
-    return table
+                line += f"{(moved + ' ' + _arrow(key, b, a)).strip():>{_CHANGE}}"
+            out.append(line + "\n")
+    out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
+               + f"{tj_max:g} °C".rjust(value_width))
+    return out
 
 
 def _nan(v) -> bool:

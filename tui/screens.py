@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
+from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label, Static
 
@@ -35,7 +35,9 @@ class HelpScreen(ModalScreen):
     def compose(self) -> ComposeResult:
         width = max(len(k) for k, _ in KEYS) + 2
         lines = [f"{k:<{width}}{what}" for k, what in KEYS]
-        with Vertical(id="help-box", classes="dialog"):
+        # Scrollable: at 80×24 the list is taller than the screen, and a plain
+        # container would cut off the last keys with no way to reach them.
+        with VerticalScroll(id="help-box", classes="dialog"):
             yield Label("Keys", classes="dialog-title")
             yield Static("\n".join(lines), markup=False)
             yield Label("Esc, F1 or Enter closes this.", classes="dialog-hint")

@@ -1,0 +1,121 @@
+"""Workbench benchmark: prints `name: value unit` lines; never fails.
+
+* keypress → updated readout: Up/Down steps on a part, p50 and p95 over
+  240 edits, driven headless with Pilot.  Each step previews a candidate, so
+  the quick analysis and the readout redraw are inside the timing.  The time
+  runs from just before the key is sent to the end of the first screen
+  paint after the readout changed.  Pilot's own round trip for a key that
+  does nothing is printed beside it for comparison;
+* start → first frame: the installed command in tmux, polled until the
+  readout is on screen (skipped without tmux or the installed command).
+"""
+
+from __future__ import annotations
+
+import asyncio
+import pathlib
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+
+sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
+
+from tui.launch import make_app  # noqa: E402
+
+DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
+EDITS = 240
+
+
+def _watch(app):
+    """Times of every readout refresh and of every screen paint."""
+    marks = {"readout": [], "painted": []}
+    refresh = app._refresh_readout
+
+    def refreshed():
+        refresh()
+        marks["readout"].append(time.perf_counter())
+
+    app._refresh_readout = refreshed
+    return marks
+
+
+def _latency(marks, since):
+    """From ``since`` to the first paint after the first readout refresh after it."""
+    refreshed = next((t for t in marks["readout"] if t > since), None)
+    if refreshed is None:
+        return None
+    return next((t - since for t in marks["painted"] if t >= refreshed), None)
+
+
+async def keypress_times(path: str) -> tuple:
+    app = make_app(path)
+    marks = _watch(app)
+    times, idle, previewed = [], [], 0
+    async with app.run_test(size=(80, 24)) as pilot:
+        screen = app.screen
+        paint = screen._compositor_refresh
+
+        def painted():
+            paint()
+            marks["painted"].append(time.perf_counter())
+
+        screen._compositor_refresh = painted
+        app.query_one("#knob-stage-rc").focus()
+        await pilot.pause()
+        for k in range(EDITS):
+            t = time.perf_counter()
+            await pilot.press("up" if (k // 6) % 2 == 0 else "down")
+            await pilot.pause()
+            latency = _latency(marks, t)
+            if latency is not None:
+                times.append(latency)
+            previewed += app.candidate is not None
+        for _ in range(40):
+            t = time.perf_counter()
+            await pilot.press("right")
+            await pilot.pause()
+            idle.append(time.perf_counter() - t)
+    # Every sixth step returns to the committed value, which shows no candidate.
+    assert previewed >= EDITS * 2 // 3, previewed
+    return times, idle
+
+
+def first_frame(path: str) -> float | None:
+    if not (shutil.which("tmux") and shutil.which("stageledger")):
+        return None
+    sock = "stageledger-bench"
+    t = time.perf_counter()
+    subprocess.run(["tmux", "-L", sock, "new-session", "-d", "-x", "100", "-y", "30",
+                    f"stageledger {path}"], check=True)
+    try:
+        while time.perf_counter() - t < 20:
+            screen = subprocess.run(["tmux", "-L", sock, "capture-pane", "-p"], capture_output=True,
+                                    text=True).stdout
+            if "operating point" in screen:
+                return time.perf_counter() - t
+            time.sleep(0.01)
+        return None
+    finally:
+        subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True)
+
+
+def main() -> None:
+    with tempfile.TemporaryDirectory() as tmp:
+        path = str(pathlib.Path(tmp) / "bench.toml")
+        shutil.copy(DEMO, path)
+        times, idle = asyncio.run(keypress_times(path))
+        cuts = statistics.quantiles(times, n=20)
+        print(f"keypress_to_readout_edits: {len(times)} edits")
+        print(f"keypress_to_readout_p50: {1e3 * statistics.median(times):.1f} ms")
+        print(f"keypress_to_readout_p95: {1e3 * cuts[18]:.1f} ms")
+        print(f"pilot_round_trip_noop_key_p50: {1e3 * statistics.median(idle):.1f} ms")
+        start = first_frame(path)
+        print(f"start_to_first_frame: {start:.2f} s" if start is not None
+              else "start_to_first_frame: skipped (needs tmux and the installed command)")
+
+
+if __name__ == "__main__":
+    main()
