@@ -116,6 +116,11 @@ def test_set_prints_every_figure_before_and_after_with_the_change(tmp_path, caps
             shown = rows[key][2]
             assert shown.endswith(" dB")
             assert abs(float(shown.split()[0]) - 20 * math.log10(abs(a) / abs(b))) <= 0.006, key
+        elif key == "tj":
+            # A temperature moves in kelvin: a per cent of a Celsius reading means nothing.
+            shown = rows[key][2]
+            assert shown.endswith(" K")
+            assert math.isclose(float(shown.split()[0]), a - b, rel_tol=5.1e-3, abs_tol=1e-3)
         elif key != "region":
             shown = rows[key][2]
             assert shown.endswith("%"), key
