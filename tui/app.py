@@ -15,7 +15,7 @@ import shutil
 from dataclasses import dataclass
 
 from textual import work
-from textual.app import App, ComposeResult
+from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.message import Message
@@ -270,6 +270,22 @@ class Workbench(App):
         return self.session
 
     # -- actions ----------------------------------------------------------------
+
+    #: Every action by name for the command palette (Ctrl+P), with its keys.
+    PALETTE = (
+        ("Help", "list every key (F1)", "help"),
+        ("Note for the next commit", "F2 or Ctrl+N", "note"),
+        ("Show ledger / readout", "switch on a narrow screen (F3)", "toggle_ledger"),
+        ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
+        ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
+        ("Undo", "the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
+        ("Redo", "the last undone change, logged (F8 or Ctrl+Y)", "redo"),
+    )
+
+    def get_system_commands(self, screen):
+        yield from super().get_system_commands(screen)
+        for title, text, action in self.PALETTE:
+            yield SystemCommand(title, text, getattr(self, "action_" + action))
 
     def action_help(self) -> None:
         self.push_screen(HelpScreen())

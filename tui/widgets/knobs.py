@@ -88,7 +88,11 @@ class KnobInput(Input):
     ]
 
     def __init__(self, key: str, value: str):
-        super().__init__(value, id="knob-" + key.replace(".", "-"), compact=True, select_on_focus=True)
+        # validate_on=(): Input's own validation (with no validators) marks every
+        # value "-valid" on change, blur and submit, which would wipe the app's
+        # "-invalid" mark before Enter is handled; the app is the validator here.
+        super().__init__(value, id="knob-" + key.replace(".", "-"), compact=True, select_on_focus=True,
+                         validate_on=())
         self.key = key
 
     def action_step(self, steps: int) -> None:
