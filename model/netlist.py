@@ -67,9 +67,6 @@ class Bjt:
     tags: frozenset = field(default_factory=frozenset)
 
 
-Element = Resistor | Capacitor | VoltageSource | Bjt
-
-
 @dataclass(frozen=True)
 class Netlist:
     """Elements plus the batch size they describe."""

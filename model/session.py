@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 from . import ledger
 from .analysis import Figures, analyse
-from .design import Design, design_from_dict, with_values
+from .design import Design, with_values
 from .designfile import Document, dumps_document, read_document
 from .errors import StageledgerError
 from .historyfile import entry_text
@@ -196,7 +196,3 @@ def design_at(spec: str) -> tuple:
             raise StageledgerError(f"{path}: has no history, so there is no entry {number}")
         return ledger.replay(doc.history, int(number)), spec
     return read_document(spec).design, spec
-
-
-def snapshot_design(entry: Entry) -> Design:
-    return design_from_dict({"format": 1, **entry.snapshot})

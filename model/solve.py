@@ -143,8 +143,11 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
     """
     plan = plan_for(net, DC)
     bjts = net.of_type(Bjt)
-    g, v = _values(net, plan)
-    a, b = _assemble_linear(plan, g, v)
+    # A part at the edge of float range (a 1e-300 Ω resistor is "valid") may
+    # overflow; such a row comes out non-finite and is flagged, not raised.
+    with np.errstate(over="ignore", invalid="ignore"):
+        g, v = _values(net, plan)
+        a, b = _assemble_linear(plan, g, v)
     n_ports = plan.n_ports
     y, j, back = _schur(a, b, n_ports)
     pick = plan.term_pick[:n_ports]
@@ -351,8 +354,9 @@ def small_signal(
     test currents into nodes (node → A).
     """
     plan = plan_for(net, MIDBAND if omega is None else AC)
-    g, v = _values(net, plan, omega=omega, excite=excite or {})
-    a, b = _assemble_linear(plan, g, v)
+    with np.errstate(over="ignore", invalid="ignore"):
+        g, v = _values(net, plan, omega=omega, excite=excite or {})
+        a, b = _assemble_linear(plan, g, v)
     bjts = net.of_type(Bjt)
     if bjts:
         g_t = _terminal_conductance([op.states[q.name] for q in bjts])

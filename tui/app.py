@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import os
 import pathlib
-import shutil
 from dataclasses import dataclass
 
 from textual import work
@@ -25,6 +24,7 @@ from model import ledger
 from model.analysis import Figures, analyse
 from model.design import Design, SERIES, get_value, with_values
 from model.errors import StageledgerError
+from model.savefile import atomic_write
 from model.session import DesignSession
 from model.stepping import choices, step, step_decade
 
@@ -70,14 +70,16 @@ class Workbench(App):
     TITLE = "stageledger"
     HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]
     BINDINGS = [
+        # The footer shows the first key of each; F3 and F5 are left to the help
+        # screen so that the rest fits at 80 columns.
         Binding("f1", "help", "help", id="help"),
         Binding("f2,ctrl+n", "note", "note", id="note"),
-        Binding("f3", "toggle_ledger", "ledger", id="toggle-ledger"),
+        Binding("f3", "toggle_ledger", "ledger", id="toggle-ledger", show=False),
         Binding("f4", "baseline", "baseline", id="baseline"),
-        Binding("f5", "cycle_series", "series", id="series"),
+        Binding("f5", "cycle_series", "series", id="series", show=False),
         Binding("f7,ctrl+z", "undo", "undo", id="undo"),
         Binding("f8,ctrl+y", "redo", "redo", id="redo"),
-        Binding("f10,ctrl+q", "quit", "quit", id="quit", priority=True),
+        Binding("f10", "quit", "quit", id="quit", priority=True),
     ]
 
     def __init__(self, design: Design, *, session: DesignSession | None, source: str,
@@ -102,8 +104,9 @@ class Workbench(App):
         with Horizontal(id="main"):
             yield Knobs(self.design, id="knobs")
             with VerticalScroll(id="readout-box"):
-                yield Static(id="readout")
+                # Warnings first: at 80×24 the bottom of the readout is out of sight.
                 yield Static(id="warnings", markup=False)
+                yield Static(id="readout")
             with Vertical(id="ledger-box"):
                 yield Static("Ledger", classes="pane-title")
                 yield LedgerPane(id="ledger")
@@ -183,7 +186,9 @@ class Workbench(App):
         field = self.query_one(Knobs).field(message.key)
         committed = field_text(message.key, get_value(self.design, message.key))
         if message.text.strip() == committed:
-            self._abandon(message.key, quiet=True)
+            # Also the fields' own change events as they mount: nothing to do.
+            if self.candidate is not None and self.candidate.key == message.key:
+                self._abandon(message.key, quiet=True)
             return
         try:
             design = with_values(self.design, {message.key: message.text})
@@ -264,7 +269,10 @@ class Workbench(App):
         if self.demo_copy_dir is None:
             raise StageledgerError(f"{self.source} is open read-only")
         copy = _free_name(pathlib.Path(self.demo_copy_dir) / pathlib.Path(self.source).name)
-        shutil.copyfile(self.source, copy)
+        try:
+            atomic_write(str(copy), pathlib.Path(self.source).read_bytes(), None, create=True)
+        except OSError as err:
+            raise StageledgerError(f"cannot read the bundled demo {self.source}: {err.strerror}") from None
         self.session = DesignSession(str(copy))
         self.notify(f"saved a copy of the demo as {copy}", title="demo copied", timeout=8)
         return self.session

@@ -69,10 +69,10 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
     value_width = _VALUE if compare else _VALUE + 8
     head = f"{'figure':<{_LABEL}}"
     if compare:
-        head += f"{reference_label:>{_VALUE}}"
-    head += f"{shown_label:>{value_width}}"
+        head += _right(reference_label, _VALUE)
+    head += _right(shown_label, value_width)
     if compare:
-        head += f"{'change':>{_CHANGE}}"
+        head += _right("change", _CHANGE)
     out = Text(head + "\n", style="bold")
     for heading, rows in ROWS:
         out.append(heading + "\n", style="italic")
@@ -81,15 +81,21 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
             line = f"  {label:<{_LABEL - 2}}"
             if compare:
                 b = getattr(reference, key)
-                line += f"{show(b, kind, compact=True):>{_VALUE}}"
-            line += f"{show(a, kind, compact=compare):>{value_width}}"
+                line += _right(show(b, kind, compact=True), _VALUE)
+            line += _right(show(a, kind, compact=compare), value_width)
             if compare:
                 moved = "" if _nan(a) or _nan(b) else relative_change(b, a, key)
-                line += f"{(moved + ' ' + _arrow(key, b, a)).strip():>{_CHANGE}}"
+                line += _right((moved + " " + _arrow(key, b, a)).strip(), _CHANGE)
             out.append(line + "\n")
     out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
                + f"{tj_max:g} °C".rjust(value_width))
     return out
+
+
+def _right(text: str, width: int) -> str:
+    """``text`` right-aligned in ``width``, always after at least one space: a
+    value as wide as its column ("saturation") must not run into the one before."""
+    return f"{' ' + text:>{width}}"
 
 
 def _nan(v) -> bool:

@@ -1,0 +1,64 @@
+"""Whole-screen snapshots of the workbench at the two sizes it is designed for.
+
+The baselines are SVGs under tests/__snapshots__/; after a deliberate change
+to the layout, look at the new screens and accept them with
+``python3 -m pytest tests/test_workbench_snapshots.py --snapshot-update``.
+
+To keep the pictures the same from run to run: the design file has no
+history (the ledger would show clock times), it is opened by a relative name
+(the header shows the path), the cursor does not blink, and the large-signal
+sweep has finished before the picture is taken.
+"""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+
+pytest.importorskip("pytest_textual_snapshot")
+
+import tui.app  # noqa: E402
+from textual.widgets import Input  # noqa: E402
+from tui.launch import make_app  # noqa: E402
+
+DEMO = Path(__file__).resolve().parent.parent / "saved_designs" / "geophone_preamp.toml"
+
+
+@pytest.fixture
+def app(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.delenv("NO_COLOR", raising=False)  # colour is part of the picture
+    shutil.copyfile(DEMO, tmp_path / "preamp.toml")
+    return make_app("preamp.toml")
+
+
+def _steady(pilot):
+    for field in pilot.app.query(Input):
+        field.cursor_blink = False
+
+
+async def _settle(pilot):
+    await pilot.pause(tui.app.DEBOUNCE + 0.1)
+    await pilot.app.workers.wait_for_complete()
+    await pilot.pause()
+
+
+def test_opening_screen_80x24(app, snap_compare):
+    async def before(pilot):
+        _steady(pilot)
+        await pilot.pause()
+
+    assert snap_compare(app, terminal_size=(80, 24), run_before=before)
+
+
+def test_candidate_with_ledger_120x40(app, snap_compare):
+    async def before(pilot):
+        _steady(pilot)
+        pilot.app.query_one("#knob-stage-rc").focus()
+        await pilot.pause()
+        await pilot.press("1", "0", "k")
+        await _settle(pilot)
+
+    assert snap_compare(app, terminal_size=(120, 40), run_before=before)
