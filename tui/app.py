@@ -211,10 +211,9 @@ class Workbench(App):
         words = choices(key)
         if words:
             new = words[(words.index(value) + message.steps) % len(words)]
-        elif isinstance(value, (int, float)) and key != "name":
-            move = step_decade if message.decade else step
-            new = move(key, value, message.steps) if message.decade else \
-                move(key, value, message.steps, self.design.parts.series)
+        elif isinstance(value, (int, float)):
+            new = (step_decade(key, value, message.steps) if message.decade
+                   else step(key, value, message.steps, self.design.parts.series))
         else:
             return
         field.value = field_text(key, new)  # fires KnobEdited, which previews it
