@@ -117,7 +117,8 @@ class Workbench(App):
         self.sub_title = self._where()
         self.query_one(LedgerPane).show(self.history)
         self._refresh_readout()
-        self.query_one(Knobs).query(KnobInput).first().focus()
+        # Start on the supply, the first value people tune; the name is above it.
+        self.query_one(Knobs).field("supply.vcc").focus()
         self._say("Tab moves, type or Up/Down to try a value, Enter commits, Esc abandons, F1 help")
 
     @property

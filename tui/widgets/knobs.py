@@ -95,6 +95,10 @@ class KnobInput(Input):
                          validate_on=())
         self.key = key
 
+    def on_mount(self) -> None:
+        # Show the start of a long value (a design's name), not its end.
+        self.cursor_position = 0
+
     def action_step(self, steps: int) -> None:
         self.post_message(KnobStepped(self.key, steps, False))
 
