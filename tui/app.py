@@ -30,8 +30,7 @@ from model.stepping import choices, step, step_decade
 
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
-from .widgets.knobs import (KnobAbandoned, KnobCommitted, KnobEdited, KnobInput, Knobs,
-                            KnobStepped, field_text)
+from .widgets.knobs import KnobAbandoned, KnobCommitted, KnobEdited, Knobs, KnobStepped, field_text
 from .widgets.ledger_pane import LedgerPane
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.

@@ -1,0 +1,190 @@
+"""Every design file key: its unit and the rule its value must keep, per topology.
+
+One table (``FIELDS``) is the single source for parsing, validation and the
+error messages that name the key, the value and the limit.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import numbers
+import unicodedata
+from dataclasses import dataclass
+
+from .errors import DesignError, UnitError
+from .units import parse_value
+
+FORMAT = 1
+TOPOLOGIES = ("common-emitter", "emitter-follower")
+SERIES = ("E6", "E12", "E24", "E48", "E96")
+POLARITIES = ("npn", "pnp")
+CE, EF = TOPOLOGIES
+
+
+@dataclass(frozen=True)
+class Rule:
+    """What a value must be; ``text`` says it in words for error messages.
+
+    kind "number": low/high limits (strict or not); open_ok lets the string
+    "open" (or +inf) stand for an infinite resistance. kind "choice": one of
+    choices. kind "text": any string; one_line also refuses control characters.
+    """
+
+    text: str
+    kind: str = "number"
+    low: float = -math.inf
+    low_strict: bool = False
+    high: float = math.inf
+    high_strict: bool = False
+    open_ok: bool = False
+    choices: tuple[str, ...] = ()
+    one_line: bool = False
+
+
+def _range(unit: str, low: float | None = None, high: float | None = None, *,
+           low_strict: bool = True, high_strict: bool = False,
+           high_shown: str | None = None, open_ok: bool = False) -> Rule:
+    words = []
+    if low is not None:
+        words.append(("greater than " if low_strict else "at least ") + f"{low:g} {unit}".rstrip())
+    if high is not None:
+        shown = high_shown or f"{high:g} {unit}".rstrip()
+        words.append(("less than " if high_strict else "at most ") + shown)
+    text = "must be " + (" and ".join(words) or "a finite number")
+    text += ", or 'open' for none" if open_ok else ""
+    return Rule(text, low=-math.inf if low is None else low, low_strict=low_strict,
+                high=math.inf if high is None else high, high_strict=high_strict, open_ok=open_ok)
+
+
+def _choice(choices: tuple[str, ...]) -> Rule:
+    return Rule("must be " + " or ".join(f"'{c}'" for c in choices), kind="choice", choices=choices)
+
+
+@dataclass(frozen=True)
+class Field:
+    """A file key: the unit its strings are parsed in and, per topology using it, its rule."""
+    unit: str
+    rules: dict[str, Rule]
+
+
+def _both(unit: str, rule: Rule) -> Field:
+    return Field(unit, {t: rule for t in TOPOLOGIES})
+
+
+_ANY_TEXT = Rule("must be text", kind="text")
+_POSITIVE_OHMS = _range("Ω", 0)
+_ABSOLUTE_ZERO = -273.15
+
+# The one table of every file key: unit and rule. Numbers must be finite
+# unless the rule says "open".
+FIELDS: dict[str, Field] = {
+    "name": _both("", Rule("must be one line of text", kind="text", one_line=True)),
+    "topology": _both("", _choice(TOPOLOGIES)),
+    "notes": _both("", _ANY_TEXT),
+    "supply.vcc": _both("V", _range("V", 0, 1000)),
+    "bias.r1": _both("Ω", _POSITIVE_OHMS),
+    "bias.r2": _both("Ω", _POSITIVE_OHMS),
+    "stage.rc": Field("Ω", {CE: _POSITIVE_OHMS, EF: _range("Ω", 0, low_strict=False)}),
+    "stage.re1": Field("Ω", {CE: _range("Ω", 0, low_strict=False)}),
+    "stage.re2": Field("Ω", {CE: _range("Ω", 0, low_strict=False)}),
+    "stage.ce": Field("F", {CE: _range("F", 0)}),
+    "stage.re": Field("Ω", {EF: _POSITIVE_OHMS}),
+    "stage.cin": _both("F", _range("F", 0)),
+    "stage.cout": _both("F", _range("F", 0)),
+    "source.rs": _both("Ω", _range("Ω", 0, low_strict=False)),
+    "source.vpk": _both("V", _range("V", 0, low_strict=False)),
+    "source.freq": _both("Hz", _range("Hz", 0)),
+    "load.rl": _both("Ω", _range("Ω", 0, open_ok=True)),
+    "load.cl": _both("F", _range("F", 0, low_strict=False)),
+    "transistor.polarity": _both("", _choice(POLARITIES)),
+    "transistor.beta": _both("", _range("", 0)),
+    "transistor.beta_r": _both("", _range("", 0)),
+    "transistor.va": _both("V", _range("V", 0)),
+    "transistor.i_s": _both("A", _range("A", 0, 1e-6, high_strict=True, high_shown="1 µA")),
+    "transistor.ft": _both("Hz", _range("Hz", 0)),
+    "transistor.cmu": _both("F", _range("F", 0, low_strict=False)),
+    "transistor.vceo": _both("V", _range("V", 0)),
+    "transistor.pd_max": _both("W", _range("W", 0)),
+    "transistor.theta_ja": _both("K/W", _range("K/W", 0)),
+    "transistor.tj_max": _both("°C", _range("°C", _ABSOLUTE_ZERO)),
+    "transistor.xti": _both("", _range("")),
+    "transistor.eg": _both("eV", _range("eV", 0, 5, high_strict=True)),
+    "transistor.xtb": _both("", _range("")),
+    "environment.ambient": _both("°C", _range("°C", _ABSOLUTE_ZERO, 300)),
+    "parts.resistor_power": _both("W", _range("W", 0)),
+    "parts.series": _both("", _choice(SERIES)),
+    "estimate.vbe": _both("V", _range("V", 0, 2, high_strict=True)),
+}
+
+
+def keys_for(topology: str) -> tuple[str, ...]:
+    """Every file key a design of this topology has, in file order."""
+    return tuple(k for k, f in FIELDS.items() if topology in f.rules)
+
+
+def rule_for(key: str, topology: str) -> Rule:
+    """The rule ``key`` follows in a design of ``topology``; DesignError if it has none."""
+    field = FIELDS.get(key)
+    if field is None:
+        close = difflib.get_close_matches(key, FIELDS, n=1)
+        hint = f"; did you mean {close[0]}?" if close else ""
+        raise DesignError(key, None, f"is not a design key{hint}")
+    if topology not in field.rules:
+        table = key.split(".")[0] + "."
+        own = ", ".join(k.removeprefix(table) for k in keys_for(topology) if k.startswith(table))
+        raise DesignError(key, None, f"is not used by a {topology} design, whose {table[:-1]} keys are {own}")
+    return field.rules[topology]
+
+
+class _Cut(str):
+    """A long value's repr, cut short; shown as is so it does not look like a string."""
+
+    def __repr__(self) -> str:
+        return str(self)
+
+
+def _shown(value: object) -> object:
+    """The value as an error shows it: long ones cut so messages stay one readable line."""
+    text = repr(value)
+    return value if len(text) <= 80 else _Cut(text[:77] + "...")
+
+
+def check_value(key: str, topology: str, value: object) -> float | str:
+    """``value`` (number or string, e.g. "4k7") as the SI float or text ``key`` stores.
+
+    Raises DesignError naming the key, the value and the rule it breaks.
+    """
+    try:
+        rule = rule_for(key, topology)
+    except DesignError as err:
+        raise DesignError(key, _shown(value), err.rule) from None
+
+    def broken(reason: str) -> DesignError:
+        return DesignError(key, _shown(value), reason)
+
+    if rule.kind == "text":
+        if not isinstance(value, str) or (
+                rule.one_line and any(unicodedata.category(c) in ("Cc", "Zl", "Zp") for c in value)):
+            raise broken(rule.text)
+        return value
+    if rule.kind == "choice":
+        typed = value.strip().casefold() if isinstance(value, str) else None
+        found = [c for c in rule.choices if c.casefold() == typed]
+        if not found:
+            raise broken(rule.text)
+        return found[0]
+    if isinstance(value, bool) or not isinstance(value, (numbers.Real, str)):
+        # bool is an int to Python but never a quantity to a person.
+        raise broken(f"must be a number (or a string such as '4k7'); {rule.text}")
+    if rule.open_ok and isinstance(value, str) and value.strip().casefold() == "open":
+        return math.inf
+    try:
+        number = parse_value(value, FIELDS[key].unit, allow_inf=rule.open_ok)
+    except UnitError as err:
+        raise broken(f"{err.reason}; {rule.text}") from None
+    too_low = number <= rule.low if rule.low_strict else number < rule.low
+    too_high = number >= rule.high if rule.high_strict else number > rule.high
+    if too_low or too_high:
+        raise broken(rule.text)
+    return number
