@@ -41,13 +41,19 @@ def region_of(ic, vbc) -> np.ndarray:
     return np.where(vbc > VBC_SATURATION, SATURATION, np.where(ic < IC_CUTOFF, CUTOFF, ACTIVE))
 
 
-def _margins(op: OperatingPoint):
-    """(saturation margin V, cut-off margin in nepers); both ≥ 0 while active."""
+def _margin(op: OperatingPoint):
+    """How far each row is inside forward-active: the smaller of the saturation
+    margin (V) and the cut-off margin (nepers, clipped); ≥ 0 while active."""
     st = op.states[TRANSISTOR]
     vbc = op.junctions[:, 0, 1]
     with np.errstate(divide="ignore", invalid="ignore"):
         cut = np.log(np.maximum(st.ic, 1e-300) / IC_CUTOFF)
-    return VBC_SATURATION - vbc, cut
+    return np.minimum(VBC_SATURATION - vbc, np.clip(cut, -50.0, 50.0))
+
+
+def _sweep(span: float) -> np.ndarray:
+    """The coarse EMF grid (V): symmetric about 0, log-spaced out to ±span."""
+    return span * np.concatenate([-_GRID[:0:-1], _GRID])
 
 
 @dataclass(frozen=True)
@@ -86,7 +92,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     out_q = float(op.voltages[stage.output][0])
     full = _SPAN_PER_VOLT * vcc
     span = full if span is None else min(span, full)
-    grid = span * np.concatenate([-_GRID[:0:-1], _GRID])
+    grid = _sweep(span)
     phase = 2.0 * np.pi * np.arange(FFT_POINTS) / FFT_POINTS
     wave = vpk * np.sin(phase)
     predict = _predictor(stage, op)
@@ -101,7 +107,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     coarse = sol.take(np.arange(grid.size))
     brackets = _brackets(coarse, grid)
     if span < full and any(i == j for i, j in brackets):
-        grid = full * np.concatenate([-_GRID[:0:-1], _GRID])
+        grid = _sweep(full)
         coarse = _solve_at(held, grid, predict(grid))
         curve_out = coarse.voltages[stage.output] - out_q
         brackets = _brackets(coarse, grid)
@@ -113,8 +119,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
 
 def _brackets(coarse: OperatingPoint, grid):
     """For each direction, (last active, first non-active) grid indices."""
-    sat, cut = _margins(coarse)
-    active = (np.minimum(sat, np.clip(cut, -50.0, 50.0)) >= 0.0) & coarse.converged
+    active = (_margin(coarse) >= 0.0) & coarse.converged
     return [_bracket(active, grid.size // 2, step) for step in (-1, 1)]
 
 
@@ -123,8 +128,7 @@ def _edges(held, stage, grid, brackets, curve_out, out_q, predict):
     active side's margin to zero.  Returns (edge EMFs, output excursions)."""
     fine = np.concatenate([np.linspace(grid[i], grid[j], _FINE) for i, j in brackets])
     fine_sol = _solve_at(held, fine, predict(fine))
-    f_sat, f_cut = _margins(fine_sol)
-    f_margin = np.minimum(f_sat, np.clip(f_cut, -50.0, 50.0))
+    f_margin = _margin(fine_sol)
     f_active = (f_margin >= 0.0) & fine_sol.converged
     f_out = fine_sol.voltages[stage.output] - out_q
     edges, outs = [], []
@@ -190,7 +194,7 @@ def _extrapolate(emf, margin, active, out):
     if last < 0:
         return float(emf[0]), float(out[0])
     pts = slice(max(last - 2, 0), last + 1)
-    x, m, o = (float_list(a[pts]) for a in (emf, margin, out))
+    x, m, o = ([float(v) for v in a[pts]] for a in (emf, margin, out))
     step = float(emf[1] - emf[0]) if emf.size > 1 else 0.0
     if len(x) < 2 or step == 0.0:
         return x[-1], o[-1]
@@ -204,10 +208,6 @@ def _extrapolate(emf, margin, active, out):
     lo, hi = sorted((x[-1], x[-1] + step))
     edge = min(max(edge, lo), hi)
     return edge, _lagrange(x, o, edge)[0]
-
-
-def float_list(a) -> list:
-    return [float(v) for v in a]
 
 
 def _lagrange(xs: list, ys: list, t: float):

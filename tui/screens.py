@@ -1,4 +1,4 @@
-"""Modal screens: help, the note prompt and yes/no questions."""
+"""Modal screens: help and the note prompt."""
 
 from __future__ import annotations
 
@@ -63,21 +63,3 @@ class NotePrompt(ModalScreen[str | None]):
 
     def action_cancel(self) -> None:
         self.dismiss(None)
-
-
-class Question(ModalScreen[bool]):
-    """A yes/no question; y or Enter says yes, n or Esc says no."""
-
-    BINDINGS = [Binding("y,enter", "answer(True)", "yes"), Binding("n,escape", "answer(False)", "no")]
-
-    def __init__(self, text: str):
-        super().__init__()
-        self._text = text
-
-    def compose(self) -> ComposeResult:
-        with Vertical(classes="dialog"):
-            yield Static(self._text, markup=False)
-            yield Label("y / Enter: yes     n / Esc: no", classes="dialog-hint")
-
-    def action_answer(self, yes: bool) -> None:
-        self.dismiss(yes)
