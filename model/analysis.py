@@ -16,6 +16,7 @@ from .errors import SolveError
 from .hand import HandEstimate, hand_estimate
 from .midband import decibels, device_small_signal, midband
 from .power import dissipation
+from .response import POINTS_PER_DECADE, Response, device_capacitance, response as _response
 from .solve import operating_point
 from .topologies import TRANSISTOR, build, shape_of
 from .transfer import LargeSignal, region_of
@@ -36,6 +37,7 @@ FIGURE_KEYS = (
     "av_open", "av_loaded", "av_source", "rin", "rin_base", "rout",
     "swing_up", "swing_down", "thd", "hd2", "hd3",
     "p_transistor", "p_supply", "i_supply", "tj",
+    "f_low", "f_high", "bandwidth", "gain_at_freq", "phase_at_freq", "c_pi",
 )
 
 
@@ -85,6 +87,12 @@ class Figures:
     p_supply: float
     i_supply: float
     tj: float
+    f_low: float
+    f_high: float
+    bandwidth: float
+    gain_at_freq: float
+    phase_at_freq: float
+    c_pi: float
     hand: HandEstimate
     warnings: tuple
     p_resistors: dict = field(default_factory=dict)
@@ -93,8 +101,10 @@ class Figures:
     ic_beta_double: float = 0.0
     kcl_residual: float = 0.0
     newton_iterations: int = 0
-    #: False when swing and distortion were not computed (they are NaN).
+    #: False when swing, distortion and the response were not computed (they are NaN).
     large_signal: bool = True
+    #: The sweep and the per-capacitor estimates behind f_low and f_high.
+    response: Response | None = None
 
     def to_dict(self) -> dict:
         """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras."""
@@ -106,6 +116,16 @@ class Figures:
         out["p_resistors"] = dict(self.p_resistors)
         for k in ("vout_wanted", "ic_beta_half", "ic_beta_double", "kcl_residual", "newton_iterations"):
             out[k] = getattr(self, k)
+        out["gain_at_freq_db"] = float(decibels(self.gain_at_freq))
+        r = self.response
+        if r is not None:
+            out["f_low_by"] = r.low_by.part if r.low_by else None
+            out["f_high_by"] = r.high_by.part if r.high_by else None
+            out["f_low_parts"] = {p.part: _plain(p.freq) for p in r.low_parts}
+            out["f_high_parts"] = {p.part: _plain(p.freq) for p in r.high_parts}
+            out["f_low_estimate"] = r.f_low_estimate
+            out["f_high_estimate"] = r.f_high_estimate
+            out["f_high_miller"] = r.f_high_miller
         return {k: _plain(v) for k, v in out.items()}
 
 
@@ -116,12 +136,13 @@ def _plain(v):
     return v
 
 
-def analyse(design: Design, *, large_signal: bool = True) -> Figures:
+def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POINTS_PER_DECADE) -> Figures:
     """Every figure of ``design``; raises SolveError if no operating point is found.
 
-    With ``large_signal=False`` the swing and distortion figures are NaN and
-    the headroom warning is not judged: the quick figures a live readout shows
-    while the large-signal sweep runs elsewhere.
+    With ``large_signal=False`` the swing, distortion and frequency-response
+    figures are NaN and the headroom warning is not judged: the quick figures
+    a live readout shows while the slower sweeps run elsewhere.
+    ``per_decade`` is the density of the frequency sweep kept in ``response``.
     """
     t = design.transistor
     variants = [design, _with_beta(design, t.beta / 2.0), _with_beta(design, t.beta * 2.0)]
@@ -143,6 +164,9 @@ def analyse(design: Design, *, large_signal: bool = True) -> Figures:
     span = 3.0 * design.supply.vcc / max(abs(float(mid.av_source[0])), 1e-6) + 1.0 * (1.0 + rs / rin)
     big = (_large_signal(nominal, op, design.supply.vcc, design.source.vpk, span) if large_signal
            else LargeSignal(*(math.nan,) * 5, (math.nan, math.nan), np.zeros(0), np.zeros(0)))
+    caps = device_capacitance(float(dev.gm[0]), t.ft, t.cmu)
+    resp = (_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq, per_decade=per_decade)
+            if large_signal else None)
     power = dissipation(nominal, op)
     p_q = float(power.p_transistor[0])
     tj = design.environment.ambient + p_q * t.theta_ja
@@ -157,9 +181,10 @@ def analyse(design: Design, *, large_signal: bool = True) -> Figures:
         design, region=region, ic=ic, vce=vbe - vbc, vbc=vbc,
         swing_up=big.swing_up, swing_down=big.swing_down, wanted_out=wanted,
         p_transistor=p_q, tj=tj, p_resistors=p_res,
-        ic_beta_half=ic_half, ic_beta_double=ic_double,
+        ic_beta_half=ic_half, ic_beta_double=ic_double, device=caps, ft=t.ft,
     )
     v = op.voltages
+    nan = math.nan
     return Figures(
         region=region, ic=ic, ib=float(st.ib[0]), vbe=vbe, vce=vbe - vbc,
         vb=float(v[nominal.base][0]), ve=float(v[nominal.emitter][0]), vc=float(v[nominal.collector][0]),
@@ -168,6 +193,10 @@ def analyse(design: Design, *, large_signal: bool = True) -> Figures:
         rin=float(mid.rin[0]), rin_base=float(mid.rin_base[0]), rout=float(mid.rout[0]),
         swing_up=big.swing_up, swing_down=big.swing_down, thd=big.thd, hd2=big.hd2, hd3=big.hd3,
         p_transistor=p_q, p_supply=float(power.p_supply[0]), i_supply=float(power.i_supply[0]), tj=tj,
+        f_low=resp.f_low if resp else nan, f_high=resp.f_high if resp else nan,
+        bandwidth=resp.bandwidth if resp else nan,
+        gain_at_freq=abs(resp.gain_at_freq) if resp else nan,
+        phase_at_freq=resp.phase_at_freq if resp else nan, c_pi=caps.c_pi, response=resp,
         hand=hand_estimate(design), warnings=warnings, p_resistors=p_res, vout_wanted=wanted,
         ic_beta_half=ic_half, ic_beta_double=ic_double,
         kcl_residual=float(op.residual[0]), newton_iterations=op3.iterations,

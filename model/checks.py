@@ -31,7 +31,7 @@ def _v(x, unit):
 
 
 def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
-                   p_transistor, tj, p_resistors, ic_beta_half, ic_beta_double) -> tuple:
+                   p_transistor, tj, p_resistors, ic_beta_half, ic_beta_double, device, ft) -> tuple:
     """All warnings for one analysed design (scalars in SI units)."""
     t = d.transistor
     out = []
@@ -66,6 +66,9 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
             out.append(Warning_("BETA-DEPENDENT", f"IC moves {100 * moves[0]:.0f} % with β halved and "
                                 f"{100 * moves[1]:.0f} % with β doubled (limit 10 %): stiffen the divider "
                                 "or add emitter resistance"))
+    if device.floored:
+        out.append(Warning_("FT-INCONSISTENT", f"ft {_v(ft, 'Hz')} is beyond what gm and cmu allow: "
+                            f"gm/(2π·ft) is below cmu {_v(device.c_mu, 'F')}, so Cπ is taken as 0"))
     if d.supply.vcc > SAFE_DC_VOLTS:
         out.append(Warning_("HAZARDOUS-VOLTAGE", f"supply {_v(d.supply.vcc, 'V')} exceeds 60 V DC: a shock "
                             "hazard; follow local codes and licensed practice"))

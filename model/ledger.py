@@ -23,7 +23,7 @@ ACTIONS = (START, SET, UNDO, REDO, HAND_EDIT)
 
 #: The figures every entry records before and after its change.
 HEADLINE = ("ic", "vce", "region", "av_loaded", "av_source", "rin", "rout", "swing_up",
-            "swing_down", "thd", "p_transistor", "p_supply", "tj")
+            "swing_down", "thd", "p_transistor", "p_supply", "tj", "f_low", "f_high")
 
 
 @dataclass(frozen=True)
@@ -61,8 +61,10 @@ class Entry:
 
 def headline(fig: Figures) -> dict:
     """The HEADLINE figures of an analysis, to six significant figures: the
-    ledger is read by people, and the design itself can always be re-analysed."""
-    return {k: _sig(getattr(fig, k)) for k in HEADLINE}
+    ledger is read by people, and the design itself can always be re-analysed.
+    A figure that does not exist for this design (NaN: no −3 dB band) is left out."""
+    values = {k: getattr(fig, k) for k in HEADLINE}
+    return {k: _sig(v) for k, v in values.items() if not (isinstance(v, float) and math.isnan(v))}
 
 
 def _sig(value, digits: int = 6):

@@ -8,6 +8,7 @@ shape.  Node ``"0"`` is ground.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 
@@ -79,6 +80,13 @@ class Netlist:
         if len(set(names)) != len(names):
             raise ValueError(f"duplicate element names in {names}")
 
+    @cached_property
+    def signature(self) -> tuple:
+        """The shape: each element's kind, name, nodes and coupling flag (values
+        left out).  Cached: a plan is looked up by it on every solve."""
+        return tuple((type(e).__name__, e.name, terminals(e), getattr(e, "coupling", None))
+                     for e in self.elements)
+
     @property
     def nodes(self) -> tuple[str, ...]:
         """Every node name except ground, in first-seen order."""
@@ -102,6 +110,14 @@ class Netlist:
         """The same circuit with every element carrying one of ``tags`` removed."""
         drop = set(tags)
         return Netlist(tuple(e for e in self.elements if not (e.tags & drop)), self.batch)
+
+    def drop(self, *names: str) -> "Netlist":
+        """The same circuit without the elements called ``names``."""
+        return Netlist(tuple(e for e in self.elements if e.name not in names), self.batch)
+
+    def with_elements(self, *extra) -> "Netlist":
+        """The same circuit with ``extra`` elements added."""
+        return Netlist(self.elements + tuple(extra), self.batch)
 
     def with_source(self, name: str, v) -> "Netlist":
         """The same circuit with voltage source ``name`` set to ``v`` volts."""

@@ -55,6 +55,8 @@ class Plan:
     term_pick: np.ndarray
     term_coef: np.ndarray
     index: dict  # node → unknown number, −1 when known
+    #: Nodes held at 0 V only because nothing conducts to them in this analysis.
+    floating: frozenset
     term_spread: np.ndarray  # (3k·3k, n·n): where a terminal conductance block lands in A
 
     # The same products as sparse sums, for big batches where a dense matrix
@@ -74,18 +76,7 @@ class Plan:
 
 def plan_for(net: Netlist, kind: str) -> Plan:
     """The (cached) plan of ``net``'s shape for a DC, MIDBAND or AC analysis."""
-    signature = tuple(
-        (type(e).__name__, e.name, _ends(e), getattr(e, "coupling", None)) for e in net.elements
-    )
-    return _build(signature, kind)
-
-
-def _ends(e):
-    if isinstance(e, Bjt):
-        return (e.c, e.b, e.e)
-    if isinstance(e, VoltageSource):
-        return (e.plus, e.minus)
-    return (e.a, e.b)
+    return _build(net.signature, kind)
 
 
 @lru_cache(maxsize=256)
@@ -106,7 +97,7 @@ def _build(signature: tuple, kind: str) -> Plan:
     conductive += [(b, e) for _, (c, b, e), _ in bjts] + [(b, c) for _, (c, b, e), _ in bjts]
     ports = [n for _, ends, _ in bjts for n in ends]
 
-    index, coef, n = _eliminate_constraints(nodes, constraints, conductive, ports)
+    index, coef, n, floating = _eliminate_constraints(nodes, constraints, conductive, ports)
     n_nodes, n_src, n_adm = len(nodes), len(constraints), len(admittances)
     col = {node: i for i, node in enumerate(nodes)}
 
@@ -148,7 +139,7 @@ def _build(signature: tuple, kind: str) -> Plan:
         constraints=tuple(name for name, _ in constraints),
         adm_stamp=adm_stamp.reshape(n_adm, n * n), adm_rhs=adm_rhs.reshape(n_adm * n_src, n),
         adm_incidence=incidence, node_pick=node_pick, node_coef=node_coef,
-        term_pick=term_pick, term_coef=term_coef, index=index,
+        term_pick=term_pick, term_coef=term_coef, index=index, floating=floating,
         term_spread=np.einsum("pt,qs->tspq", term_pick, term_pick).reshape(len(ports) ** 2, n * n),
     )
 
@@ -169,9 +160,10 @@ def _coef(coef, node, n_src):
 def _eliminate_constraints(nodes, constraints, conductive, first):
     """Union–find over voltage constraints with offsets as signed sums of them.
 
-    Returns (index, coef, size): node → unknown number or −1, node → offset
-    coefficients over the constraints, and the number of unknowns.  Unknowns
-    touched by ``first`` are numbered first.
+    Returns (index, coef, size, floating): node → unknown number or −1, node →
+    offset coefficients over the constraints, the number of unknowns, and the
+    nodes tied to ground only for want of a conductive path.  Unknowns touched
+    by ``first`` are numbered first.
     """
     n_src = len(constraints)
     parent = {n: n for n in (*nodes, GROUND)}
@@ -209,11 +201,16 @@ def _eliminate_constraints(nodes, constraints, conductive, first):
 
     for a, b in conductive:
         group[top(find(a)[0])] = top(find(b)[0])
+    islands = set()
+    for node in nodes:
+        r = find(node)[0]
+        if r != GROUND and top(r) != top(GROUND):
+            islands.add(top(r))
+    floating = frozenset(n for n in nodes if top(find(n)[0]) in islands)
     for node in nodes:
         r = find(node)[0]
         if r != GROUND and top(r) != top(GROUND):
             tie(r, GROUND, np.zeros(n_src))
-            group[top(r)] = top(GROUND)
 
     order = [r for r in dict.fromkeys(find(n)[0] for n in (*first, *nodes)) if r != GROUND]
     number = {r: i for i, r in enumerate(order)}
@@ -222,4 +219,4 @@ def _eliminate_constraints(nodes, constraints, conductive, first):
         root, off = find(node)
         index[node] = number.get(root, -1)
         coef[node] = off.copy()
-    return index, coef, len(order)
+    return index, coef, len(order), floating

@@ -155,6 +155,10 @@ def _split_digits(figures: str, whole_digits: int) -> tuple[str, str]:
     return figures[:whole_digits].ljust(whole_digits, "0"), figures[whole_digits:]
 
 
+#: Units written without a prefix, as plain numbers.
+_NO_PREFIX = frozenset({"dB", "°"})
+
+
 def format_si(value: float, unit: str = "", digits: int = 3, *, ascii: bool = False) -> str:
     """Write a value in engineering notation with an SI prefix.
 
@@ -172,7 +176,8 @@ def format_si(value: float, unit: str = "", digits: int = 3, *, ascii: bool = Fa
     Returns
     -------
     str
-        For example ``"12.3 mA"``, ``"-1.00 V"``, ``"∞ Ω"`` or ``"nan"``.
+        For example ``"12.3 mA"``, ``"-1.00 V"``, ``"∞ Ω"`` or ``"nan"``;
+        dB and ° take no prefix (``"-20 dB"``, ``"180 °"``).
         Values beyond tera or below femto use exponent notation,
         ``"1.00e15 V"``. Every result except ``"nan"`` reads back with
         :func:`parse_value` (``∞`` needs ``allow_inf=True``).
@@ -182,6 +187,9 @@ def format_si(value: float, unit: str = "", digits: int = 3, *, ascii: bool = Fa
     value = float(value)
     if math.isnan(value):
         return "nan"
+    if unit in _NO_PREFIX and math.isfinite(value):
+        # Decibels and degrees take no SI prefix: "-3 dB", never "-3000 mdB".
+        return f"{float(f'{value:.{digits}g}'):g} {unit}"
     if ascii and unit in _UNIT_SPELLINGS["Ω"]:
         unit = "ohm"
     sign = "-" if value < 0 else ""

@@ -48,7 +48,8 @@ def test_text_report_fits_80_columns_and_names_the_sections(capsys):
     assert main(["report", str(DEMOS[0])]) == 0
     out = capsys.readouterr().out
     assert max(len(line) for line in out.splitlines()) <= 80
-    for heading in ("Operating point", "hand estimate", "Midband", "Headroom", "Dissipation", "Warnings"):
+    for heading in ("Operating point", "hand estimate", "Midband", "Headroom", "Dissipation",
+                    "Frequency response", "Warnings"):
         assert heading in out
 
 

@@ -34,7 +34,7 @@ LABEL = {"ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),
          "av_loaded": ("av_loaded", "V/V"), "av_source": ("av_source", "V/V"), "rin": ("rin", "Ω"),
          "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"), "swing_down": ("swing_down", "V"),
          "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"), "p_supply": ("p_supply", "W"),
-         "tj": ("tj", "°C")}
+         "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz")}
 
 
 def plain_file(tmp_path, name="d.toml", topology=CE) -> pathlib.Path:

@@ -26,6 +26,12 @@ def _parser() -> argparse.ArgumentParser:
     rep.add_argument("file", help="design file (TOML)")
     rep.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
 
+    resp = sub.add_parser("response", help="print the frequency sweep of av_source (or --csv)")
+    resp.add_argument("file", help="design file (TOML)")
+    resp.add_argument("--csv", action="store_true", help="freq_hz,gain_db,phase_deg rows for a spreadsheet")
+    resp.add_argument("--per-decade", type=_per_decade, default=20, metavar="N",
+                      help="sweep points per decade (1 to 1000; default 20)")
+
     new = sub.add_parser("new", help="create a design file from defaults or from another design")
     new.add_argument("file")
     new.add_argument("--topology", choices=TOPOLOGIES)
@@ -55,11 +61,23 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+def _per_decade(text: str) -> int:
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--per-decade {text!r} must be a whole number from 1 to 1000") from None
+    if not 1 <= n <= 1000:
+        raise argparse.ArgumentTypeError(f"--per-decade {n} must be from 1 to 1000")
+    return n
+
+
 def _dispatch(args) -> int:
     from . import commands
 
     if args.command == "report":
         return _report(args.file, args.json)
+    if args.command == "response":
+        return _response(args.file, args.csv, args.per_decade)
     if args.command == "new":
         return commands.cmd_new(args.file, args.topology, args.origin)
     if args.command == "set":
@@ -88,8 +106,17 @@ def _report(path: str, as_json: bool) -> int:
     return 0
 
 
+def _response(path: str, as_csv: bool, per_decade: int) -> int:
+    import model
+    from .report import render_response
+
+    design = model.read_design(path)
+    sys.stdout.write(render_response(design, model.analyse(design, per_decade=per_decade), path, as_csv))
+    return 0
+
+
 #: The subcommands; anything else in first place is a design file for the workbench.
-COMMANDS = ("report", "new", "set", "undo", "redo", "history", "diff")
+COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff")
 
 
 def _workbench_parser() -> argparse.ArgumentParser:

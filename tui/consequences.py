@@ -14,7 +14,7 @@ _SHOW = {
     "av_loaded": ("av_loaded", "gain"), "av_source": ("av_source", "gain"),
     "rin": ("rin", "Ω"), "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"),
     "swing_down": ("swing_down", "V"), "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"),
-    "p_supply": ("p_supply", "W"), "tj": ("tj", "°C"),
+    "p_supply": ("p_supply", "W"), "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz"),
 }
 
 
@@ -93,7 +93,7 @@ def render_entry(e: Entry) -> list:
 #: Figures a ledger line may mention, with the short name used there.
 _COMPACT = (("av_source", "gain"), ("rin", "rin"), ("rout", "rout"), ("swing_up", "swing↑"),
             ("swing_down", "swing↓"), ("thd", "thd"), ("p_supply", "p_supply"), ("tj", "tj"),
-            ("ic", "ic"), ("vce", "vce"))
+            ("ic", "ic"), ("vce", "vce"), ("f_low", "f_low"), ("f_high", "f_high"))
 
 
 def compact_deltas(before: dict, after: dict, most: int = 3) -> str:

@@ -65,6 +65,69 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
     for i in range(0, len(parts), 3):
         label = "resistors" if i == 0 else ""
         rows.append(f"  {label:<33}" + "   ".join(parts[i : i + 3]))
+    rows += ["", "Frequency response of av_source (exact −3 dB points)"]
+    rows += response_lines(design, fig)
     rows += ["", "Warnings"]
     rows += [f"  {w.code}: {w.message}" for w in fig.warnings] or ["  none"]
+    return "\n".join(rows) + "\n"
+
+
+#: How the parts behind the corners are shown; the file and JSON use the keys.
+PART_NAMES = {"cpi": "Cπ", "cmu": "Cμ"}
+
+
+def part_name(part: str) -> str:
+    return PART_NAMES.get(part, part)
+
+
+def _hz(x: float) -> str:
+    if math.isnan(x):
+        return "none"
+    return _si(x, "Hz") if x > 0 else "below 1 µHz"
+
+
+def corner_sentence(which: str, freq: float, by) -> str:
+    """``f_low 8.5 Hz, set by ce (6.9 Hz alone)``: the corner and the part to change."""
+    text = f"{which} {_hz(freq)}"
+    if by is not None and math.isfinite(freq) and freq > 0:
+        text += f", set by {part_name(by.part)} ({_hz(by.freq)} alone)"
+    return text
+
+
+def response_lines(design: Design, fig: Figures) -> list:
+    """The report's response section (indented lines); empty if not computed."""
+    r = fig.response
+    if r is None:
+        return ["  not computed"]
+    low = " · ".join(f"{part_name(p.part)} {_hz(p.freq)}" for p in r.low_parts)
+    high = " · ".join(f"{part_name(p.part)} {_hz(p.freq)}" for p in r.high_parts)
+    pad = " " * 29
+    rows = [
+        f"  {corner_sentence('f_low', r.f_low, r.low_by)}",
+        f"    short-circuit estimates  {low}",
+        f"{pad}sum {_hz(r.f_low_estimate)}",
+        f"  {corner_sentence('f_high', r.f_high, r.high_by)}",
+        f"    open-circuit estimates   {high}",
+        f"{pad}1/(2πΣτ) {_hz(r.f_high_estimate)}; Miller (input pole) {_hz(r.f_high_miller)}",
+        f"  bandwidth                        {_hz(r.bandwidth)}",
+        f"  at source.freq {_si(design.source.freq, 'Hz'):<17} {abs(r.gain_at_freq):.4g} V/V "
+        f"({float(decibels(r.gain_at_freq)):+.1f} dB), phase {r.phase_at_freq:.1f}°",
+        f"  device capacitance               Cπ {_si(r.device.c_pi, 'F')}, Cμ {_si(r.device.c_mu, 'F')}"
+        + (" (Cπ floored at 0)" if r.device.floored else ""),
+    ]
+    return rows
+
+
+def render_response(design: Design, fig: Figures, source: str, as_csv: bool) -> str:
+    """The sweep as CSV, or as a table under the corners."""
+    r = fig.response
+    mag, phase = r.magnitude_db(), r.phase_deg()
+    if as_csv:
+        rows = ["freq_hz,gain_db,phase_deg"]
+        rows += [f"{f:.6g},{m:.6g},{p:.6g}" for f, m, p in zip(r.freq, mag, phase)]
+        return "\n".join(rows) + "\n"
+    rows = [f"{design.name or '(unnamed design)'} — av_source against frequency", f"file: {source}"]
+    rows += response_lines(design, fig)
+    rows += ["", f"  {'frequency':>12}  {'gain':>10}  {'phase':>8}"]
+    rows += [f"  {_si(f, 'Hz'):>12}  {m:>7.2f} dB  {p:>7.1f}°" for f, m, p in zip(r.freq, mag, phase)]
     return "\n".join(rows) + "\n"

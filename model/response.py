@@ -1,0 +1,314 @@
+"""Frequency response: the linearised stage swept over frequency with every
+capacitor in place, its exact −3 dB corners, and per-capacitor estimates
+that say which part sets each corner.
+
+Device capacitances (hybrid-π, at the bias point; Sedra & Smith, and Gray,
+Hurst, Lewis & Meyer, fT = gm / (2π(Cπ + Cμ))):
+  * Cμ, base–collector, is the ``transistor.cmu`` key;
+  * Cπ, base–emitter, is gm/(2π·fT) − Cμ, floored at 0 when the ``ft`` key
+    asks for more speed than gm and Cμ allow (the FT-INCONSISTENT warning).
+
+The corners are where |av_source| falls to 1/√2 of its midband value, found
+on the computed response: a log grid brackets each crossing, two finer grids
+narrow it, and the last step interpolates dB against log frequency.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from .netlist import GROUND, Capacitor
+from .plan import MIDBAND, plan_for
+from .solve import OperatingPoint, frequency_sweep, small_signal, transfer_impedances
+from .topologies import EMF, TRANSISTOR, StageCircuit
+
+#: Tag of the device capacitances added to a built stage.
+DEVICE = "device"
+CPI, CMU = "cpi", "cmu"
+POINTS_PER_DECADE = 20
+#: Points of each refining grid inside a bracket; two rounds narrow a
+#: 1/20-decade bracket to about 5e-5 decade before the final interpolation.
+_REFINE = 32
+_HALF_POWER_DB = -10.0 * math.log10(2.0)
+#: Widest the search goes: the corners of any audio-to-RF stage lie inside.
+_LOWEST_DECADE, _HIGHEST_DECADE = -6, 13
+_WIDEN = 3
+
+
+@dataclass(frozen=True)
+class DeviceCapacitance:
+    """Cπ and Cμ (F) at the bias point; ``floored`` when Cπ was raised to 0."""
+
+    c_pi: float
+    c_mu: float
+    floored: bool
+
+
+def device_capacitance(gm: float, ft: float, cmu: float) -> DeviceCapacitance:
+    """Cπ from gm (S), fT (Hz) and Cμ (F), floored at 0."""
+    total = gm / (2.0 * math.pi * ft)
+    return DeviceCapacitance(max(total - cmu, 0.0), cmu, total < cmu)
+
+
+def with_device_capacitance(stage: StageCircuit, caps: DeviceCapacitance) -> StageCircuit:
+    """The stage with Cπ (b–e) and Cμ (b–c) across its transistor."""
+    q = stage.net.element(TRANSISTOR)
+    batch = stage.net.batch
+    extra = (
+        Capacitor(CPI, q.b, q.e, np.full(batch, caps.c_pi), coupling=False, tags=frozenset((DEVICE,))),
+        Capacitor(CMU, q.b, q.c, np.full(batch, caps.c_mu), coupling=False, tags=frozenset((DEVICE,))),
+    )
+    return replace(stage, net=stage.net.with_elements(*extra))
+
+
+@dataclass(frozen=True)
+class PartEstimate:
+    """One capacitor's time constant: the resistance it sees (Ω) times its C (F).
+
+    For a coupling or bypass capacitor the others are shorted and the device
+    and load capacitances open (short-circuit time constant); for a device or
+    load capacitance the others are open and the coupling capacitors shorted
+    (open-circuit time constant).  ``freq`` is 1/(2πτ), the corner that part
+    would set alone (Hz).
+    """
+
+    part: str
+    resistance: float
+    capacitance: float
+
+    @property
+    def tau(self) -> float:
+        return self.resistance * self.capacitance
+
+    @property
+    def freq(self) -> float:
+        return 1.0 / (2.0 * math.pi * self.tau) if self.tau > 0 else math.inf
+
+
+@dataclass(frozen=True)
+class Response:
+    """The response of av_source = v_load / v_emf over frequency.
+
+    freq (Hz) and gain (complex V/V) are the sweep; ``midband`` is av_source
+    at midband (V/V, signed).  f_low and f_high are the exact −3 dB points
+    (Hz): f_low 0 if none lies above 1 µHz, f_high inf if none below 10 THz,
+    both NaN if the gain never comes within 3 dB of midband.
+    """
+
+    freq: np.ndarray
+    gain: np.ndarray
+    midband: float
+    f_low: float
+    f_high: float
+    low_parts: tuple
+    high_parts: tuple
+    f_high_miller: float
+    signal_freq: float
+    gain_at_freq: complex
+    device: DeviceCapacitance
+
+    @property
+    def bandwidth(self) -> float:
+        return self.f_high - self.f_low
+
+    @property
+    def f_low_estimate(self) -> float:
+        """Sum of the short-circuit corners (Hz), the usual estimate of f_low."""
+        return sum(p.freq for p in self.low_parts if math.isfinite(p.freq))
+
+    @property
+    def f_high_estimate(self) -> float:
+        """1/(2π Σ τ) over the open-circuit time constants (Hz)."""
+        total = sum(p.tau for p in self.high_parts)
+        return 1.0 / (2.0 * math.pi * total) if total > 0 else math.inf
+
+    @property
+    def low_by(self) -> PartEstimate | None:
+        """The coupling or bypass capacitor whose corner alone is highest."""
+        return max(self.low_parts, key=lambda p: p.freq, default=None)
+
+    @property
+    def high_by(self) -> PartEstimate | None:
+        """The device or load capacitance with the largest time constant."""
+        return max(self.high_parts, key=lambda p: p.tau, default=None)
+
+    def magnitude_db(self) -> np.ndarray:
+        with np.errstate(divide="ignore"):
+            return 20.0 * np.log10(np.abs(self.gain))
+
+    def phase_deg(self) -> np.ndarray:
+        """Phase (°), continuous along the sweep; near 180° at midband for an
+    inverting stage and near 0° for a follower."""
+        return _phase(self.gain, self.midband)
+
+    @property
+    def phase_at_freq(self) -> float:
+        """Phase at the signal frequency (°), on the same branch as phase_deg()."""
+        raw = math.degrees(np.angle(self.gain_at_freq))
+        curve = float(np.interp(math.log10(self.signal_freq), np.log10(self.freq), self.phase_deg()))
+        return raw + 360.0 * round((curve - raw) / 360.0)
+
+
+def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, midband_gain: float,
+             signal_freq: float, *, per_decade: int = POINTS_PER_DECADE, points: int | None = None) -> Response:
+    """The response of a single-design stage with ``device`` capacitances
+    across its transistor.
+
+    ``midband_gain`` is av_source at midband (V/V); ``signal_freq`` (Hz) the
+    frequency of ``gain_at_freq``.  The sweep spans whole decades from one
+    below the lower corner to one above the upper, ``per_decade`` points a
+    decade, or ``points`` points in all when that is given.
+    """
+    stage = with_device_capacitance(stage, device)
+    z = transfer_impedances(stage.net, op)
+    low, high = short_circuit_parts(stage, op), open_circuit_parts(stage, op, z)
+    est_low = sum(p.freq for p in low if math.isfinite(p.freq)) or 10.0 ** _LOWEST_DECADE
+    total_tau = sum(p.tau for p in high)
+    est_high = 1.0 / (2.0 * math.pi * total_tau) if total_tau > 0 else 10.0 ** _HIGHEST_DECADE
+    lo = max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE)
+    hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
+    reference = abs(midband_gain)
+    while True:
+        freq = _grid(lo, hi, per_decade, points)
+        gain = sweep(stage, op, freq)
+        centre, below, above = _brackets(gain, midband_gain)
+        wider_lo = below is None and centre is not None and lo > _LOWEST_DECADE
+        wider_hi = above is None and centre is not None and hi < _HIGHEST_DECADE
+        if not (wider_lo or wider_hi):
+            break
+        lo = max(lo - _WIDEN, _LOWEST_DECADE) if wider_lo else lo
+        hi = min(hi + _WIDEN, _HIGHEST_DECADE) if wider_hi else hi
+    f_low, f_high, at_signal = _corners(stage, op, freq, below, above, reference, signal_freq)
+    if centre is None:
+        f_low = f_high = math.nan
+    return Response(freq=freq, gain=gain, midband=midband_gain, f_low=f_low, f_high=f_high,
+                    low_parts=low, high_parts=high, f_high_miller=miller_estimate(stage, op, device, z),
+                    signal_freq=signal_freq, gain_at_freq=at_signal, device=device)
+
+
+def _grid(lo: int, hi: int, per_decade: int, points: int | None) -> np.ndarray:
+    count = points if points else (hi - lo) * per_decade + 1
+    return np.logspace(lo, hi, count)
+
+
+def sweep(stage: StageCircuit, op: OperatingPoint, freq: np.ndarray) -> np.ndarray:
+    """av_source (complex V/V) at each frequency (Hz) of a single-design stage:
+    the load voltage for a 1 V EMF, with every capacitor the netlist holds."""
+    volts = frequency_sweep(stage.net, op, 2.0 * np.pi * freq, excite={EMF: 1.0})
+    return volts[stage.output][0]
+
+
+def _brackets(gain: np.ndarray, midband_gain: float):
+    """(centre, below, above): the grid index nearest the midband gain, and the
+    index pairs around the half-power crossings either side of it (None if none).
+
+    The centre is not the peak: a follower into a capacitive load peaks near
+    its upper corner, far from midband.
+    """
+    reference = abs(midband_gain)
+    if not reference > 0:
+        return None, None, None
+    magnitude = np.abs(gain)
+    centre = int(np.argmin(np.abs(gain - midband_gain)))
+    inside = magnitude >= reference * 10.0 ** (_HALF_POWER_DB / 20.0)
+    if not inside[centre]:
+        return None, None, None
+    out_below = np.flatnonzero(~inside[:centre])
+    out_above = np.flatnonzero(~inside[centre:])
+    below = (int(out_below[-1]), int(out_below[-1]) + 1) if out_below.size else None
+    above = (centre + int(out_above[0]) - 1, centre + int(out_above[0])) if out_above.size else None
+    return centre, below, above
+
+
+def _corners(stage, op, freq, below, above, reference, signal_freq):
+    """Refine both crossings on finer grids, all in one solve per round; the
+    first round also evaluates the signal frequency."""
+    spans = [(freq[b[0]], freq[b[1]]) for b in (below, above) if b is not None]
+    at_signal = None
+    for round_ in range(2):
+        grids = [np.geomspace(span[0], span[1], _REFINE) for span in spans]
+        extra = [np.array([signal_freq])] if round_ == 0 else []
+        f = np.concatenate(grids + extra) if grids or extra else np.zeros(0)
+        g = sweep(stage, op, f)
+        if round_ == 0:
+            at_signal = complex(g[-1])
+        mags = [np.abs(g[k * _REFINE:(k + 1) * _REFINE]) for k in range(len(grids))]
+        spans = [_narrow(grid, m, reference) for grid, m in zip(grids, mags)]
+    found = iter(_interpolate(s, reference) for s in spans)
+    f_low = next(found) if below is not None else 0.0
+    f_high = next(found) if above is not None else math.inf
+    return f_low, f_high, at_signal
+
+
+def _narrow(grid, magnitude, reference):
+    """The adjacent grid pair (with their magnitudes) that straddles the crossing."""
+    db = 20.0 * np.log10(np.maximum(magnitude, 1e-300) / reference) - _HALF_POWER_DB
+    k = int(np.flatnonzero(np.diff(np.sign(db)) != 0)[0]) if (np.diff(np.sign(db)) != 0).any() else 0
+    return grid[k], grid[k + 1], db[k], db[k + 1]
+
+
+def _interpolate(span, reference) -> float:
+    a, b, *rest = span
+    if len(rest) == 0 or rest[0] == rest[1]:
+        return float(math.sqrt(a * b))
+    da, db = rest
+    t = da / (da - db)
+    return float(10.0 ** (math.log10(a) + t * (math.log10(b) - math.log10(a))))
+
+
+def _phase(gain, midband_gain) -> np.ndarray:
+    """Unwrapped phase (°), on the branch that puts the point nearest midband
+    closest to 180° for an inverting stage and 0° for a follower."""
+    if gain.size == 0:
+        return np.zeros(0)
+    phase = np.degrees(np.unwrap(np.angle(gain)))
+    ref = phase[int(np.argmin(np.abs(gain - midband_gain)))]
+    target = 180.0 if midband_gain < 0 else 0.0
+    return phase + 360.0 * round((target - ref) / 360.0)
+
+
+def _resistance_across(net, op, a: str, b: str, z=None) -> float:
+    """Midband resistance (Ω) between nodes a and b with every source at zero;
+    infinite when one of them has no conductive path at all (or, with the
+    part removed, is gone from the circuit).  ``z`` reuses transfer impedances
+    already solved for ``net``."""
+    present = {*net.nodes, GROUND}
+    if a not in present or b not in present or {a, b} & plan_for(net, MIDBAND).floating:
+        return math.inf
+    z = z or transfer_impedances(net, op)
+    return abs(float((z(a, a) - z(a, b) - z(b, a) + z(b, b))[0]))
+
+
+def short_circuit_parts(stage: StageCircuit, op: OperatingPoint) -> tuple:
+    """Short-circuit time constant of each coupling and bypass capacitor."""
+    out = []
+    for cap in stage.net.of_type(Capacitor):
+        if cap.coupling:
+            r = _resistance_across(stage.net.drop(cap.name), op, cap.a, cap.b)
+            out.append(PartEstimate(cap.name, r, float(cap.c[0])))
+    return tuple(out)
+
+
+def open_circuit_parts(stage: StageCircuit, op: OperatingPoint, z=None) -> tuple:
+    """Open-circuit time constant of each device and load capacitance."""
+    z = z or transfer_impedances(stage.net, op)
+    return tuple(
+        PartEstimate(cap.name, _resistance_across(stage.net, op, cap.a, cap.b, z), float(cap.c[0]))
+        for cap in stage.net.of_type(Capacitor) if not cap.coupling
+    )
+
+
+def miller_estimate(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, z=None) -> float:
+    """f_high (Hz) from the input pole alone, each device capacitance moved
+    to the base by the Miller theorem: C = Cπ(1 − ve/vb) + Cμ(1 − vc/vb), with
+    the midband node gains, against the resistance from base to ground."""
+    z = z or transfer_impedances(stage.net, op)
+    drive = small_signal(stage.net, op, excite={EMF: 1.0})
+    vb = drive[stage.base][0]
+    c = (device.c_pi * (1.0 - drive[stage.emitter][0] / vb)
+         + device.c_mu * (1.0 - drive[stage.collector][0] / vb)).real
+    r_base = float(z(stage.base, stage.base)[0])
+    return 1.0 / (2.0 * math.pi * r_base * c) if r_base * c > 0 else math.inf

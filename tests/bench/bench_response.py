@@ -1,0 +1,62 @@
+"""Frequency-response benchmark: prints `name: value unit` lines; never fails.
+
+Times the response of the bundled geophone preamp: a 400-point sweep with
+both −3 dB corners found and every per-capacitor estimate, as the median of
+many runs; beside it, the sweep alone (one batched complex solve) and the
+same 400 points solved one frequency at a time, in the same run.
+"""
+
+from __future__ import annotations
+
+import pathlib
+import statistics
+import sys
+import time
+
+import numpy as np
+
+sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
+
+from model import read_design  # noqa: E402
+from model.analysis import design_values  # noqa: E402
+from model.midband import device_small_signal, midband  # noqa: E402
+from model.response import device_capacitance, response, sweep, with_device_capacitance  # noqa: E402
+from model.solve import operating_point  # noqa: E402
+from model.topologies import build  # noqa: E402
+
+DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
+POINTS = 400
+
+
+def _median_ms(fn, repeats: int) -> float:
+    times = []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return 1e3 * statistics.median(times)
+
+
+def main() -> None:
+    d = read_design(DEMO)
+    stage = build(d.topology, design_values([d]))
+    op = operating_point(stage.net)
+    mid = float(midband(stage, op, np.array([d.source.rs])).av_source[0])
+    caps = device_capacitance(float(device_small_signal(op).gm[0]), d.transistor.ft, d.transistor.cmu)
+    ac = with_device_capacitance(stage, caps)
+    freq = np.logspace(-1, 7, POINTS)
+
+    def full():
+        return response(stage, op, caps, mid, d.source.freq, points=POINTS)
+
+    r = full()
+    assert r.freq.size == POINTS and np.isfinite(r.f_low) and np.isfinite(r.f_high)
+    print(f"response_{POINTS}_points_with_corners_median: {_median_ms(full, 100):.2f} ms")
+    print(f"sweep_{POINTS}_points_one_batched_solve_median: {_median_ms(lambda: sweep(ac, op, freq), 100):.2f} ms")
+    loop = _median_ms(lambda: [sweep(ac, op, freq[i:i + 1]) for i in range(POINTS)], 5)
+    print(f"sweep_{POINTS}_points_one_solve_per_point_median: {loop:.2f} ms")
+    print("target_response_with_corners: 5 ms")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,63 @@
+"""The Picture: charts from :mod:`tui.chart` drawn at the widget's size."""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+
+from rich.segment import Segment
+from textual.strip import Strip
+from textual.widget import Widget
+
+from ..chart import Chart, render_stack
+
+EMPTY = "no picture yet"
+
+Charts = Sequence[Chart]
+
+
+class Picture(Widget, can_focus=False):
+    """One chart, or several stacked top to bottom sharing the height.
+
+    The content is either the charts themselves or a factory returning them;
+    a factory is called only when the picture is drawn, so a hidden picture
+    costs nothing when the design changes.
+    """
+
+    DEFAULT_CSS = """
+    Picture { height: 1fr; }
+    """
+
+    def __init__(self, content: Charts | Callable[[], Charts] = (), *, name: str | None = None,
+                 id: str | None = None, classes: str | None = None) -> None:
+        super().__init__(name=name, id=id, classes=classes)
+        self._content = content
+        # Bumped by show(); with the size it keys the cache, so a repaint
+        # (scrolling past, a dialog closing) never rasterises again.
+        self._version = 0
+        self._cache_key: tuple | None = None
+        self._lines: list[str] = []
+
+    def show(self, content: Charts | Callable[[], Charts]) -> None:
+        """Replace the charts (or the factory making them) and redraw."""
+        self._content = content
+        self._version += 1
+        self.refresh()
+
+    def lines(self) -> list[str]:
+        """The picture as plain text rows at the present size."""
+        width, height = self.size
+        key = (self._version, width, height)
+        if key != self._cache_key:
+            charts = tuple(self._content() if callable(self._content) else self._content)
+            if charts:
+                self._lines = render_stack(charts, width, height)
+            else:
+                self._lines = [EMPTY[:width].ljust(width)] if height else []
+            self._cache_key = key
+        return self._lines
+
+    def render_line(self, y: int) -> Strip:
+        lines = self.lines()
+        width = self.size.width
+        text = lines[y] if y < len(lines) else " " * width
+        return Strip([Segment(text, self.rich_style)], width)
