@@ -105,6 +105,8 @@ class Figures:
     large_signal: bool = True
     #: The sweep and the per-capacitor estimates behind f_low and f_high.
     response: Response | None = None
+    #: Source EMFs (V) where the stage leaves forward-active, going down and up.
+    emf_edges: tuple = (math.nan, math.nan)
 
     def to_dict(self) -> dict:
         """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras."""
@@ -200,7 +202,7 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
         hand=hand_estimate(design), warnings=warnings, p_resistors=p_res, vout_wanted=wanted,
         ic_beta_half=ic_half, ic_beta_double=ic_double,
         kcl_residual=float(op.residual[0]), newton_iterations=op3.iterations,
-        large_signal=large_signal,
+        large_signal=large_signal, emf_edges=big.emf_edges,
     )
 
 

@@ -11,7 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .solve import OperatingPoint, small_signal
+from .linear import small_signal
+from .solve import OperatingPoint
 from .topologies import BIAS, EMF, LOAD, SOURCE, TRANSISTOR, StageCircuit
 
 

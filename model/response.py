@@ -22,7 +22,8 @@ import numpy as np
 
 from .netlist import GROUND, Capacitor
 from .plan import MIDBAND, plan_for
-from .solve import OperatingPoint, frequency_sweep, small_signal, transfer_impedances
+from .linear import frequency_sweep, small_signal, transfer_impedances
+from .solve import OperatingPoint
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
 #: Tag of the device capacitances added to a built stage.
@@ -184,6 +185,14 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     f_low, f_high, at_signal = _corners(stage, op, freq, below, above, reference, signal_freq)
     if centre is None:
         f_low = f_high = math.nan
+    # The search grid came from the estimates; the sweep kept spans whole
+    # decades from one below the exact f_low to one above the exact f_high.
+    want_lo = math.floor(math.log10(f_low)) - 1 if math.isfinite(f_low) and f_low > 0 else lo
+    want_hi = math.ceil(math.log10(f_high)) + 1 if math.isfinite(f_high) else hi
+    want_lo, want_hi = max(want_lo, _LOWEST_DECADE), min(max(want_hi, want_lo + 1), _HIGHEST_DECADE)
+    if (want_lo, want_hi) != (lo, hi):
+        freq = _grid(want_lo, want_hi, per_decade, points)
+        gain = sweep(stage, op, freq)
     return Response(freq=freq, gain=gain, midband=midband_gain, f_low=f_low, f_high=f_high,
                     low_parts=low, high_parts=high, f_high_miller=miller_estimate(stage, op, device, z),
                     signal_freq=signal_freq, gain_at_freq=at_signal, device=device)

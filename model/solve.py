@@ -1,5 +1,6 @@
-"""The one nodal core: DC operating point by Newton, and linear solves of the
-circuit linearised at that point.
+"""The one nodal core: matrix assembly and the DC operating point by Newton.
+The linear solves of the circuit linearised at that point (midband, test
+currents, frequency sweeps) are in :mod:`model.linear` and share this assembly.
 
 Every topology is a builder that produces a :class:`~model.netlist.Netlist`;
 nothing here knows which topology it is solving.  The netlist's shape is
@@ -18,8 +19,8 @@ import numpy as np
 
 from . import device
 from .linalg import solve_batched
-from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor
-from .plan import AC, DC, MIDBAND, Plan, plan_for
+from .netlist import GROUND, Bjt, Netlist, Resistor
+from .plan import DC, Plan, plan_for
 
 #: Newton stops when no node moves by more than this (V) and no junction was
 #: limited.  Convergence is quadratic, so the point after such a step is good to
@@ -69,7 +70,7 @@ class OperatingPoint:
 _STATE_FIELDS = ("ic", "ib", "dic_dvbe", "dic_dvbc", "dib_dvbe", "dib_dvbc")
 
 
-def _values(net: Netlist, plan: Plan, omega=None, excite=None, split=False):
+def admittance_values(net: Netlist, plan: Plan, omega=None, excite=None, split=False):
     """(g, V): admittances (batch, n_adm) and constraint voltages (batch, n_src).
 
     A capacitor's entry is jωC, or with ``split`` its capacitance C (F) alone.
@@ -93,7 +94,7 @@ def _values(net: Netlist, plan: Plan, omega=None, excite=None, split=False):
 _SPARSE_FROM = 256
 
 
-def _assemble_linear(plan: Plan, g, v):
+def assemble_linear(plan: Plan, g, v):
     """The linear network's A (batch, n, n) and b (batch, n)."""
     batch, n = g.shape[0], plan.n
     gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
@@ -111,7 +112,7 @@ def _sparse_product(values, terms, width):
     return out
 
 
-def _node_dict(plan: Plan, x, v):
+def node_dict(plan: Plan, x, v):
     """Node name → voltage (batch,), ground included, from the unknowns x."""
     if x.shape[0] < _SPARSE_FROM:
         volts = x @ plan.node_pick + v @ plan.node_coef
@@ -150,8 +151,8 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
     # A part at the edge of float range (a 1e-300 Ω resistor is "valid") may
     # overflow; such a row comes out non-finite and is flagged, not raised.
     with np.errstate(over="ignore", invalid="ignore"):
-        g, v = _values(net, plan)
-        a, b = _assemble_linear(plan, g, v)
+        g, v = admittance_values(net, plan)
+        a, b = assemble_linear(plan, g, v)
     n_ports = plan.n_ports
     y, j, back = _schur(a, b, n_ports)
     pick = plan.term_pick[:n_ports]
@@ -164,7 +165,7 @@ def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> Oper
     x_ports, done, iterations = _newton(y, j, pick, t_offset, dev, u, max_iter)
     x_ports = np.where(np.isfinite(x_ports), x_ports, 0.0)
     x = _assemble(x_ports, back)
-    volts = _node_dict(plan, x, v)
+    volts = node_dict(plan, x, v)
     states = {q.name: device.evaluate(q.params, *junction_voltages(q, volts)) for q in bjts}
     residual = _kcl_residual(plan, a, b, x, g, volts, bjts, states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
@@ -256,7 +257,7 @@ def _expand(p: device.DeviceParams) -> device.DeviceParams:
     return device.DeviceParams(*(getattr(p, f)[..., None] for f in fields))
 
 
-def _terminal_conductance(states: list) -> np.ndarray:
+def terminal_conductance(states: list) -> np.ndarray:
     """(batch, 3k, 3k) conductance from terminal voltages (c, b, e of each of
     the k transistors) to the currents into those terminals, block-diagonal."""
     k = len(states)
@@ -283,7 +284,7 @@ def _companion(dev: device.DeviceParams, u: np.ndarray):
     i_c = s * (st.ic - st.dic_dvbe * u[..., 0] - st.dic_dvbc * u[..., 1])
     i_b = s * (st.ib - st.dib_dvbe * u[..., 0] - st.dib_dvbc * u[..., 1])
     i_eq = np.stack([i_c, i_b, -(i_c + i_b)], axis=-1).reshape(u.shape[0], 3 * count)
-    return _terminal_conductance(per), i_eq
+    return terminal_conductance(per), i_eq
 
 
 def _schur(a, b, n_ports):
@@ -339,99 +340,3 @@ def node_outflows(net: Netlist, v: dict, states: dict) -> dict:
             node = getattr(q, t)
             total[node] = total[node] + currents[f"{q.name}.{t}"]
     return total
-
-
-def _linearised(net: Netlist, op: OperatingPoint, plan: Plan, g, v):
-    """A and b of the network in ``g``/``v`` with the transistors' linearised
-    terminal conductances at ``op`` stamped in."""
-    with np.errstate(over="ignore", invalid="ignore"):
-        a, b = _assemble_linear(plan, g, v)
-    bjts = net.of_type(Bjt)
-    if bjts:
-        g_t = _terminal_conductance([op.states[q.name] for q in bjts])
-        a = a + (g_t.reshape(net.batch, -1) @ plan.term_spread).reshape(a.shape)
-        b = b - np.einsum("bts,bs->bt", g_t, v @ plan.term_coef) @ plan.term_pick.T
-    return a, b
-
-
-def _add_injections(plan: Plan, b, inject):
-    for node, current in (inject or {}).items():
-        i = plan.index.get(node, -1)
-        if i >= 0:
-            b[..., i] = b[..., i] + current
-    return b
-
-
-def small_signal(
-    net: Netlist,
-    op: OperatingPoint,
-    *,
-    omega=None,
-    excite: dict | None = None,
-    inject: dict | None = None,
-) -> dict:
-    """Solve the circuit linearised at ``op``; returns node → phasor voltage.
-
-    With ``omega`` None this is midband: coupling capacitors are shorts and all
-    other capacitors open.  Otherwise every capacitor has admittance jωC
-    (``omega`` in rad/s, one per batch row or a scalar).  Every voltage source
-    is zero except those named in ``excite`` (name → volts); ``inject`` adds
-    test currents into nodes (node → A).
-    """
-    plan = plan_for(net, MIDBAND if omega is None else AC)
-    with np.errstate(over="ignore", invalid="ignore"):
-        g, v = _values(net, plan, omega=omega, excite=excite or {})
-    a, b = _linearised(net, op, plan, g, v)
-    x = solve_batched(a, _add_injections(plan, b, inject))
-    return _node_dict(plan, x, v)
-
-
-def transfer_impedances(net: Netlist, op: OperatingPoint):
-    """Midband transfer impedances with every source at zero: ``z(a, b)`` is
-    the voltage (batch,) at node a for 1 A into node b (Ω), from one solve
-    with the identity as right-hand sides.  Known nodes read 0 V and take
-    current without effect."""
-    plan = plan_for(net, MIDBAND)
-    g, v = _values(net, plan, excite={})
-    a, _ = _linearised(net, op, plan, g, v)
-    z = solve_batched(a, np.broadcast_to(np.eye(plan.n), a.shape).copy())
-    zero = np.zeros(net.batch)
-
-    def lookup(at: str, into: str):
-        i, j = plan.index.get(at, -1), plan.index.get(into, -1)
-        return z[:, i, j] if i >= 0 and j >= 0 else zero
-
-    return lookup
-
-
-def frequency_sweep(
-    net: Netlist,
-    op: OperatingPoint,
-    omega: np.ndarray,
-    *,
-    excite: dict | None = None,
-    inject: dict | None = None,
-) -> dict:
-    """The linearised circuit at every angular frequency in ``omega`` (rad/s).
-
-    Returns node → (batch, len(omega)) complex phasors.  The network splits
-    into a real part G (resistors and transistors) and a capacitive part C,
-    each assembled once; A(ω) = G + jωC for every frequency is then one
-    batched complex solve rather than a loop over frequencies.  ``excite``
-    and ``inject`` are as for :func:`small_signal`.
-    """
-    plan = plan_for(net, AC)
-    omega = np.asarray(omega, dtype=float).reshape(-1)
-    g, v = _values(net, plan, excite=excite or {}, split=True)
-    is_cap = np.array([isinstance(net.element(n), Capacitor) for n in plan.admittances], dtype=bool)
-    g_real, g_cap = np.where(is_cap, 0.0, g), np.where(is_cap, g, 0.0)
-    a_g, b_g = _linearised(net, op, plan, g_real, v)
-    with np.errstate(over="ignore", invalid="ignore"):
-        a_c, b_c = _assemble_linear(plan, g_cap, v)
-    jw = 1j * omega[None, :, None]
-    a = a_g[:, None] + jw[..., None] * a_c[:, None]
-    b = _add_injections(plan, b_g[:, None] + jw * b_c[:, None], inject)
-    batch, count, n = net.batch, omega.size, plan.n
-    x = solve_batched(a.reshape(batch * count, n, n), b.reshape(batch * count, n))
-    nodes = _node_dict(plan, x, np.repeat(v, count, axis=0))
-    return {node: volts.reshape(batch, count) for node, volts in nodes.items()}

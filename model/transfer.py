@@ -20,7 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .device import critical_voltage
-from .solve import OperatingPoint, junction_voltages, operating_point, small_signal
+from .linear import small_signal
+from .solve import OperatingPoint, junction_voltages, operating_point
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
@@ -115,6 +116,34 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     up = max(max(outs), 0.0)
     down = max(-min(outs), 0.0)
     return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
+
+
+@dataclass(frozen=True)
+class TransferCurve:
+    """The stage solved at each source EMF (V) with the capacitors holding their
+    quiescent voltages: the load voltage's excursion ``out`` (V) and the
+    transistor's forward-sense ``ic`` (A), ``vce`` and ``vbc`` (V) at each."""
+
+    emf: np.ndarray
+    out: np.ndarray
+    ic: np.ndarray
+    vce: np.ndarray
+    vbc: np.ndarray
+
+    @property
+    def region(self) -> np.ndarray:
+        return region_of(self.ic, self.vbc)
+
+
+def transfer_curve(stage: StageCircuit, op: OperatingPoint, emf: np.ndarray) -> TransferCurve:
+    """The large-signal transfer of a single-design stage at the EMFs ``emf``."""
+    held = stage.net.coupling_as_sources({
+        e.name: op.voltages[e.a] - op.voltages[e.b] for e in stage.net.elements if getattr(e, "coupling", False)
+    })
+    sol = _solve_at(held, emf, _predictor(stage, op)(emf))
+    vbe, vbc = sol.junctions[:, 0, 0], sol.junctions[:, 0, 1]
+    out = sol.voltages[stage.output] - float(op.voltages[stage.output][0])
+    return TransferCurve(emf, out, sol.states[TRANSISTOR].ic, vbe - vbc, vbc)
 
 
 def _brackets(coarse: OperatingPoint, grid):

@@ -108,8 +108,10 @@ async def settle(pilot) -> None:
     there is no worker to wait for.
     """
     await pilot.pause(tui.app.DEBOUNCE + 0.1)
-    await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
+    # The sweep's result starts the picture worker: wait for that one too.
+    for _ in range(2):
+        await pilot.app.workers.wait_for_complete()
+        await pilot.pause()
 
 
 def saved(path) -> bytes:

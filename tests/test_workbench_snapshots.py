@@ -41,8 +41,10 @@ def _steady(pilot):
 
 async def _settle(pilot):
     await pilot.pause(tui.app.DEBOUNCE + 0.1)
-    await pilot.app.workers.wait_for_complete()
-    await pilot.pause()
+    # The sweep's result starts the picture worker: wait for that one too.
+    for _ in range(2):
+        await pilot.app.workers.wait_for_complete()
+        await pilot.pause()
 
 
 def test_opening_screen_80x24(app, snap_compare):

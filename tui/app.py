@@ -1,23 +1,22 @@
-"""The workbench: Knobs beside a live Readout, with the Ledger of every commit.
+"""The workbench: Knobs beside a live Readout, with Pictures and the Ledger.
 
 The app owns the open design (through a :class:`~model.session.DesignSession`)
 and routes messages; it does no physics.  Each keystroke in a field makes a
 candidate design whose quick figures (operating point, midband, dissipation)
-are computed at once; the slower swing and distortion sweep runs in a thread
-worker, debounced, and posts its result back.
+are computed at once; the slower sweeps (swing, distortion, frequency
+response) run in a thread worker, debounced, and post their result back.
+The pictures are built and drawn in a second worker once those are in.
 """
 
 from __future__ import annotations
 
 import os
 import pathlib
-from dataclasses import dataclass
 
 from textual import work
 from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
-from textual.message import Message
 from textual.widgets import Footer, Header, OptionList, Static
 
 from model import ledger
@@ -28,38 +27,17 @@ from model.savefile import atomic_write
 from model.session import DesignSession
 from model.stepping import choices, step, step_decade
 
+from .chart import render_stack
+from .state import Baseline, Candidate, LargeSignalReady, PictureReady
+from .pictures import PICTURES, charts_for
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
 from .widgets.knobs import KnobAbandoned, KnobCommitted, KnobEdited, Knobs, KnobStepped, field_text
 from .widgets.ledger_pane import LedgerPane
+from .widgets.picture import Picture
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.
 DEBOUNCE = 0.15
-
-
-@dataclass(frozen=True)
-class Candidate:
-    """An uncommitted value in one field, and what it would do."""
-
-    key: str
-    text: str
-    design: Design
-    figures: Figures
-
-
-@dataclass(frozen=True)
-class Baseline:
-    label: str
-    design: Design
-    figures: Figures
-
-
-class LargeSignalReady(Message):
-    """The worker's full analysis of ``design``."""
-
-    def __init__(self, design: Design, figures: Figures):
-        super().__init__()
-        self.design, self.figures = design, figures
 
 
 class Workbench(App):
@@ -76,6 +54,7 @@ class Workbench(App):
         Binding("f3", "toggle_ledger", "ledger", id="toggle-ledger", show=False),
         Binding("f4", "baseline", "baseline", id="baseline"),
         Binding("f5", "cycle_series", "series", id="series", show=False),
+        Binding("f6", "picture", "plot", id="picture"),
         Binding("f7,ctrl+z", "undo", "undo", id="undo"),
         Binding("f8,ctrl+y", "redo", "redo", id="redo"),
         Binding("f10", "quit", "quit", id="quit", priority=True),
@@ -95,6 +74,8 @@ class Workbench(App):
         self.baseline: Baseline | None = None
         self.note = ""
         self._sweep_timer = None
+        self.picture_kind = PICTURES[0]
+        self._picture_drawn: tuple | None = None  # (design, kind, size) now on screen
 
     # -- layout ---------------------------------------------------------------
 
@@ -106,9 +87,13 @@ class Workbench(App):
                 # Warnings first: at 80×24 the bottom of the readout is out of sight.
                 yield Static(id="warnings", markup=False)
                 yield Static(id="readout")
-            with Vertical(id="ledger-box"):
-                yield Static("Ledger", classes="pane-title")
-                yield LedgerPane(id="ledger")
+            with Vertical(id="side"):
+                with Vertical(id="pictures-box"):
+                    yield Static(id="picture-title", classes="pane-title", markup=False)
+                    yield Picture(id="picture")
+                with Vertical(id="ledger-box"):
+                    yield Static("Ledger", classes="pane-title")
+                    yield LedgerPane(id="ledger")
         yield Static(id="status", markup=False)
         yield Footer()
 
@@ -150,8 +135,11 @@ class Workbench(App):
         box = self.query_one("#warnings", Static)
         if warnings.plain != str(box.content):
             box.update(warnings)
+        design = self.candidate.design if self.candidate else self.design
         if not shown.large_signal:
-            self._schedule_sweep(self.candidate.design if self.candidate else self.design)
+            self._schedule_sweep(design)
+        else:
+            self._schedule_picture(design, shown)
 
     def _schedule_sweep(self, design: Design) -> None:
         if self._sweep_timer is not None:
@@ -174,6 +162,46 @@ class Workbench(App):
         else:
             return
         self._refresh_readout()
+
+    # -- the pictures -------------------------------------------------------------
+
+    def _pictures_visible(self) -> bool:
+        """Always on a wide screen, beside the readout; on a narrow one after F6."""
+        return not self.screen.has_class("-narrow") or self.screen.has_class("-show-pictures")
+
+    def _schedule_picture(self, design: Design, figures: Figures) -> None:
+        picture = self.query_one(Picture)
+        self.query_one("#picture-title", Static).update(
+            f"Pictures: {self.picture_kind} · F6 next", layout=False)
+        size = (picture.size.width, picture.size.height)
+        if not self._pictures_visible() or self._picture_drawn == (design, self.picture_kind, size):
+            return
+        self._draw_picture(design, figures, self.picture_kind, size)
+
+    @work(thread=True, exclusive=True, exit_on_error=False, group="picture")
+    def _draw_picture(self, design: Design, figures: Figures, kind: str, size: tuple) -> None:
+        try:
+            charts = charts_for(kind, design, figures)
+        except StageledgerError:
+            charts = ()
+        lines = render_stack(charts, *size) if charts and min(size) > 0 else None
+        self.post_message(PictureReady(design, kind, charts, (*size, lines) if lines else None))
+
+    def on_picture_ready(self, message: PictureReady) -> None:
+        shown = self.candidate.design if self.candidate else self.design
+        if message.design != shown or message.kind != self.picture_kind:
+            return
+        self.query_one(Picture).show(message.charts, message.rendered)
+        size = message.rendered[:2] if message.rendered else None
+        self._picture_drawn = (message.design, message.kind, size)
+
+    def on_resize(self) -> None:
+        self.call_after_refresh(self._refresh_picture)
+
+    def _refresh_picture(self) -> None:
+        shown = self.candidate.figures if self.candidate else self.figures
+        if shown.large_signal:
+            self._schedule_picture(self.candidate.design if self.candidate else self.design, shown)
 
     def _say(self, text: str, error: bool = False) -> None:
         status = self.query_one("#status", Static)
@@ -283,6 +311,7 @@ class Workbench(App):
         ("Help", "list every key (F1)", "help"),
         ("Note for the next commit", "F2 or Ctrl+N", "note"),
         ("Show ledger / readout", "switch on a narrow screen (F3)", "toggle_ledger"),
+        ("Show pictures / next picture", "Bode, load lines, transfer (F6)", "picture"),
         ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
         ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
         ("Undo", "the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
@@ -306,8 +335,19 @@ class Workbench(App):
         self.push_screen(NotePrompt(self.note), keep)
 
     def action_toggle_ledger(self) -> None:
-        # The size classes (-narrow/-wide) live on the screen, so this one does too.
+        # The size classes (-narrow/-wide) live on the screen, so these do too.
+        self.screen.remove_class("-show-pictures")
         self.screen.toggle_class("-show-ledger")
+
+    def action_picture(self) -> None:
+        """Show the pictures (on a narrow screen), or step to the next one."""
+        if self.screen.has_class("-narrow") and not self.screen.has_class("-show-pictures"):
+            self.screen.remove_class("-show-ledger")
+            self.screen.add_class("-show-pictures")
+        else:
+            self.picture_kind = PICTURES[(PICTURES.index(self.picture_kind) + 1) % len(PICTURES)]
+        self._say(f"picture: {self.picture_kind} (F6 for the next)")
+        self.call_after_refresh(self._refresh_picture)
 
     def action_baseline(self) -> None:
         if self.baseline is not None:

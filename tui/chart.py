@@ -9,13 +9,14 @@ with :func:`_cells` so a wide character in a title cannot push a row over.
 from __future__ import annotations
 
 import dataclasses
-import math
 import unicodedata
 from dataclasses import dataclass
 
 import numpy as np
 
 from model.units import format_si
+
+from .chart_scale import axis_range, finite, scaled, tick_labels, ticks
 
 __all__ = ["Axis", "Series", "Marker", "Spot", "Chart", "render", "render_stack"]
 
@@ -24,7 +25,6 @@ MARKER_COLUMN = "┊"
 LINE_KEY = "─"
 _MIN_PLOT_ROWS = 2
 _MIN_PLOT_COLS = 4
-_MARGIN = 0.05  # of the data span, so extremes do not sit on the frame
 
 # Braille dot bits by (dot row, dot column) inside one cell (Unicode 3.0,
 # Braille Patterns block): dots 1-2-3 and 4-5-6 run down, 7 and 8 sit below.
@@ -84,7 +84,6 @@ class Chart:
     x_ticks: bool = True
 
 
-
 def _cells(text: str) -> int:
     return sum(0 if unicodedata.combining(ch) else 2 if unicodedata.east_asian_width(ch) in "WF" else 1
                for ch in text)
@@ -106,96 +105,6 @@ def _fit(text: str, width: int) -> str:
 
 def _blank(message: str, width: int, height: int) -> list[str]:
     return [_fit(message if row == 0 else "", max(width, 0)) for row in range(max(height, 0))]
-
-
-
-def _finite(axis: Axis, values: np.ndarray) -> np.ndarray:
-    """Which values can be placed on ``axis`` (a log axis has no room for ≤ 0)."""
-    with np.errstate(invalid="ignore"):
-        ok = np.isfinite(values)
-        return ok & (values > 0) if axis.log else ok
-
-
-def _scaled(axis: Axis, values):
-    """Values in the axis's drawing coordinate (decades on a log axis)."""
-    values = np.asarray(values, dtype=float)
-    if not axis.log:
-        return values
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.log10(values)
-
-
-def _range(axis: Axis, samples: list[np.ndarray]) -> tuple[float, float]:
-    """Axis ends in drawing coordinates, widened when they would coincide."""
-    data = [_scaled(axis, s[_finite(axis, s)]) for s in samples]
-    # Bounded so that the span of the widest data still fits in a float.
-    data = np.clip(np.concatenate(data), -1e300, 1e300) if data else np.empty(0)
-    ends = []
-    for given, pick in ((axis.lo, np.min), (axis.hi, np.max)):
-        if given is not None and math.isfinite(given) and (given > 0 or not axis.log):
-            ends.append(float(np.clip(_scaled(axis, given), -1e300, 1e300)))
-        else:
-            ends.append(float(pick(data)) if data.size else math.nan)
-    lo, hi = ends
-    if math.isnan(lo) and math.isnan(hi):
-        lo, hi = (0.0, 1.0)
-    elif math.isnan(lo) or math.isnan(hi):
-        lo = hi = hi if math.isnan(lo) else lo
-    lo, hi = min(lo, hi), max(lo, hi)
-    span = hi - lo
-    if span <= 1e-12 * max(abs(lo), abs(hi), 1e-300):
-        # A flat line still needs an axis: half a decade on a log axis, a
-        # tenth of the value (or one unit at zero) on a linear one.
-        half = 0.5 if axis.log else (abs(lo) * 0.1 or 1.0)
-        return lo - half, hi + half
-    return (lo - _MARGIN * span if axis.lo is None else lo,
-            hi + _MARGIN * span if axis.hi is None else hi)
-
-
-def _linear_ticks(lo: float, hi: float, count: int) -> list[float]:
-    """Multiples of the 1-2-5 step whose tick count comes closest to
-    ``count``, preferring any step that gives at least two ticks."""
-    span = hi - lo
-    power = 10.0 ** math.floor(math.log10(span / max(count, 1)))
-    best = None
-    for factor in (0.1, 0.2, 0.5, 1, 2, 5, 10, 20):
-        step = factor * power
-        first, last = math.ceil(lo / step - 1e-9), math.floor(hi / step + 1e-9)
-        n = last - first + 1
-        score = (n < 2, abs(n - 1 - count), -step)
-        if best is None or score < best[0]:
-            # Whole multiples of the step, so 0.1 + 0.2 noise never reaches a label.
-            best = score, [0.0 if k == 0 else k * step for k in range(first, last + 1)]
-    return best[1]
-
-
-def _ticks(axis: Axis, lo: float, hi: float, count: int) -> list[float]:
-    """Tick values in axis units between drawing coordinates ``lo`` and ``hi``."""
-    if not axis.log:
-        return _linear_ticks(lo, hi, count)
-    decades = list(range(math.ceil(lo - 1e-9), math.floor(hi + 1e-9) + 1))
-    if len(decades) >= 2:
-        every = max(1, math.ceil(len(decades) / max(count, 1)))
-        return [10.0 ** d for d in decades if d % every == 0]
-    within = [m * 10.0 ** d for d in range(math.floor(lo), math.ceil(hi) + 1) for m in (1, 2, 5)
-              if lo - 1e-9 <= math.log10(m) + d <= hi + 1e-9]
-    if len(within) >= 2:
-        return within
-    return [t for t in _linear_ticks(10.0 ** lo, 10.0 ** hi, count) if t > 0]
-
-
-def _tick_labels(values: list[float], unit: str) -> tuple:
-    """(value, text) pairs, each text the shortest format_si that tells the
-    value apart from its neighbours."""
-    gaps = np.diff(values)
-    tolerance = 1e-3 * float(np.min(np.abs(gaps))) if gaps.size else None
-    pairs = []
-    for value in values:
-        allowed = 1e-6 * abs(value) if tolerance is None else tolerance
-        digits = next((d for d in range(1, 13) if abs(float(f"{value:.{d - 1}e}") - value) <= allowed), 12)
-        pairs.append((value, format_si(value, unit, digits)))
-    return tuple(pairs)
-
 
 
 @dataclass(frozen=True)
@@ -224,9 +133,9 @@ def _legend_items(chart: Chart, x_range, y_range) -> list[str]:
 
 
 def _inside(axis: Axis, value: float, ends) -> bool:
-    if not _finite(axis, np.asarray(value, dtype=float)):
+    if not finite(axis, np.asarray(value, dtype=float)):
         return False
-    return ends[0] <= float(_scaled(axis, value)) <= ends[1]
+    return ends[0] <= float(scaled(axis, value)) <= ends[1]
 
 
 def _wrap(items: list[str], width: int, rows: int) -> tuple:
@@ -242,25 +151,28 @@ def _wrap(items: list[str], width: int, rows: int) -> tuple:
 
 
 def _frame(chart: Chart, width: int, height: int, gutter: int = 0, right: int = 0) -> _Frame | None:
-    x_range = _range(chart.x, [np.asarray(s.x, float) for s in chart.series])
-    y_range = _range(chart.y, [np.asarray(s.y, float) for s in chart.series])
+    x_range = axis_range(chart.x, [np.asarray(s.x, float) for s in chart.series])
+    y_range = axis_range(chart.y, [np.asarray(s.y, float) for s in chart.series])
     items = _legend_items(chart, x_range, y_range)
     fixed = 1 + chart.x_ticks
-    legend_rows = 2 if height - fixed - 2 >= 10 else 1
+    # As many legend rows as the words need, up to a quarter of the height,
+    # so that every mark stays explained on a narrow picture.
+    needed = len(_wrap(items, width, len(items))) if items else 0
+    legend_rows = max(1, min(needed, (height - fixed) // 4))
     legend = _wrap(items, width, legend_rows) if items else ()
     plot_rows = height - fixed - len(legend)
     if plot_rows < _MIN_PLOT_ROWS:
         return None
-    y_values = _ticks(chart.y, *y_range, count=max(2, plot_rows // 3))
-    y_ticks = _tick_labels(y_values, chart.y.unit)
+    y_values = ticks(chart.y, *y_range, count=max(2, plot_rows // 3))
+    y_ticks = tick_labels(y_values, chart.y.unit)
     gutter = max(gutter, max((_cells(t) for _, t in y_ticks), default=0))
     # The x labels depend on the plot width and the width on the widest
     # label, so guess with a typical label, then settle on the real one.
     label_cells = 7
     for _ in range(2):
         cols = width - gutter - 1 - max(right, (label_cells + 1) // 2)
-        x_values = _ticks(chart.x, *x_range, count=max(2, cols // (label_cells + 2)))
-        x_ticks = _tick_labels(x_values, chart.x.unit)
+        x_values = ticks(chart.x, *x_range, count=max(2, cols // (label_cells + 2)))
+        x_ticks = tick_labels(x_values, chart.x.unit)
         label_cells = max((_cells(t) for _, t in x_ticks), default=1)
     right = max(right, label_cells // 2)
     cols = width - gutter - 1 - right
@@ -269,12 +181,11 @@ def _frame(chart: Chart, width: int, height: int, gutter: int = 0, right: int = 
     return _Frame(gutter, right, plot_rows, cols, legend, x_range, y_range, x_ticks, y_ticks)
 
 
-
 def _dots(axis: Axis, values, ends, dots: int, flip: bool) -> np.ndarray:
     """Fractional dot positions; 0 is the left column or the top row."""
     lo, hi = ends
     with np.errstate(over="ignore", invalid="ignore"):
-        where = (_scaled(axis, values) - lo) / (hi - lo) * (dots - 1)
+        where = (scaled(axis, values) - lo) / (hi - lo) * (dots - 1)
     # Far-off points only set a line's slope at the edge; bounding them keeps
     # the integer casts below from overflowing.
     where = np.clip(where, -1e12, 1e12)
@@ -324,7 +235,7 @@ def _plot(chart: Chart, f: _Frame) -> list[list[str]]:
         x, y = np.asarray(s.x, float).ravel(), np.asarray(s.y, float).ravel()
         n = min(x.size, y.size)
         x, y = x[:n], y[:n]
-        ok = _finite(chart.x, x) & _finite(chart.y, y)
+        ok = finite(chart.x, x) & finite(chart.y, y)
         u = _dots(chart.x, np.where(ok, x, 1.0), f.x_range, dot_cols, False)
         v = _dots(chart.y, np.where(ok, y, 1.0), f.y_range, dot_rows, True)
         if s.mark:
@@ -351,7 +262,6 @@ def _plot(chart: Chart, f: _Frame) -> list[list[str]]:
         if 0 <= col < f.plot_cols and 0 <= row < f.plot_rows:
             cells[row][col] = _fit(symbol, 1)
     return cells
-
 
 
 def _x_label_row(chart: Chart, f: _Frame, width: int) -> str:

@@ -13,6 +13,7 @@ from model.midband import decibels
 from model.units import format_si
 
 from .consequences import relative_change
+from .report import part_name
 
 #: (group heading, rows of (label, figure key, unit kind)).
 ROWS = (
@@ -20,6 +21,8 @@ ROWS = (
     ("small signal", (("gm", "gm", "S"), ("rπ", "r_pi", "Ω"), ("ro", "ro", "Ω"))),
     ("gain", (("av_loaded", "av_loaded", "gain"), ("av_source", "av_source", "gain"))),
     ("resistance", (("rin", "rin", "Ω"), ("rout", "rout", "Ω"))),
+    ("response", (("f_low", "f_low", "Hz"), ("f_high", "f_high", "Hz"),
+                  ("|av| at freq", "gain_at_freq", "V/V"))),
     ("headroom", (("wanted", "vout_wanted", "V"), ("swing_up", "swing_up", "V"),
                   ("swing_down", "swing_down", "V"))),
     ("distortion", (("thd", "thd", "%"),)),
@@ -43,6 +46,8 @@ def show(value, kind, compact: bool = False) -> str:
         return f"{value:.1f} °C"
     if math.isinf(value):
         return f"∞ {kind}"
+    if kind == "V/V":
+        return f"{value:.4g}"
     return format_si(value, kind)
 
 
@@ -87,9 +92,17 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
                 moved = "" if _nan(a) or _nan(b) else relative_change(b, a, key)
                 line += _right((moved + " " + _arrow(key, b, a)).strip(), _CHANGE)
             out.append(line + "\n")
+        if heading == "response" and shown.response is not None:
+            out.append(f"  {_set_by(shown.response)}\n")
     out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
                + f"{tj_max:g} °C".rjust(value_width))
     return out
+
+
+def _set_by(r) -> str:
+    """Which part sets each corner, e.g. "set by ce (1.80 Hz) · cl (212 kHz)"."""
+    parts = [f"{part_name(p.part)} ({format_si(p.freq, 'Hz')})" for p in (r.low_by, r.high_by) if p is not None]
+    return "set by " + " · ".join(parts) if parts else ""
 
 
 def _right(text: str, width: int) -> str:

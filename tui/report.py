@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import textwrap
 
 from model.analysis import Figures
 from model.design import Design
@@ -68,7 +69,9 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
     rows += ["", "Frequency response of av_source (exact −3 dB points)"]
     rows += response_lines(design, fig)
     rows += ["", "Warnings"]
-    rows += [f"  {w.code}: {w.message}" for w in fig.warnings] or ["  none"]
+    rows += [line for w in fig.warnings
+             for line in textwrap.wrap(f"{w.code}: {w.message}", 78, initial_indent="  ",
+                                       subsequent_indent="    ")] or ["  none"]
     return "\n".join(rows) + "\n"
 
 

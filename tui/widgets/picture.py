@@ -37,10 +37,17 @@ class Picture(Widget, can_focus=False):
         self._cache_key: tuple | None = None
         self._lines: list[str] = []
 
-    def show(self, content: Charts | Callable[[], Charts]) -> None:
-        """Replace the charts (or the factory making them) and redraw."""
+    def show(self, content: Charts | Callable[[], Charts], rendered: tuple | None = None) -> None:
+        """Replace the charts (or the factory making them) and redraw.
+
+        ``rendered`` is (width, height, lines) already drawn elsewhere (a
+        worker thread); it is used if the picture is still that size.
+        """
         self._content = content
         self._version += 1
+        if rendered is not None:
+            width, height, lines = rendered
+            self._cache_key, self._lines = (self._version, width, height), lines
         self.refresh()
 
     def lines(self) -> list[str]:

@@ -1,0 +1,61 @@
+"""The data behind the workbench's load-line and transfer pictures: the load
+lines and a uniform large-signal sweep wide enough to show both clip points."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .analysis import design_values
+from .design import Design
+from .errors import SolveError
+from .loadlines import LoadLines, load_lines
+from .solve import operating_point
+from .topologies import build
+from .transfer import ACTIVE, TransferCurve, transfer_curve
+
+#: Points of the sweep, and how far past the farther edge it runs.
+CURVE_POINTS = 161
+_BEYOND = 1.4
+
+
+@dataclass(frozen=True)
+class Edge:
+    """Where the stage leaves forward-active: EMF and load excursion (V), the
+    transistor's IC (A) and VCE (V) there, and the region it goes into."""
+
+    emf: float
+    out: float
+    ic: float
+    vce: float
+    region: str
+
+
+@dataclass(frozen=True)
+class StageCurves:
+    lines: LoadLines
+    curve: TransferCurve
+    edges: tuple
+
+
+def stage_curves(design: Design, emf_edges: tuple) -> StageCurves:
+    """Load lines and the transfer over ±1.4× the farther of ``emf_edges`` (V)."""
+    stage = build(design.topology, design_values([design]))
+    op = operating_point(stage.net)
+    if not op.converged[0]:
+        raise SolveError("the operating point did not converge", "no curves to draw")
+    finite = [abs(e) for e in emf_edges if math.isfinite(e)]
+    span = _BEYOND * max(finite) if finite and max(finite) > 0 else 0.1
+    curve = transfer_curve(stage, op, np.linspace(-span, span, CURVE_POINTS))
+    edges = tuple(_edge(curve, e) for e in emf_edges if math.isfinite(e) and e != 0.0)
+    return StageCurves(load_lines(stage, op), curve, edges)
+
+
+def _edge(curve: TransferCurve, emf: float) -> Edge:
+    at = {name: float(np.interp(emf, curve.emf, getattr(curve, name))) for name in ("out", "ic", "vce")}
+    beyond = np.flatnonzero((curve.emf > emf) if emf > 0 else (curve.emf < emf))
+    regions = curve.region
+    past = regions[beyond[0] if emf > 0 else beyond[-1]] if beyond.size else ACTIVE
+    return Edge(emf, at["out"], at["ic"], at["vce"], str(past))

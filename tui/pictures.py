@@ -1,0 +1,93 @@
+"""The workbench's pictures as charts: Bode plot, load lines, transfer curve.
+
+Each builder turns figures the engine computed into :class:`~tui.chart.Chart`
+objects; nothing here solves anything.  Marks are letters explained in the
+legend, so every picture reads without colour.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from model.analysis import Figures
+from model.curves import StageCurves, stage_curves
+from model.design import Design
+
+from .chart import Axis, Chart, Marker, Series, Spot
+
+BODE, LOAD_LINES, TRANSFER = "Bode", "load lines", "transfer"
+#: The pictures in the order F6 steps through them.
+PICTURES = (BODE, LOAD_LINES, TRANSFER)
+_REGION_MARK = {"saturation": ("S", "saturation edge"), "cutoff": ("X", "cut-off edge")}
+
+
+def charts_for(kind: str, design: Design, fig: Figures) -> tuple:
+    """The charts of picture ``kind`` for an analysed design (``()`` if the
+    figures behind it were not computed)."""
+    if kind == BODE:
+        return bode(design, fig)
+    if not fig.large_signal:
+        return ()
+    curves = stage_curves(design, fig.emf_edges)
+    return load_line_chart(curves) if kind == LOAD_LINES else transfer_chart(design, curves)
+
+
+def bode(design: Design, fig: Figures) -> tuple:
+    """Gain (dB) above phase (°) of av_source against log frequency."""
+    r = fig.response
+    if r is None:
+        return ()
+    x = Axis("f", "Hz", log=True, lo=float(r.freq[0]), hi=float(r.freq[-1]))
+    markers = tuple(
+        Marker(f, symbol, label) for f, symbol, label in (
+            (r.f_low, "L", "f_low"), (r.f_high, "H", "f_high"), (design.source.freq, "F", "signal"))
+        if math.isfinite(f) and f > 0
+    )
+    gain = Chart("Bode of av_source", x, Axis("gain", "dB"),
+                 series=(Series(r.freq, r.magnitude_db(), "gain"),), markers=markers, x_ticks=False)
+    phase = Chart("phase", x, Axis("phase", "°"),
+                  series=(Series(r.freq, r.phase_deg(), "phase"),), markers=markers)
+    return gain, phase
+
+
+def load_line_chart(c: StageCurves) -> tuple:
+    """The DC and AC load lines in the IC–VCE plane, the Q-point, and where
+    the large-signal path leaves forward-active (saturation, cut-off)."""
+    ll = c.lines
+    right = max(ll.vce_open, ll.ac_vce_cutoff, float(np.nanmax(c.curve.vce))) * 1.02
+    vce = np.linspace(0.0, right, 24)
+    dc_ic, ac_ic = ll.dc_ic(vce), ll.ac_ic(vce)
+    top = max(ll.dc_ic(0.0), ll.ac_ic(0.0), ll.ic_q * 2.0, *(e.ic for e in c.edges)) * 1.05
+    keep = (dc_ic >= 0) & (dc_ic <= top)
+    ac_vce = np.linspace(0.0, ll.ac_vce_cutoff, 160)
+    spots = [Spot(ll.vce_q, ll.ic_q, "Q", "Q-point")]
+    spots += [Spot(e.vce, e.ic, *_REGION_MARK[e.region]) for e in c.edges if e.region in _REGION_MARK]
+    return (Chart(
+        "Load lines",
+        Axis("VCE", "V", lo=0.0, hi=right),
+        Axis("IC", "A", lo=0.0, hi=top),
+        series=(
+            Series(vce[keep], dc_ic[keep], "DC load line", mark="·"),
+            Series(ac_vce, ll.ac_ic(ac_vce), "AC load line", mark=None),
+        ),
+        spots=tuple(spots),
+    ),)
+
+
+def transfer_chart(design: Design, c: StageCurves) -> tuple:
+    """Load voltage against source EMF with the clip points, the quiescent
+    point and the requested amplitude ±vpk marked."""
+    curve = c.curve
+    vpk = design.source.vpk
+    markers = tuple(Marker(x, "A", label) for x, label in ((vpk, "+vpk"), (-vpk, "−vpk")) if vpk > 0)
+    spots = [Spot(0.0, 0.0, "Q", "quiescent")]
+    spots += [Spot(e.emf, e.out, *_REGION_MARK[e.region]) for e in c.edges if e.region in _REGION_MARK]
+    return (Chart(
+        "Transfer",
+        Axis("emf", "V", lo=float(curve.emf[0]), hi=float(curve.emf[-1])),
+        Axis("v_load", "V"),
+        series=(Series(curve.emf, curve.out, "v_load − quiescent"),),
+        markers=markers, spots=tuple(spots),
+    ),)
