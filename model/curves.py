@@ -41,15 +41,19 @@ class StageCurves:
 
 
 def stage_curves(design: Design, emf_edges: tuple) -> StageCurves:
-    """Load lines and the transfer over ±1.4× the farther of ``emf_edges`` (V)."""
+    """Load lines and the transfer over ±1.4× the farther of ``emf_edges`` (V),
+    with the edges themselves among the points."""
     stage = build(design.topology, design_values([design]))
     op = operating_point(stage.net)
     if not op.converged[0]:
         raise SolveError("the operating point did not converge", "no curves to draw")
     finite = [abs(e) for e in emf_edges if math.isfinite(e)]
     span = _BEYOND * max(finite) if finite and max(finite) > 0 else 0.1
-    curve = transfer_curve(stage, op, np.linspace(-span, span, CURVE_POINTS))
-    edges = tuple(_edge(curve, e) for e in emf_edges if math.isfinite(e) and e != 0.0)
+    inside = [e for e in emf_edges if math.isfinite(e) and e != 0.0]
+    # The edges are solved as points of their own: the curve kinks there, and
+    # interpolating across the kink would put the clip marks off the curve.
+    curve = transfer_curve(stage, op, np.union1d(np.linspace(-span, span, CURVE_POINTS), inside))
+    edges = tuple(_edge(curve, e) for e in inside)
     return StageCurves(load_lines(stage, op), curve, edges)
 
 

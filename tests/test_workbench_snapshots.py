@@ -64,3 +64,15 @@ def test_candidate_with_ledger_120x40(app, snap_compare):
         await _settle(pilot)
 
     assert snap_compare(app, terminal_size=(120, 40), run_before=before)
+
+
+def test_load_lines_picture_80x24(app, snap_compare):
+    """The pictures take the readout's place on a narrow screen (F6 twice:
+    show them, then step from the Bode plot to the load lines)."""
+    async def before(pilot):
+        _steady(pilot)
+        await _settle(pilot)
+        await pilot.press("f6", "f6")
+        await _settle(pilot)
+
+    assert snap_compare(app, terminal_size=(80, 24), run_before=before)

@@ -3,7 +3,9 @@
 Times the response of the bundled geophone preamp: a 400-point sweep with
 both −3 dB corners found and every per-capacitor estimate, as the median of
 many runs; beside it, the sweep alone (one batched complex solve) and the
-same 400 points solved one frequency at a time, in the same run.
+same 400 points solved one frequency at a time, in the same run.  Last, each
+workbench picture built from the figures and drawn at 52×20 cells, as the
+picture worker does it.
 """
 
 from __future__ import annotations
@@ -17,12 +19,14 @@ import numpy as np
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
-from model import read_design  # noqa: E402
+from model import analyse, read_design  # noqa: E402
 from model.analysis import design_values  # noqa: E402
 from model.midband import device_small_signal, midband  # noqa: E402
 from model.response import device_capacitance, response, sweep, with_device_capacitance  # noqa: E402
 from model.solve import operating_point  # noqa: E402
 from model.topologies import build  # noqa: E402
+from tui.chart import render_stack  # noqa: E402
+from tui.pictures import PICTURES, charts_for  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 POINTS = 400
@@ -56,6 +60,10 @@ def main() -> None:
     loop = _median_ms(lambda: [sweep(ac, op, freq[i:i + 1]) for i in range(POINTS)], 5)
     print(f"sweep_{POINTS}_points_one_solve_per_point_median: {loop:.2f} ms")
     print("target_response_with_corners: 5 ms")
+    fig = analyse(d)
+    for kind in PICTURES:
+        ms = _median_ms(lambda: render_stack(charts_for(kind, d, fig), 52, 20), 30)
+        print(f"picture_{kind.replace(' ', '_')}_build_and_draw_median: {ms:.2f} ms")
 
 
 if __name__ == "__main__":

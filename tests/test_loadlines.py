@@ -1,0 +1,78 @@
+"""Load lines and the large-signal transfer behind the workbench pictures,
+against closed forms.
+
+* DC load line of a divider-biased stage: VCE = VCC − IC·RC − IE·RE (KVL
+  round the collector–emitter loop), which the usual construction draws with
+  IE ≈ IC as VCE = VCC − IC(RC + RE) (Sedra & Smith; Boylestad & Nashelsky).
+* AC load line: slope −1/R_ac with R_ac the resistance the collector–emitter
+  port sees at midband: RC ‖ RL + RE1 for the common emitter with RE2
+  bypassed, RC + RE ‖ RL for the follower (same sources).
+"""
+
+import math
+
+import pytest
+from hypothesis import given
+
+from model import analyse
+from model.analysis import design_values
+from model.curves import stage_curves
+from model.design import default_design, with_values
+from model.loadlines import load_lines
+from model.solve import operating_point
+from model.topologies import build
+from test_engine_properties import SETTINGS, designs
+
+
+def _par(a, b):
+    return math.inf if math.isinf(a) and math.isinf(b) else (b if math.isinf(a) else a if math.isinf(b)
+                                                              else a * b / (a + b))
+
+
+def _lines(d):
+    stage = build(d.topology, design_values([d]))
+    op = operating_point(stage.net)
+    return load_lines(stage, op), op
+
+
+@given(d=designs())
+@SETTINGS
+def test_load_line_resistances_are_the_closed_forms(d):
+    ll, _ = _lines(d)
+    s, rl = d.stage, d.load.rl
+    assert ll.vce_open == pytest.approx(d.supply.vcc, rel=1e-9)
+    if d.topology == "common-emitter":
+        assert ll.r_dc == pytest.approx(s.rc + s.re1 + s.re2, rel=1e-9)
+        assert ll.r_ac == pytest.approx(_par(s.rc, rl) + s.re1, rel=1e-9)
+    else:
+        assert ll.r_dc == pytest.approx(s.rc + s.re, rel=1e-9)
+        assert ll.r_ac == pytest.approx(s.rc + _par(s.re, rl), rel=1e-9)
+
+
+@given(d=designs())
+@SETTINGS
+def test_q_point_is_off_the_dc_line_by_the_base_current_only(d):
+    """KVL: VCE = VCC − IC·RC − (IC + IB)·RE, so the Q-point sits below the
+    IE ≈ IC line by exactly IB·RE (in VCE), to the solver's KCL tolerance
+    (1e-9 of the largest branch current, so allow 1e-7 of vcc)."""
+    fig = analyse(d, large_signal=False)
+    ll, _ = _lines(d)
+    r_e = d.stage.re1 + d.stage.re2 if d.topology == "common-emitter" else d.stage.re
+    on_line = ll.vce_open - fig.ic * ll.r_dc
+    assert ll.vce_q == pytest.approx(on_line - fig.ib * r_e, abs=1e-7 * d.supply.vcc)
+
+
+@pytest.mark.parametrize("topology", ["common-emitter", "emitter-follower"])
+@pytest.mark.parametrize("polarity", ["npn", "pnp"])
+def test_clip_points_on_the_transfer_match_the_swing_figures(topology, polarity):
+    """The transfer picture's clip points are the swing figures' edges: the
+    output excursion there is +swing_up and −swing_down (either order), to
+    the 1e-4 the swing search extrapolates its edge to."""
+    d = with_values(default_design(topology), {"transistor.polarity": polarity, "source.vpk": 0.01})
+    fig = analyse(d)
+    c = stage_curves(d, fig.emf_edges)
+    outs = sorted(e.out for e in c.edges)
+    assert outs[0] == pytest.approx(-fig.swing_down, rel=1e-4, abs=1e-6)
+    assert outs[-1] == pytest.approx(fig.swing_up, rel=1e-4, abs=1e-6)
+    assert {e.region for e in c.edges} <= {"saturation", "cutoff"}
+    assert c.curve.emf[0] < min(fig.emf_edges) and c.curve.emf[-1] > max(fig.emf_edges)
