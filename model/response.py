@@ -166,23 +166,8 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     stage = with_device_capacitance(stage, device)
     z = transfer_impedances(stage.net, op)
     low, high = short_circuit_parts(stage, op), open_circuit_parts(stage, op, z)
-    est_low = sum(p.freq for p in low if math.isfinite(p.freq)) or 10.0 ** _LOWEST_DECADE
-    total_tau = sum(p.tau for p in high)
-    est_high = 1.0 / (2.0 * math.pi * total_tau) if total_tau > 0 else 10.0 ** _HIGHEST_DECADE
-    lo = max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE)
-    hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
-    reference = abs(midband_gain)
-    while True:
-        freq = _grid(lo, hi, per_decade, points)
-        gain = sweep(stage, op, freq)
-        centre, below, above = _brackets(gain, midband_gain)
-        wider_lo = below is None and centre is not None and lo > _LOWEST_DECADE
-        wider_hi = above is None and centre is not None and hi < _HIGHEST_DECADE
-        if not (wider_lo or wider_hi):
-            break
-        lo = max(lo - _WIDEN, _LOWEST_DECADE) if wider_lo else lo
-        hi = min(hi + _WIDEN, _HIGHEST_DECADE) if wider_hi else hi
-    f_low, f_high, at_signal = _corners(stage, op, freq, below, above, reference, signal_freq)
+    freq, gain, lo, hi, (centre, below, above) = _search(stage, op, midband_gain, low, high, per_decade, points)
+    f_low, f_high, at_signal = _corners(stage, op, freq, below, above, abs(midband_gain), signal_freq)
     if centre is None:
         f_low = f_high = math.nan
     # The search grid came from the estimates; the sweep kept spans whole
@@ -196,6 +181,26 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     return Response(freq=freq, gain=gain, midband=midband_gain, f_low=f_low, f_high=f_high,
                     low_parts=low, high_parts=high, f_high_miller=miller_estimate(stage, op, device, z),
                     signal_freq=signal_freq, gain_at_freq=at_signal, device=device)
+
+
+def _search(stage, op, midband_gain, low, high, per_decade, points):
+    """Sweep whole decades around the estimated corners, widening a side
+    whose crossing is not inside yet.  Returns (freq, gain, lo, hi, brackets)."""
+    est_low = sum(p.freq for p in low if math.isfinite(p.freq)) or 10.0 ** _LOWEST_DECADE
+    total_tau = sum(p.tau for p in high)
+    est_high = 1.0 / (2.0 * math.pi * total_tau) if total_tau > 0 else 10.0 ** _HIGHEST_DECADE
+    lo = max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE)
+    hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
+    while True:
+        freq = _grid(lo, hi, per_decade, points)
+        gain = sweep(stage, op, freq)
+        centre, below, above = _brackets(gain, midband_gain)
+        wider_lo = below is None and centre is not None and lo > _LOWEST_DECADE
+        wider_hi = above is None and centre is not None and hi < _HIGHEST_DECADE
+        if not (wider_lo or wider_hi):
+            return freq, gain, lo, hi, (centre, below, above)
+        lo = max(lo - _WIDEN, _LOWEST_DECADE) if wider_lo else lo
+        hi = min(hi + _WIDEN, _HIGHEST_DECADE) if wider_hi else hi
 
 
 def _grid(lo: int, hi: int, per_decade: int, points: int | None) -> np.ndarray:

@@ -329,4 +329,7 @@ def test_adding_capacitance_never_raises_f_high(which, factor, data):
     zero = g_m / (2 * math.pi * change.get("transistor.cmu", t.cmu))
     assume(10 * fig.f_high < zero)
     more = analyse(with_values(d, change))
-    assert more.f_high <= fig.f_high * (1 + 1e-6)
+    # Below the zero the feed-forward still lifts |gain| by about
+    # √(1 + (f/z)²) ≈ 1 + (f/z)²/2 at f = f_high, and can move the −3 dB
+    # point up by that much; more than that would be an error.
+    assert more.f_high <= fig.f_high * (1 + 1e-9 + (fig.f_high / zero) ** 2)

@@ -18,6 +18,7 @@ import pytest
 from rich.console import Console
 
 import tui.app
+from textual.worker import WorkerCancelled
 from model.analysis import analyse
 from model.design import with_values
 from model.designfile import read_document
@@ -109,8 +110,12 @@ async def settle(pilot) -> None:
     """
     await pilot.pause(tui.app.DEBOUNCE + 0.1)
     # The sweep's result starts the picture worker: wait for that one too.
-    for _ in range(2):
-        await pilot.app.workers.wait_for_complete()
+    # A worker replaced by a newer one (exclusive) ends cancelled; that is fine.
+    for _ in range(3):
+        try:
+            await pilot.app.workers.wait_for_complete()
+        except WorkerCancelled:
+            pass
         await pilot.pause()
 
 

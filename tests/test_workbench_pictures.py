@@ -119,3 +119,22 @@ async def test_the_readout_names_the_part_setting_each_corner(preamp, size):
         assert format_si(fig.f_low, "Hz") in text and format_si(fig.f_high, "Hz") in text
         by = f"set by {fig.response.low_by.part} ({format_si(fig.response.low_by.freq, 'Hz')})"
         assert by in text
+
+
+@pytest.mark.parametrize("size", [SMALL, LARGE])
+async def test_results_arriving_under_a_dialog_are_kept(preamp, size):
+    """The sweeps finish while the help screen is open: nothing fails, and
+    the readout and picture show the candidate's figures once it closes."""
+    app = make_app(str(preamp))
+    async with app.run_test(size=size) as pilot:
+        await settle(pilot)
+        await type_into(pilot, "stage.ce", "4u7")
+        await pilot.press("f1")
+        await settle(pilot)
+        assert app.is_running and app.candidate.figures.large_signal
+        await pilot.press("escape")
+        await settle(pilot)
+        candidate = analyse(with_values(app.design, {"stage.ce": 4.7e-6}))
+        assert format_si(candidate.f_low, "Hz") in region_text(app, "#readout-box") or size == SMALL
+        if size == LARGE:
+            assert f"L f_low {format_si(candidate.f_low, 'Hz', 2)}" in picture(app)

@@ -20,6 +20,7 @@ import pytest
 pytest.importorskip("pytest_textual_snapshot")
 
 import tui.app  # noqa: E402
+from textual.worker import WorkerCancelled  # noqa: E402
 from textual.widgets import Input  # noqa: E402
 from tui.launch import make_app  # noqa: E402
 
@@ -42,8 +43,12 @@ def _steady(pilot):
 async def _settle(pilot):
     await pilot.pause(tui.app.DEBOUNCE + 0.1)
     # The sweep's result starts the picture worker: wait for that one too.
-    for _ in range(2):
-        await pilot.app.workers.wait_for_complete()
+    # A worker replaced by a newer one (exclusive) ends cancelled; that is fine.
+    for _ in range(3):
+        try:
+            await pilot.app.workers.wait_for_complete()
+        except WorkerCancelled:
+            pass
         await pilot.pause()
 
 

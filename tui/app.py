@@ -99,11 +99,17 @@ class Workbench(App):
 
     def on_mount(self) -> None:
         self.sub_title = self._where()
-        self.query_one(LedgerPane).show(self.history)
+        self._home.query_one(LedgerPane).show(self.history)
         self._refresh_readout()
         # Start on the supply, the first value people tune; the name is above it.
-        self.query_one(Knobs).field("supply.vcc").focus()
+        self._home.query_one(Knobs).field("supply.vcc").focus()
         self._say("Tab moves, type or Up/Down to try a value, Enter commits, Esc abandons, F1 help")
+
+    @property
+    def _home(self):
+        """The workbench's own screen: a dialog on top must not hide its widgets
+        from a worker's result arriving meanwhile."""
+        return self.screen_stack[0]
 
     @property
     def history(self) -> list:
@@ -130,9 +136,9 @@ class Workbench(App):
                               tj_max=self.design.transistor.tj_max)
         # The readout keeps its size from one keystroke to the next, so skip the
         # layout pass that would otherwise follow every update.
-        self.query_one("#readout", Static).update(table, layout=False)
+        self._home.query_one("#readout", Static).update(table, layout=False)
         warnings = warnings_text(shown)
-        box = self.query_one("#warnings", Static)
+        box = self._home.query_one("#warnings", Static)
         if warnings.plain != str(box.content):
             box.update(warnings)
         design = self.candidate.design if self.candidate else self.design
@@ -155,6 +161,8 @@ class Workbench(App):
         self.post_message(LargeSignalReady(design, figures))
 
     def on_large_signal_ready(self, message: LargeSignalReady) -> None:
+        if not self._in_service():
+            return
         if self.candidate and self.candidate.design == message.design:
             self.candidate = Candidate(self.candidate.key, self.candidate.text, message.design, message.figures)
         elif message.design == self.design:
@@ -165,13 +173,17 @@ class Workbench(App):
 
     # -- the pictures -------------------------------------------------------------
 
+    def _in_service(self) -> bool:
+        """False while the app shuts down: a worker's late result is then dropped."""
+        return bool(self.screen_stack) and bool(self._home.query(Picture))
+
     def _pictures_visible(self) -> bool:
         """Always on a wide screen, beside the readout; on a narrow one after F6."""
-        return not self.screen.has_class("-narrow") or self.screen.has_class("-show-pictures")
+        return not self._home.has_class("-narrow") or self._home.has_class("-show-pictures")
 
     def _schedule_picture(self, design: Design, figures: Figures) -> None:
-        picture = self.query_one(Picture)
-        self.query_one("#picture-title", Static).update(
+        picture = self._home.query_one(Picture)
+        self._home.query_one("#picture-title", Static).update(
             f"Pictures: {self.picture_kind} · F6 next", layout=False)
         size = (picture.size.width, picture.size.height)
         if not self._pictures_visible() or self._picture_drawn == (design, self.picture_kind, size):
@@ -188,10 +200,12 @@ class Workbench(App):
         self.post_message(PictureReady(design, kind, charts, (*size, lines) if lines else None))
 
     def on_picture_ready(self, message: PictureReady) -> None:
+        if not self._in_service():
+            return
         shown = self.candidate.design if self.candidate else self.design
         if message.design != shown or message.kind != self.picture_kind:
             return
-        self.query_one(Picture).show(message.charts, message.rendered)
+        self._home.query_one(Picture).show(message.charts, message.rendered)
         size = message.rendered[:2] if message.rendered else None
         self._picture_drawn = (message.design, message.kind, size)
 
@@ -199,19 +213,21 @@ class Workbench(App):
         self.call_after_refresh(self._refresh_picture)
 
     def _refresh_picture(self) -> None:
+        if not self._in_service():
+            return
         shown = self.candidate.figures if self.candidate else self.figures
         if shown.large_signal:
             self._schedule_picture(self.candidate.design if self.candidate else self.design, shown)
 
     def _say(self, text: str, error: bool = False) -> None:
-        status = self.query_one("#status", Static)
+        status = self._home.query_one("#status", Static)
         status.update(("✗ " if error else "") + text, layout=False)  # always one line
         status.set_class(error, "-error")
 
     # -- editing ----------------------------------------------------------------
 
     def on_knob_edited(self, message: KnobEdited) -> None:
-        field = self.query_one(Knobs).field(message.key)
+        field = self._home.query_one(Knobs).field(message.key)
         committed = field_text(message.key, get_value(self.design, message.key))
         if message.text.strip() == committed:
             # Also the fields' own change events as they mount: nothing to do.
@@ -233,7 +249,7 @@ class Workbench(App):
 
     def on_knob_stepped(self, message: KnobStepped) -> None:
         key = message.key
-        field = self.query_one(Knobs).field(key)
+        field = self._home.query_one(Knobs).field(key)
         current = self.candidate.design if self.candidate and self.candidate.key == key else self.design
         value = get_value(current, key)
         words = choices(key)
@@ -250,7 +266,7 @@ class Workbench(App):
         self._abandon(message.key)
 
     def _abandon(self, key: str, quiet: bool = False) -> None:
-        self.query_one(Knobs).show(self.design, keys=[key])
+        self._home.query_one(Knobs).show(self.design, keys=[key])
         if self.candidate and self.candidate.key == key:
             self.candidate = None
             self._refresh_readout()
@@ -261,7 +277,7 @@ class Workbench(App):
         # Invalid text is checked first: a field can keep an earlier valid
         # candidate under text that no longer parses, and Enter on it is "not
         # committed" (with the rule), not a failed save.
-        if self.query_one(Knobs).field(message.key).has_class("-invalid"):
+        if self._home.query_one(Knobs).field(message.key).has_class("-invalid"):
             try:
                 with_values(self.design, {message.key: message.text})
             except StageledgerError as err:
@@ -283,9 +299,9 @@ class Workbench(App):
             return
         self.design, self.figures = session.design, session.figures
         self.candidate, self.note = None, ""
-        knobs = self.query_one(Knobs)
+        knobs = self._home.query_one(Knobs)
         knobs.show(self.design)
-        self.query_one(LedgerPane).show(session.history)
+        self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
         self._refresh_readout()
         self._say(f"saved entry #{entry.number} ({entry.action}) to {session.path}")
@@ -336,14 +352,14 @@ class Workbench(App):
 
     def action_toggle_ledger(self) -> None:
         # The size classes (-narrow/-wide) live on the screen, so these do too.
-        self.screen.remove_class("-show-pictures")
-        self.screen.toggle_class("-show-ledger")
+        self._home.remove_class("-show-pictures")
+        self._home.toggle_class("-show-ledger")
 
     def action_picture(self) -> None:
         """Show the pictures (on a narrow screen), or step to the next one."""
-        if self.screen.has_class("-narrow") and not self.screen.has_class("-show-pictures"):
-            self.screen.remove_class("-show-ledger")
-            self.screen.add_class("-show-pictures")
+        if self._home.has_class("-narrow") and not self._home.has_class("-show-pictures"):
+            self._home.remove_class("-show-ledger")
+            self._home.add_class("-show-pictures")
         else:
             self.picture_kind = PICTURES[(PICTURES.index(self.picture_kind) + 1) % len(PICTURES)]
         self._say(f"picture: {self.picture_kind} (F6 for the next)")
