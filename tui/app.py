@@ -80,6 +80,10 @@ class Workbench(App):
     # -- layout ---------------------------------------------------------------
 
     def compose(self) -> ComposeResult:
+        # The size class the first resize would add, added now: adding it
+        # later restyles every widget once more before the first frame.
+        width = self.size.width
+        self.screen.add_class(next(c for w, c in reversed(self.HORIZONTAL_BREAKPOINTS) if width >= w))
         yield Header(show_clock=False)
         with Horizontal(id="main"):
             yield Knobs(self.design, id="knobs")

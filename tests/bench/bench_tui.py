@@ -5,7 +5,9 @@
   the quick analysis and the readout redraw are inside the timing.  The time
   runs from just before the key is sent to the end of the first screen
   paint after the readout changed.  Pilot's own round trip for a key that
-  does nothing is printed beside it for comparison;
+  does nothing is printed beside it for comparison.  The same edits are
+  then timed with each key posted to the app the way the terminal driver
+  posts it, without Pilot's wait for every widget's queue after a key;
 * start → first frame: the installed command in tmux, polled until the
   readout is on screen (skipped without tmux or the installed command).
 """
@@ -23,7 +25,9 @@ import time
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
+# tui first: it sets Textual's frame rate before Textual is imported.
 from tui.launch import make_app  # noqa: E402
+from textual import events  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 EDITS = 240
@@ -53,7 +57,7 @@ def _latency(marks, since):
 async def keypress_times(path: str) -> tuple:
     app = make_app(path)
     marks = _watch(app)
-    times, idle, previewed = [], [], 0
+    times, idle, direct, previewed = [], [], [], 0
     async with app.run_test(size=(80, 24)) as pilot:
         screen = app.screen
         paint = screen._compositor_refresh
@@ -78,9 +82,21 @@ async def keypress_times(path: str) -> tuple:
             await pilot.press("right")
             await pilot.pause()
             idle.append(time.perf_counter() - t)
+        # The same edits with each key posted to the app as the terminal
+        # driver posts it, and nothing else waiting in between: Pilot's
+        # press() also makes every widget drain its queue before it returns.
+        for k in range(EDITS):
+            t = time.perf_counter()
+            app.post_message(events.Key("up" if (k // 6) % 2 == 0 else "down", None))
+            while _latency(marks, t) is None and time.perf_counter() - t < 2.0:
+                await asyncio.sleep(0.0005)
+            latency = _latency(marks, t)
+            if latency is not None:
+                direct.append(latency)
+            await pilot.pause()
     # Every sixth step returns to the committed value, which shows no candidate.
     assert previewed >= EDITS * 2 // 3, previewed
-    return times, idle
+    return times, idle, direct
 
 
 def first_frame(path: str) -> float | None:
@@ -106,11 +122,15 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         path = str(pathlib.Path(tmp) / "bench.toml")
         shutil.copy(DEMO, path)
-        times, idle = asyncio.run(keypress_times(path))
+        times, idle, direct = asyncio.run(keypress_times(path))
         cuts = statistics.quantiles(times, n=20)
         print(f"keypress_to_readout_edits: {len(times)} edits")
         print(f"keypress_to_readout_p50: {1e3 * statistics.median(times):.1f} ms")
         print(f"keypress_to_readout_p95: {1e3 * cuts[18]:.1f} ms")
+        cuts = statistics.quantiles(direct, n=20)
+        print(f"driver_key_to_readout_edits: {len(direct)} edits")
+        print(f"driver_key_to_readout_p50: {1e3 * statistics.median(direct):.1f} ms")
+        print(f"driver_key_to_readout_p95: {1e3 * cuts[18]:.1f} ms")
         print(f"pilot_round_trip_noop_key_p50: {1e3 * statistics.median(idle):.1f} ms")
         start = first_frame(path)
         print(f"start_to_first_frame: {start:.2f} s" if start is not None
