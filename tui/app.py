@@ -231,6 +231,8 @@ class Workbench(App):
     # -- editing ----------------------------------------------------------------
 
     def on_knob_edited(self, message: KnobEdited) -> None:
+        if not self._in_service():
+            return
         field = self._home.query_one(Knobs).field(message.key)
         committed = field_text(message.key, get_value(self.design, message.key))
         if message.text.strip() == committed:
