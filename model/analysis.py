@@ -184,6 +184,7 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
         swing_up=big.swing_up, swing_down=big.swing_down, wanted_out=wanted,
         p_transistor=p_q, tj=tj, p_resistors=p_res,
         ic_beta_half=ic_half, ic_beta_double=ic_double, device=caps, ft=t.ft,
+        band=(resp.f_low, resp.f_high, abs(resp.gain_at_freq) / max(abs(av_source), 1e-300)) if resp else None,
     )
     v = op.voltages
     nan = math.nan

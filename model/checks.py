@@ -6,6 +6,7 @@ for people and carry the numbers that tripped them.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from .units import format_si
@@ -31,8 +32,13 @@ def _v(x, unit):
 
 
 def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
-                   p_transistor, tj, p_resistors, ic_beta_half, ic_beta_double, device, ft) -> tuple:
-    """All warnings for one analysed design (scalars in SI units)."""
+                   p_transistor, tj, p_resistors, ic_beta_half, ic_beta_double, device, ft,
+                   band=None) -> tuple:
+    """All warnings for one analysed design (scalars in SI units).
+
+    ``band`` is (f_low, f_high, gain at source.freq over midband) from the
+    frequency response, or None where that was not computed.
+    """
     t = d.transistor
     out = []
     if region == "saturation":
@@ -66,9 +72,23 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
             out.append(Warning_("BETA-DEPENDENT", f"IC moves {100 * moves[0]:.0f} % with β halved and "
                                 f"{100 * moves[1]:.0f} % with β doubled (limit 10 %): stiffen the divider "
                                 "or add emitter resistance"))
-    if device.floored:
-        out.append(Warning_("FT-INCONSISTENT", f"ft {_v(ft, 'Hz')} is beyond what gm and cmu allow: "
-                            f"gm/(2π·ft) is below cmu {_v(device.c_mu, 'F')}, so Cπ is taken as 0"))
+    # Judged only while active: at rest in cut-off gm is ~0 and any ft is
+    # "too fast", which would only repeat Q-CUTOFF.
+    if device.floored and region == "active":
+        out.append(Warning_("FT-INCONSISTENT", f"ft {_v(ft, 'Hz')} is beyond what gm and cmu allow at IC "
+                            f"{_v(ic, 'A')}: gm/(2π·ft) is below cmu {_v(device.c_mu, 'F')}, so Cπ is "
+                            "taken as 0; a real part's ft falls at low current, so give its ft at this IC"))
+    if band is not None and region == "active":
+        f_low, f_high, relative = band
+        if math.isnan(f_low):
+            out.append(Warning_("NO-PASSBAND", "the gain never comes within 3 dB of its midband value: "
+                                "a coupling capacitor is far too small or a device capacitance far too large"))
+        elif not f_low <= d.source.freq <= f_high:
+            where = "below f_low" if d.source.freq < f_low else "above f_high"
+            corner = f_low if d.source.freq < f_low else f_high
+            out.append(Warning_("OUT-OF-BAND", f"source.freq {_v(d.source.freq, 'Hz')} is {where} "
+                                f"{_v(corner, 'Hz')}: the gain there is {20 * math.log10(max(relative, 1e-300)):.1f} dB "
+                                "from midband"))
     if d.supply.vcc > SAFE_DC_VOLTS:
         out.append(Warning_("HAZARDOUS-VOLTAGE", f"supply {_v(d.supply.vcc, 'V')} exceeds 60 V DC: a shock "
                             "hazard; follow local codes and licensed practice"))

@@ -32,6 +32,7 @@ CPI, CMU = "cpi", "cmu"
 POINTS_PER_DECADE = 20
 #: Points of each refining grid inside a bracket; two rounds narrow a
 #: 1/20-decade bracket to about 5e-5 decade before the final interpolation.
+#: The search grid is always POINTS_PER_DECADE dense.
 _REFINE = 32
 _HALF_POWER_DB = -10.0 * math.log10(2.0)
 #: Widest the search goes: the corners of any audio-to-RF stage lie inside.
@@ -82,6 +83,7 @@ class PartEstimate:
 
     @property
     def tau(self) -> float:
+        """The time constant R·C (s)."""
         return self.resistance * self.capacitance
 
     @property
@@ -137,12 +139,13 @@ class Response:
         return max(self.high_parts, key=lambda p: p.tau, default=None)
 
     def magnitude_db(self) -> np.ndarray:
+        """20·log10|av_source| at each sweep frequency (dB)."""
         with np.errstate(divide="ignore"):
             return 20.0 * np.log10(np.abs(self.gain))
 
     def phase_deg(self) -> np.ndarray:
         """Phase (°), continuous along the sweep; near 180° at midband for an
-    inverting stage and near 0° for a follower."""
+        inverting stage and near 0° for a follower."""
         return _phase(self.gain, self.midband)
 
     @property
@@ -166,16 +169,19 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     stage = with_device_capacitance(stage, device)
     z = transfer_impedances(stage.net, op)
     low, high = short_circuit_parts(stage, op), open_circuit_parts(stage, op, z)
-    freq, gain, lo, hi, (centre, below, above) = _search(stage, op, midband_gain, low, high, per_decade, points)
+    # The corners are searched on a grid of fixed density, so they do not
+    # depend on how densely the caller wants the sweep it keeps.
+    freq, gain, lo, hi, (centre, below, above) = _search(stage, op, midband_gain, low, high)
     f_low, f_high, at_signal = _corners(stage, op, freq, below, above, abs(midband_gain), signal_freq)
     if centre is None:
         f_low = f_high = math.nan
-    # The search grid came from the estimates; the sweep kept spans whole
-    # decades from one below the exact f_low to one above the exact f_high.
+    # The sweep kept spans whole decades from one below the exact f_low to one
+    # above the exact f_high, and always the signal frequency.
     want_lo = math.floor(math.log10(f_low)) - 1 if math.isfinite(f_low) and f_low > 0 else lo
     want_hi = math.ceil(math.log10(f_high)) + 1 if math.isfinite(f_high) else hi
-    want_lo, want_hi = max(want_lo, _LOWEST_DECADE), min(max(want_hi, want_lo + 1), _HIGHEST_DECADE)
-    if (want_lo, want_hi) != (lo, hi):
+    want_lo = max(min(want_lo, math.floor(math.log10(signal_freq))), _LOWEST_DECADE)
+    want_hi = min(max(want_hi, math.ceil(math.log10(signal_freq)), want_lo + 1), _HIGHEST_DECADE)
+    if (want_lo, want_hi, per_decade, points) != (lo, hi, POINTS_PER_DECADE, None):
         freq = _grid(want_lo, want_hi, per_decade, points)
         gain = sweep(stage, op, freq)
     return Response(freq=freq, gain=gain, midband=midband_gain, f_low=f_low, f_high=f_high,
@@ -183,7 +189,7 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
                     signal_freq=signal_freq, gain_at_freq=at_signal, device=device)
 
 
-def _search(stage, op, midband_gain, low, high, per_decade, points):
+def _search(stage, op, midband_gain, low, high):
     """Sweep whole decades around the estimated corners, widening a side
     whose crossing is not inside yet.  Returns (freq, gain, lo, hi, brackets)."""
     est_low = sum(p.freq for p in low if math.isfinite(p.freq)) or 10.0 ** _LOWEST_DECADE
@@ -192,7 +198,7 @@ def _search(stage, op, midband_gain, low, high, per_decade, points):
     lo = max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE)
     hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
     while True:
-        freq = _grid(lo, hi, per_decade, points)
+        freq = _grid(lo, hi, POINTS_PER_DECADE, None)
         gain = sweep(stage, op, freq)
         centre, below, above = _brackets(gain, midband_gain)
         wider_lo = below is None and centre is not None and lo > _LOWEST_DECADE
@@ -204,6 +210,8 @@ def _search(stage, op, midband_gain, low, high, per_decade, points):
 
 
 def _grid(lo: int, hi: int, per_decade: int, points: int | None) -> np.ndarray:
+    """Log-spaced frequencies (Hz) over decades lo to hi: per_decade a decade,
+    or ``points`` in all when given."""
     count = points if points else (hi - lo) * per_decade + 1
     return np.logspace(lo, hi, count)
 
@@ -243,7 +251,8 @@ def _corners(stage, op, freq, below, above, reference, signal_freq):
     spans = [(freq[b[0]], freq[b[1]]) for b in (below, above) if b is not None]
     at_signal = None
     for round_ in range(2):
-        grids = [np.geomspace(span[0], span[1], _REFINE) for span in spans]
+        grids = [np.geomspace(span[0], span[1], _REFINE) if math.isfinite(span[0]) else np.full(_REFINE, 1.0)
+                 for span in spans]
         extra = [np.array([signal_freq])] if round_ == 0 else []
         f = np.concatenate(grids + extra) if grids or extra else np.zeros(0)
         g = sweep(stage, op, f)
@@ -258,15 +267,22 @@ def _corners(stage, op, freq, below, above, reference, signal_freq):
 
 
 def _narrow(grid, magnitude, reference):
-    """The adjacent grid pair (with their magnitudes) that straddles the crossing."""
+    """The adjacent grid pair that straddles the crossing, with their distances
+    from −3 dB (dB); all NaN if the finer grid finds no crossing at all."""
     db = 20.0 * np.log10(np.maximum(magnitude, 1e-300) / reference) - _HALF_POWER_DB
-    k = int(np.flatnonzero(np.diff(np.sign(db)) != 0)[0]) if (np.diff(np.sign(db)) != 0).any() else 0
+    changes = np.flatnonzero(np.diff(np.sign(db)) != 0)
+    if changes.size == 0:
+        return math.nan, math.nan, math.nan, math.nan
+    k = int(changes[0])
     return grid[k], grid[k + 1], db[k], db[k + 1]
 
 
 def _interpolate(span, reference) -> float:
+    """The crossing (Hz), linear in dB against log frequency inside ``span``."""
     a, b, *rest = span
-    if len(rest) == 0 or rest[0] == rest[1]:
+    if not math.isfinite(a):
+        return math.nan
+    if rest[0] == rest[1]:
         return float(math.sqrt(a * b))
     da, db = rest
     t = da / (da - db)

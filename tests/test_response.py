@@ -44,12 +44,14 @@ def _design(topology="common-emitter", **values):
 # ------------------------------------------------------- single-pole corners
 def test_only_cout_gives_the_rc_corner():
     """Only cout matters: f_low = 1/(2π(rout + rl)cout), the single-pole RC
-    corner (closed form), to 0.5 % as asked; it is exact here to ~1e-6."""
+    corner (closed form).  The issue asks for 0.5 %; held to 1e-4, because
+    the other poles (cin and ce at about 10 µHz) move it by ~1e-12 and the
+    corner search resolves ~1e-5, so anything looser would hide a fault."""
     d = _design(**{"stage.cin": HUGE, "stage.ce": HUGE, "stage.cout": 100e-9, "load.rl": 10e3,
                    "load.cl": 0.0, **NO_DEVICE_C})
     fig = analyse(d)
     expected = 1.0 / (2.0 * math.pi * (fig.rout + 10e3) * 100e-9)
-    assert fig.f_low == pytest.approx(expected, rel=0.005)
+    assert fig.f_low == pytest.approx(expected, rel=1e-4)
     assert fig.response.low_by.part == "cout"
 
 
@@ -59,7 +61,7 @@ def test_only_cin_of_a_follower_gives_the_rc_corner():
                                        "load.cl": 0.0, **NO_DEVICE_C})
     fig = analyse(d)
     expected = 1.0 / (2.0 * math.pi * (2.2e3 + fig.rin) * 47e-9)
-    assert fig.f_low == pytest.approx(expected, rel=0.005)
+    assert fig.f_low == pytest.approx(expected, rel=1e-4)  # as above: far tighter than asked
     assert fig.response.low_by.part == "cin"
 
 
@@ -69,7 +71,7 @@ def test_only_cl_gives_the_output_rc_corner():
     d = _design(**{"load.cl": 1e-9, "load.rl": 22e3, **NO_DEVICE_C})
     fig = analyse(d)
     r = fig.rout * 22e3 / (fig.rout + 22e3)
-    assert fig.f_high == pytest.approx(1.0 / (2.0 * math.pi * r * 1e-9), rel=0.005)
+    assert fig.f_high == pytest.approx(1.0 / (2.0 * math.pi * r * 1e-9), rel=1e-4)  # as above
     assert fig.response.high_by.part == "cl"
 
 
@@ -114,7 +116,9 @@ def test_boylestad_9_11_per_capacitor_estimates():
     assert parts["cout"] < parts["ce"]
     assert parts["ce"] == pytest.approx(326.9, rel=0.015)
     assert parts["ce"] > 326.9  # the approximation's direction: β+1 > β
-    # The exact corner: near the dominant f_LE, above every single estimate.
+    # The exact corner: within 5 % of the dominant f_LE (the bound the issue
+    # sets: the other two corners, 6.9 and 25.7 Hz, lift it by a few per cent
+    # at most), and above every single estimate.
     assert fig.f_low == pytest.approx(326.9, rel=0.05)
     assert fig.f_low > max(parts.values())
     assert fig.response.low_by.part == "ce"
@@ -333,3 +337,46 @@ def test_adding_capacitance_never_raises_f_high(which, factor, data):
     # √(1 + (f/z)²) ≈ 1 + (f/z)²/2 at f = f_high, and can move the −3 dB
     # point up by that much; more than that would be an error.
     assert more.f_high <= fig.f_high * (1 + 1e-9 + (fig.f_high / zero) ** 2)
+
+
+# ------------------------------------------------------------------ warnings
+def test_no_passband_is_warned_and_the_ledger_shows_the_corners_gone(tmp_path):
+    """A 1 fF coupling capacitor: the gain never comes within 3 dB of midband
+    (its corner, 1/(2π(rs + rin)·1 fF), is far above every other), so both
+    corners are NaN, NO-PASSBAND is raised, and a logged change says "none"."""
+    from model.designfile import dumps_design
+    from model.session import DesignSession
+    from tui.consequences import render_consequences
+
+    d = default_design("common-emitter")
+    fig = analyse(with_values(d, {"stage.cin": 1e-15}))
+    assert math.isnan(fig.f_low) and math.isnan(fig.f_high)
+    assert "NO-PASSBAND" in [w.code for w in fig.warnings]
+    path = tmp_path / "d.toml"
+    path.write_text(dumps_design(d), encoding="utf-8")
+    session = DesignSession(str(path))
+    entry = session.commit({"stage.cin": "1f"}, "")
+    session.close()
+    assert "f_low" in entry.before and "f_low" not in entry.after
+    rows = render_consequences(entry.before, entry.after, entry.raised, entry.cleared)
+    assert any(r.split()[:1] == ["f_low"] and r.split()[-1] == "none" for r in rows), rows
+    assert "NO-PASSBAND" in entry.raised
+
+
+def test_signal_outside_the_band_is_warned_with_its_loss():
+    """source.freq a decade and more below f_low: OUT-OF-BAND, and the loss it
+    states is 20·log10(|gain at freq| / |midband|), from the same figures."""
+    fig = analyse(_design(**{"source.freq": 0.1}))
+    w = next(w for w in fig.warnings if w.code == "OUT-OF-BAND")
+    loss = 20 * math.log10(fig.gain_at_freq / abs(fig.av_source))
+    assert "below f_low" in w.message and f"{loss:.1f} dB" in w.message
+    assert loss < -20.0  # a decade below a corner of at least first order
+    assert "OUT-OF-BAND" not in [w.code for w in analyse(_design()).warnings]
+
+
+def test_ft_warning_is_not_judged_in_cut_off():
+    """At rest in cut-off gm is ~0, so any ft is "too fast": Q-CUTOFF says it already."""
+    fig = analyse(_design(**{"bias.r1": 10e6}))
+    assert fig.region == "cutoff"
+    codes = [w.code for w in fig.warnings]
+    assert "Q-CUTOFF" in codes and "FT-INCONSISTENT" not in codes

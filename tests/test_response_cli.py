@@ -2,8 +2,10 @@
 of `stageledger report FILE --json`.
 
 Where each expected value comes from, named again beside its check:
-* an independent sweep of the same design, rebuilt from scratch with
-  ``model.response.sweep`` as tests/test_response.py's ``_at`` does;
+* the engine's own sweep of the same design (``model.response.sweep``,
+  rebuilt from scratch as tests/test_response.py's ``_at`` does): this checks
+  the command's plumbing and formatting, not the engine, whose values are
+  checked against closed forms and a textbook in tests/test_response.py;
 * closed forms: a log grid of N points a decade has neighbours in the ratio
   10**(1/N); 20·log10|A| for a gain in dB; the hybrid-π
   fT = gm/(2π(Cπ + Cμ)), so Cπ = gm/(2π·fT) − Cμ (Gray, Hurst, Lewis &
@@ -80,7 +82,7 @@ def csv_rows(capsys, path, *extra):
 
 def _at(design, freq):
     """av_source of ``design`` at ``freq`` (Hz) from a fresh build, as in
-    tests/test_response.py: an independent path to the same circuit."""
+    tests/test_response.py: the engine itself, to check the command's plumbing."""
     stage = build(design.topology, design_values([design]))
     op = operating_point(stage.net)
     gm = float(device_small_signal(op).gm[0])
@@ -127,7 +129,7 @@ def test_csv_is_a_log_grid_over_whole_decades_bracketing_the_corners(demo, per_d
 
 
 @pytest.mark.parametrize("demo", DEMOS, ids=lambda p: p.name)
-def test_csv_gain_and_phase_match_an_independent_sweep(demo, capsys):
+def test_csv_gain_and_phase_are_the_engines_sweep(demo, capsys):
     _, rows = csv_rows(capsys, demo)
     g = _at(read_design(demo), rows[:, 0])
     # Gain in dB, closed form 20·log10|A|, to 1e-3 dB (the CSV keeps 6 figures).
@@ -252,10 +254,10 @@ def test_json_c_pi_follows_the_hybrid_pi_ft(demo, capsys):
 
 
 @pytest.mark.parametrize("demo", DEMOS, ids=lambda p: p.name)
-def test_json_gain_and_phase_at_the_signal_frequency(demo, capsys):
+def test_json_gain_and_phase_at_the_signal_frequency_are_the_engines(demo, capsys):
     d = read_design(demo)
     data = report_json(capsys, demo)
-    g = complex(_at(d, [d.source.freq])[0])  # independent sweep at source.freq
+    g = complex(_at(d, [d.source.freq])[0])  # the engine at source.freq
     assert data["gain_at_freq"] == pytest.approx(abs(g), rel=1e-9)
     assert float(_wrap(data["phase_at_freq"] - math.degrees(math.atan2(g.imag, g.real)))) == \
         pytest.approx(0.0, abs=1e-6)

@@ -12,7 +12,6 @@ import errno
 import io
 import math
 import pathlib
-import shutil
 
 import pytest
 from rich.console import Console
@@ -35,14 +34,6 @@ LARGE = (120, 40)
 
 
 # -- helpers ------------------------------------------------------------------
-
-
-@pytest.fixture
-def preamp(tmp_path) -> pathlib.Path:
-    """A private copy of the common-emitter demo (no history yet)."""
-    path = tmp_path / "preamp.toml"
-    shutil.copyfile(DEMOS / "geophone_preamp.toml", path)
-    return path
 
 
 def screen_text(app) -> str:

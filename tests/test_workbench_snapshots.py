@@ -19,9 +19,8 @@ import pytest
 
 pytest.importorskip("pytest_textual_snapshot")
 
-import tui.app  # noqa: E402
-from textual.worker import WorkerCancelled  # noqa: E402
 from textual.widgets import Input  # noqa: E402
+from test_workbench import settle  # noqa: E402
 from tui.launch import make_app  # noqa: E402
 
 DEMO = Path(__file__).resolve().parent.parent / "saved_designs" / "geophone_preamp.toml"
@@ -40,18 +39,6 @@ def _steady(pilot):
         field.cursor_blink = False
 
 
-async def _settle(pilot):
-    await pilot.pause(tui.app.DEBOUNCE + 0.1)
-    # The sweep's result starts the picture worker: wait for that one too.
-    # A worker replaced by a newer one (exclusive) ends cancelled; that is fine.
-    for _ in range(3):
-        try:
-            await pilot.app.workers.wait_for_complete()
-        except WorkerCancelled:
-            pass
-        await pilot.pause()
-
-
 def test_opening_screen_80x24(app, snap_compare):
     async def before(pilot):
         _steady(pilot)
@@ -66,7 +53,7 @@ def test_candidate_with_ledger_120x40(app, snap_compare):
         pilot.app.query_one("#knob-stage-rc").focus()
         await pilot.pause()
         await pilot.press("1", "0", "k")
-        await _settle(pilot)
+        await settle(pilot)
 
     assert snap_compare(app, terminal_size=(120, 40), run_before=before)
 
@@ -76,8 +63,8 @@ def test_load_lines_picture_80x24(app, snap_compare):
     show them, then step from the Bode plot to the load lines)."""
     async def before(pilot):
         _steady(pilot)
-        await _settle(pilot)
+        await settle(pilot)
         await pilot.press("f6", "f6")
-        await _settle(pilot)
+        await settle(pilot)
 
     assert snap_compare(app, terminal_size=(80, 24), run_before=before)

@@ -20,18 +20,17 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import Footer, Header, OptionList, Static
 
 from model import ledger
-from model.analysis import Figures, analyse
+from model.analysis import analyse
 from model.design import Design, SERIES, get_value, with_values
 from model.errors import StageledgerError
 from model.savefile import atomic_write
 from model.session import DesignSession
 from model.stepping import choices, step, step_decade
 
-from .chart import render_stack
-from .state import Baseline, Candidate, LargeSignalReady, PictureReady
-from .pictures import PICTURES, charts_for
+from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
+from .state import Baseline, Candidate, LargeSignalReady
 from .widgets.knobs import KnobAbandoned, KnobCommitted, KnobEdited, Knobs, KnobStepped, field_text
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
@@ -40,7 +39,7 @@ from .widgets.picture import Picture
 DEBOUNCE = 0.15
 
 
-class Workbench(App):
+class Workbench(PicturesPane, App):
     """Tune one design from the keyboard and keep the record."""
 
     CSS_PATH = "app.tcss"
@@ -74,8 +73,6 @@ class Workbench(App):
         self.baseline: Baseline | None = None
         self.note = ""
         self._sweep_timer = None
-        self.picture_kind = PICTURES[0]
-        self._picture_drawn: tuple | None = None  # (design, kind, size) now on screen
 
     # -- layout ---------------------------------------------------------------
 
@@ -175,53 +172,9 @@ class Workbench(App):
             return
         self._refresh_readout()
 
-    # -- the pictures -------------------------------------------------------------
-
     def _in_service(self) -> bool:
         """False while the app shuts down: a worker's late result is then dropped."""
         return bool(self.screen_stack) and bool(self._home.query(Picture))
-
-    def _pictures_visible(self) -> bool:
-        """Always on a wide screen, beside the readout; on a narrow one after F6."""
-        return not self._home.has_class("-narrow") or self._home.has_class("-show-pictures")
-
-    def _schedule_picture(self, design: Design, figures: Figures) -> None:
-        picture = self._home.query_one(Picture)
-        self._home.query_one("#picture-title", Static).update(
-            f"Pictures: {self.picture_kind} · F6 next", layout=False)
-        size = (picture.size.width, picture.size.height)
-        if not self._pictures_visible() or self._picture_drawn == (design, self.picture_kind, size):
-            return
-        self._draw_picture(design, figures, self.picture_kind, size)
-
-    @work(thread=True, exclusive=True, exit_on_error=False, group="picture")
-    def _draw_picture(self, design: Design, figures: Figures, kind: str, size: tuple) -> None:
-        try:
-            charts = charts_for(kind, design, figures)
-        except StageledgerError:
-            charts = ()
-        lines = render_stack(charts, *size) if charts and min(size) > 0 else None
-        self.post_message(PictureReady(design, kind, charts, (*size, lines) if lines else None))
-
-    def on_picture_ready(self, message: PictureReady) -> None:
-        if not self._in_service():
-            return
-        shown = self.candidate.design if self.candidate else self.design
-        if message.design != shown or message.kind != self.picture_kind:
-            return
-        self._home.query_one(Picture).show(message.charts, message.rendered)
-        size = message.rendered[:2] if message.rendered else None
-        self._picture_drawn = (message.design, message.kind, size)
-
-    def on_resize(self) -> None:
-        self.call_after_refresh(self._refresh_picture)
-
-    def _refresh_picture(self) -> None:
-        if not self._in_service():
-            return
-        shown = self.candidate.figures if self.candidate else self.figures
-        if shown.large_signal:
-            self._schedule_picture(self.candidate.design if self.candidate else self.design, shown)
 
     def _say(self, text: str, error: bool = False) -> None:
         status = self._home.query_one("#status", Static)
@@ -360,16 +313,6 @@ class Workbench(App):
         # The size classes (-narrow/-wide) live on the screen, so these do too.
         self._home.remove_class("-show-pictures")
         self._home.toggle_class("-show-ledger")
-
-    def action_picture(self) -> None:
-        """Show the pictures (on a narrow screen), or step to the next one."""
-        if self._home.has_class("-narrow") and not self._home.has_class("-show-pictures"):
-            self._home.remove_class("-show-ledger")
-            self._home.add_class("-show-pictures")
-        else:
-            self.picture_kind = PICTURES[(PICTURES.index(self.picture_kind) + 1) % len(PICTURES)]
-        self._say(f"picture: {self.picture_kind} (F6 for the next)")
-        self.call_after_refresh(self._refresh_picture)
 
     def action_baseline(self) -> None:
         if self.baseline is not None:

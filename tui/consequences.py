@@ -66,11 +66,14 @@ def render_changes(changes) -> list:
 def render_consequences(before: dict, after: dict, raised, cleared) -> list:
     rows = [f"  {'figure':<14}{'before':>16}{'after':>16}{'change':>12}"]
     for key in HEADLINE:
-        if key not in after:
+        if key not in after and key not in before:
             continue
-        b, a = before.get(key), after[key]
-        rows.append(f"  {_SHOW[key][0]:<14}{show_figure(key, b) if key in before else '':>16}"
-                    f"{show_figure(key, a):>16}{relative_change(b, a, key) if key in before else '':>12}")
+        # A figure left out of a record did not exist for that design (a
+        # corner with no passband): "none", so a vanished band is seen.
+        b = show_figure(key, before[key]) if key in before else ("none" if before else "")
+        a = show_figure(key, after[key]) if key in after else "none"
+        moved = relative_change(before[key], after[key], key) if key in before and key in after else ""
+        rows.append(f"  {_SHOW[key][0]:<14}{b:>16}{a:>16}{moved:>12}")
     rows.append(f"  warnings raised: {', '.join(raised) or 'none'}")
     rows.append(f"  warnings cleared: {', '.join(cleared) or 'none'}")
     return rows
@@ -104,6 +107,9 @@ def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
     parts, ranked = [], []
     for key, short in _COMPACT:
         b, a = before.get(key), after.get(key)
+        if before and (b is None) != (a is None):
+            parts.append(f"{short} {'none' if a is None else 'back'}")
+            continue
         if not isinstance(b, (int, float)) or not isinstance(a, (int, float)) or b == a:
             continue
         text = f"{short} {relative_change(b, a, key)}".replace("-", "−")

@@ -6,12 +6,19 @@ import os
 import signal
 import sys
 
-from model.design import default_design
-from model.designfile import read_design
-from model.savefile import LockHeld
-from model.session import DesignSession, create
+# Textual repaints on a frame clock, 60 a second by default, so a keystroke's
+# new readout could wait up to two frames (~33 ms) before it is drawn.  At
+# 240 the wait is a few ms; the clock only runs while something changed, so
+# an idle screen sends nothing.  Set here, before the workbench first imports
+# Textual (which reads it once); set TEXTUAL_FPS yourself to choose otherwise.
+os.environ.setdefault("TEXTUAL_FPS", "240")
 
-from .bundled import default_demo
+from model.design import default_design  # noqa: E402
+from model.designfile import read_design  # noqa: E402
+from model.savefile import LockHeld  # noqa: E402
+from model.session import DesignSession, create  # noqa: E402
+
+from .bundled import default_demo  # noqa: E402
 
 
 def ask(question: str) -> bool:

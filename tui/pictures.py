@@ -1,8 +1,10 @@
 """The workbench's pictures as charts: Bode plot, load lines, transfer curve.
 
-Each builder turns figures the engine computed into :class:`~tui.chart.Chart`
-objects; nothing here solves anything.  Marks are letters explained in the
-legend, so every picture reads without colour.
+Each builder turns the engine's results into :class:`~tui.chart.Chart`
+objects: the Bode plot from the figures' response, the load lines and the
+transfer from :func:`model.curves.stage_curves`, which the picture worker
+calls.  Marks are letters explained in the legend, so every picture reads
+without colour.
 """
 
 from __future__ import annotations
@@ -58,7 +60,7 @@ def load_line_chart(c: StageCurves) -> tuple:
     ll = c.lines
     right = max(ll.vce_open, ll.ac_vce_cutoff, float(np.nanmax(c.curve.vce))) * 1.02
     vce = np.linspace(0.0, right, 24)
-    dc_ic, ac_ic = ll.dc_ic(vce), ll.ac_ic(vce)
+    dc_ic = ll.dc_ic(vce)
     top = max(ll.dc_ic(0.0), ll.ac_ic(0.0), ll.ic_q * 2.0, *(e.ic for e in c.edges)) * 1.05
     keep = (dc_ic >= 0) & (dc_ic <= top)
     ac_vce = np.linspace(0.0, ll.ac_vce_cutoff, 160)

@@ -1,0 +1,78 @@
+"""The workbench's Pictures: which picture is on show, and the worker that
+builds and draws it (a mixin of :class:`~tui.app.Workbench`, which owns the
+state it reads: the design, the candidate and the figures on show)."""
+
+from __future__ import annotations
+
+from textual import work
+from textual.widgets import Static
+
+from model.analysis import Figures
+from model.design import Design
+
+from .chart import render_stack
+from .pictures import PICTURES, charts_for
+from .state import PictureReady
+from .widgets.picture import Picture
+
+
+class PicturesPane:
+    """Scheduling, drawing and showing the Pictures; F6 steps through them."""
+
+    picture_kind = PICTURES[0]
+    #: (design, kind, size) last sent to the worker.
+    _picture_asked: tuple | None = None
+
+    def _pictures_visible(self) -> bool:
+        """Always on a wide screen, beside the readout; on a narrow one after F6."""
+        return not self._home.has_class("-narrow") or self._home.has_class("-show-pictures")
+
+    def _schedule_picture(self, design: Design, figures: Figures) -> None:
+        picture = self._home.query_one(Picture)
+        self._home.query_one("#picture-title", Static).update(
+            f"Pictures: {self.picture_kind} · F6 next", layout=False)
+        size = (picture.size.width, picture.size.height)
+        wanted = (design, self.picture_kind, size)
+        if not self._pictures_visible() or self._picture_asked == wanted:
+            return
+        # Remembered when asked, not when drawn, so repeated refreshes while
+        # one is being drawn do not start more.
+        self._picture_asked = wanted
+        self._draw_picture(design, figures, self.picture_kind, size)
+
+    @work(thread=True, exclusive=True, exit_on_error=False, group="picture")
+    def _draw_picture(self, design: Design, figures: Figures, kind: str, size: tuple) -> None:
+        try:
+            charts = charts_for(kind, design, figures)
+        except Exception:  # noqa: BLE001 - a picture must never take the workbench down
+            charts = ()
+        lines = render_stack(charts, *size) if charts and min(size) > 0 else None
+        self.post_message(PictureReady(design, kind, charts, (*size, lines) if lines else None))
+
+    def on_picture_ready(self, message: PictureReady) -> None:
+        if not self._in_service():
+            return
+        shown = self.candidate.design if self.candidate else self.design
+        if message.design != shown or message.kind != self.picture_kind:
+            return
+        self._home.query_one(Picture).show(message.charts, message.rendered)
+
+    def on_resize(self) -> None:
+        self.call_after_refresh(self._refresh_picture)
+
+    def _refresh_picture(self) -> None:
+        if not self._in_service():
+            return
+        shown = self.candidate.figures if self.candidate else self.figures
+        if shown.large_signal:
+            self._schedule_picture(self.candidate.design if self.candidate else self.design, shown)
+
+    def action_picture(self) -> None:
+        """Show the pictures (on a narrow screen), or step to the next one."""
+        if self._home.has_class("-narrow") and not self._home.has_class("-show-pictures"):
+            self._home.remove_class("-show-ledger")
+            self._home.add_class("-show-pictures")
+        else:
+            self.picture_kind = PICTURES[(PICTURES.index(self.picture_kind) + 1) % len(PICTURES)]
+        self._say(f"picture: {self.picture_kind} (F6 for the next)")
+        self.call_after_refresh(self._refresh_picture)
