@@ -8,7 +8,6 @@ same DC and midband work, side by side in one run.
 from __future__ import annotations
 
 import pathlib
-import statistics
 import sys
 import time
 
@@ -21,16 +20,9 @@ from model.analysis import analyse_batch, design_values  # noqa: E402
 from model.design import default_design  # noqa: E402
 from model.device import T_NOMINAL, thermal_voltage  # noqa: E402
 
+from timing import median_ms  # noqa: E402
+
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
-
-
-def _median_ms(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return 1e3 * statistics.median(times)
 
 
 def varied_values(n: int, seed: int = 1) -> dict:
@@ -85,7 +77,7 @@ def scipy_reference(values: dict, rows: range):
 def main() -> None:
     design = read_design(DEMO)
     analyse(design)  # warm caches and imports
-    print(f"single_design_analysis_median: {_median_ms(lambda: analyse(design), 50):.2f} ms")
+    print(f"single_design_analysis_median: {median_ms(lambda: analyse(design), 50):.2f} ms")
 
     n = 100_000
     values = varied_values(n)

@@ -11,9 +11,7 @@ picture worker does it.
 from __future__ import annotations
 
 import pathlib
-import statistics
 import sys
-import time
 
 import numpy as np
 
@@ -28,17 +26,10 @@ from model.topologies import build  # noqa: E402
 from tui.chart import render_stack  # noqa: E402
 from tui.pictures import PICTURES, charts_for  # noqa: E402
 
+from timing import median_ms  # noqa: E402
+
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 POINTS = 400
-
-
-def _median_ms(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return 1e3 * statistics.median(times)
 
 
 def main() -> None:
@@ -55,14 +46,14 @@ def main() -> None:
 
     r = full()
     assert r.freq.size == POINTS and np.isfinite(r.f_low) and np.isfinite(r.f_high)
-    print(f"response_{POINTS}_points_with_corners_median: {_median_ms(full, 100):.2f} ms")
-    print(f"sweep_{POINTS}_points_one_batched_solve_median: {_median_ms(lambda: sweep(ac, op, freq), 100):.2f} ms")
-    loop = _median_ms(lambda: [sweep(ac, op, freq[i:i + 1]) for i in range(POINTS)], 5)
+    print(f"response_{POINTS}_points_with_corners_median: {median_ms(full, 100):.2f} ms")
+    print(f"sweep_{POINTS}_points_one_batched_solve_median: {median_ms(lambda: sweep(ac, op, freq), 100):.2f} ms")
+    loop = median_ms(lambda: [sweep(ac, op, freq[i:i + 1]) for i in range(POINTS)], 5)
     print(f"sweep_{POINTS}_points_one_solve_per_point_median: {loop:.2f} ms")
     print("target_response_with_corners: 5 ms")
     fig = analyse(d)
     for kind in PICTURES:
-        ms = _median_ms(lambda: render_stack(charts_for(kind, d, fig), 52, 20), 30)
+        ms = median_ms(lambda: render_stack(charts_for(kind, d, fig), 52, 20), 30)
         print(f"picture_{kind.replace(' ', '_')}_build_and_draw_median: {ms:.2f} ms")
 
 
