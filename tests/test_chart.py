@@ -279,19 +279,23 @@ class PictureApp(App):
         yield Picture(id="picture")
 
 
-async def test_the_picture_draws_what_show_gives_it():
+async def test_the_picture_draws_what_show_gives_it(monkeypatch):
+    import tui.widgets.picture as picture_module
+
+    made = []
+    real = picture_module.render_stack
+
+    def counting(*args):
+        made.append(1)
+        return real(*args)
+
+    monkeypatch.setattr(picture_module, "render_stack", counting)
     app = PictureApp()
     async with app.run_test(size=(60, 20)) as pilot:
         picture = app.query_one(Picture)
         assert not picture.can_focus
         assert picture.render_line(0).text.startswith(EMPTY)
-        made = []
-
-        def charts():
-            made.append(1)
-            return (bode(),)
-
-        picture.show(charts)
+        picture.show((bode(),))
         await pilot.pause()
         text = [picture.render_line(y).text for y in range(picture.size.height)]
         assert picture.size == (60, 20)
@@ -299,6 +303,16 @@ async def test_the_picture_draws_what_show_gives_it():
         assert any(is_braille(ch) for line in text for ch in line)
         assert all(cell_len(line) == 60 for line in text)
         assert made == [1]  # repainting reuses the rendered rows
+
+        # Lines drawn elsewhere (the worker) at this size are used as they are.
+        drawn = real((bode(),), 60, 20)
+        picture.show((bode(),), rendered=(60, 20, drawn))
+        await pilot.pause()
+        assert [picture.render_line(y).text for y in range(20)] == drawn and made == [1]
+        # At another size they are not: the widget draws its charts itself.
+        picture.show((bode(),), rendered=(50, 20, real((bode(),), 50, 20)))
+        await pilot.pause()
+        assert all(cell_len(picture.render_line(y).text) == 60 for y in range(20)) and made == [1, 1]
 
         picture.show((bode(x_ticks=False), bode()))
         await pilot.pause()

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 
 from rich.segment import Segment
 from textual.strip import Strip
@@ -18,16 +18,15 @@ Charts = Sequence[Chart]
 class Picture(Widget, can_focus=False):
     """One chart, or several stacked top to bottom sharing the height.
 
-    The content is either the charts themselves or a factory returning them;
-    a factory is called only when the picture is drawn, so a hidden picture
-    costs nothing when the design changes.
+    The workbench's picture worker hands over the charts already drawn at
+    the widget's size; the widget draws them itself only at another size.
     """
 
     DEFAULT_CSS = """
     Picture { height: 1fr; }
     """
 
-    def __init__(self, content: Charts | Callable[[], Charts] = (), *, name: str | None = None,
+    def __init__(self, content: Charts = (), *, name: str | None = None,
                  id: str | None = None, classes: str | None = None) -> None:
         super().__init__(name=name, id=id, classes=classes)
         self._content = content
@@ -37,8 +36,8 @@ class Picture(Widget, can_focus=False):
         self._cache_key: tuple | None = None
         self._lines: list[str] = []
 
-    def show(self, content: Charts | Callable[[], Charts], rendered: tuple | None = None) -> None:
-        """Replace the charts (or the factory making them) and redraw.
+    def show(self, content: Charts, rendered: tuple | None = None) -> None:
+        """Replace the charts and redraw.
 
         ``rendered`` is (width, height, lines) already drawn elsewhere (a
         worker thread); it is used if the picture is still that size.
@@ -55,7 +54,7 @@ class Picture(Widget, can_focus=False):
         width, height = self.size
         key = (self._version, width, height)
         if key != self._cache_key:
-            charts = tuple(self._content() if callable(self._content) else self._content)
+            charts = tuple(self._content)
             if charts:
                 self._lines = render_stack(charts, width, height)
             else:
