@@ -549,6 +549,13 @@ async def test_f1_help_lists_every_key_and_the_footer_the_main_ones(preamp):
         text = screen_text(app)
         for key in ("F7 or Ctrl+Z", "F8 or Ctrl+Y", "F10 or Ctrl+Q"):
             assert key in text, key
+        # A description too long for the line wraps under its own column.
+        # (The dialog's rows are what lies right of its border "│".)
+        lines = [line.split("│", 1)[-1] for line in text.splitlines()]
+        row = next(i for i, line in enumerate(lines) if "F6" in line and "show the pictures" in line)
+        column = lines[row].index("show the pictures")
+        rest = lines[row + 1]
+        assert rest[:column].strip() == "" and rest[column:column + 1].strip(), (lines[row], rest)
 
         await pilot.press("escape")
         await pilot.pause()

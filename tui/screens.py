@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from rich.table import Table
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical, VerticalScroll
@@ -34,13 +35,18 @@ class HelpScreen(ModalScreen):
     BINDINGS = [Binding("escape,f1,q,enter", "dismiss", "close")]
 
     def compose(self) -> ComposeResult:
-        width = max(len(k) for k, _ in KEYS) + 2
-        lines = [f"{k:<{width}}{what}" for k, what in KEYS]
+        # Two columns, so a description that wraps stays under its own column
+        # instead of running back under the keys.
+        keys = Table.grid(padding=(0, 2))
+        keys.add_column(no_wrap=True)
+        keys.add_column(ratio=1)
+        for key, what in KEYS:
+            keys.add_row(key, what)
         # Scrollable: at 80×24 the list is taller than the screen, and a plain
         # container would cut off the last keys with no way to reach them.
         with VerticalScroll(id="help-box", classes="dialog"):
             yield Label("Keys", classes="dialog-title")
-            yield Static("\n".join(lines), markup=False)
+            yield Static(keys)
             yield Label("Esc, F1 or Enter closes this.", classes="dialog-hint")
 
 
