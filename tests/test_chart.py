@@ -8,6 +8,7 @@ off-by-one raster or a wrapped line fails here.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import re
 
@@ -318,3 +319,16 @@ async def test_the_picture_draws_what_show_gives_it(monkeypatch):
         await pilot.pause()
         text = "\n".join(picture.render_line(y).text for y in range(picture.size.height))
         assert text.count("Bode magnitude") == 2 and text.count("1 MHz") == 1
+
+
+def test_markers_can_be_left_out_of_the_legend_but_stay_drawn():
+    """A chart stacked under one that already explains its markers keeps the
+    marker columns and symbols but does not repeat their words."""
+    x = np.logspace(0, 6, 200)
+    chart = Chart("c", Axis("f", "Hz", log=True), Axis("g", "dB"),
+                  series=(Series(x, np.log10(x), "gain"),), markers=(Marker(1e3, "L", "f_low"),))
+    shown = render(chart, 60, 16)
+    quiet = render(dataclasses.replace(chart, marker_legend=False), 60, 16)
+    assert any("L f_low" in row for row in shown)
+    assert not any("f_low" in row for row in quiet)
+    assert sum(row.count("┊") for row in quiet) > 3 and any("L" in row for row in quiet[1:3])

@@ -74,7 +74,9 @@ class Spot:
 @dataclass(frozen=True)
 class Chart:
     """What to draw. ``x_ticks=False`` leaves out the x label row, for a
-    chart stacked above another that shares its x axis."""
+    chart stacked above another that shares its x axis; ``marker_legend=False``
+    leaves the markers out of the legend, for a chart stacked under one that
+    already explains the same markers."""
     title: str
     x: Axis
     y: Axis
@@ -82,6 +84,7 @@ class Chart:
     markers: tuple = ()
     spots: tuple = ()
     x_ticks: bool = True
+    marker_legend: bool = True
 
 
 def _cells(text: str) -> int:
@@ -123,7 +126,7 @@ class _Frame:
 
 def _legend_items(chart: Chart, x_range, y_range) -> list[str]:
     items = [f"{s.mark or LINE_KEY} {s.label}" for s in chart.series]
-    for m in chart.markers:
+    for m in chart.markers if chart.marker_legend else ():
         off = "" if _inside(chart.x, m.x, x_range) else " (off chart)"
         items.append(f"{m.symbol} {m.label} {format_si(m.x, chart.x.unit, 2)}{off}")
     for s in chart.spots:

@@ -49,8 +49,9 @@ def bode(design: Design, fig: Figures) -> tuple:
     )
     gain = Chart("Bode of av_source", x, Axis("gain", "dB"),
                  series=(Series(r.freq, r.magnitude_db(), "gain"),), markers=markers, x_ticks=False)
-    phase = Chart("phase", x, Axis("phase", "°"),
-                  series=(Series(r.freq, r.phase_deg(), "phase"),), markers=markers)
+    # The same marks as above, explained once: the rows go to the curve.
+    phase = Chart("Bode phase", x, Axis("phase", "°"),
+                  series=(Series(r.freq, r.phase_deg(), "phase"),), markers=markers, marker_legend=False)
     return gain, phase
 
 
