@@ -120,13 +120,12 @@ class Response:
     @property
     def f_low_estimate(self) -> float:
         """Sum of the short-circuit corners (Hz), the usual estimate of f_low."""
-        return sum(p.freq for p in self.low_parts if math.isfinite(p.freq))
+        return low_estimate(self.low_parts)
 
     @property
     def f_high_estimate(self) -> float:
         """1/(2π Σ τ) over the open-circuit time constants (Hz)."""
-        total = sum(p.tau for p in self.high_parts)
-        return 1.0 / (2.0 * math.pi * total) if total > 0 else math.inf
+        return high_estimate(self.high_parts)
 
     @property
     def low_by(self) -> PartEstimate | None:
@@ -154,6 +153,17 @@ class Response:
         raw = math.degrees(np.angle(self.gain_at_freq))
         curve = float(np.interp(math.log10(self.signal_freq), np.log10(self.freq), self.phase_deg()))
         return raw + 360.0 * round((curve - raw) / 360.0)
+
+
+def low_estimate(parts) -> float:
+    """f_low estimate (Hz): the sum of the short-circuit corners."""
+    return sum(p.freq for p in parts if math.isfinite(p.freq))
+
+
+def high_estimate(parts) -> float:
+    """f_high estimate (Hz): 1/(2π Σ τ) over the open-circuit time constants."""
+    total = sum(p.tau for p in parts)
+    return 1.0 / (2.0 * math.pi * total) if total > 0 else math.inf
 
 
 def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, midband_gain: float,
@@ -192,9 +202,8 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
 def _search(stage, op, midband_gain, low, high):
     """Sweep whole decades around the estimated corners, widening a side
     whose crossing is not inside yet.  Returns (freq, gain, lo, hi, brackets)."""
-    est_low = sum(p.freq for p in low if math.isfinite(p.freq)) or 10.0 ** _LOWEST_DECADE
-    total_tau = sum(p.tau for p in high)
-    est_high = 1.0 / (2.0 * math.pi * total_tau) if total_tau > 0 else 10.0 ** _HIGHEST_DECADE
+    est_low = low_estimate(low) or 10.0 ** _LOWEST_DECADE
+    est_high = min(high_estimate(high), 10.0 ** _HIGHEST_DECADE)
     lo = max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE)
     hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
     while True:

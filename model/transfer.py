@@ -84,12 +84,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     full ±4·vcc.  A good guess (a few times vcc/|av_source|) saves most of the
     Newton work, since points far past an edge converge slowly.
     """
-    caps = {
-        e.name: op.voltages[e.a] - op.voltages[e.b]
-        for e in stage.net.elements
-        if getattr(e, "coupling", False)
-    }
-    held = stage.net.coupling_as_sources(caps)
+    held = _held(stage, op)
     out_q = float(op.voltages[stage.output][0])
     full = _SPAN_PER_VOLT * vcc
     span = full if span is None else min(span, full)
@@ -135,11 +130,17 @@ class TransferCurve:
         return region_of(self.ic, self.vbc)
 
 
-def transfer_curve(stage: StageCircuit, op: OperatingPoint, emf: np.ndarray) -> TransferCurve:
-    """The large-signal transfer of a single-design stage at the EMFs ``emf``."""
-    held = stage.net.coupling_as_sources({
+def _held(stage: StageCircuit, op: OperatingPoint):
+    """The stage with each coupling and bypass capacitor replaced by a source
+    at its quiescent voltage (V): the circuit of the large-signal transfer."""
+    return stage.net.coupling_as_sources({
         e.name: op.voltages[e.a] - op.voltages[e.b] for e in stage.net.elements if getattr(e, "coupling", False)
     })
+
+
+def transfer_curve(stage: StageCircuit, op: OperatingPoint, emf: np.ndarray) -> TransferCurve:
+    """The large-signal transfer of a single-design stage at the EMFs ``emf``."""
+    held = _held(stage, op)
     sol = _solve_at(held, emf, _predictor(stage, op)(emf))
     vbe, vbc = sol.junctions[:, 0, 0], sol.junctions[:, 0, 1]
     out = sol.voltages[stage.output] - float(op.voltages[stage.output][0])
