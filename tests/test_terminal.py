@@ -67,19 +67,20 @@ def test_typing_a_resistor_and_committing_in_tmux(tmp_path):
         tmux("new-session", "-d", "-s", "bench", "-x", "100", "-y", "30", command)
         _wait_for(lambda: "rc" in screen() and "F1 help" in screen(), "the workbench to start", show=screen)
 
-        # Focus starts in the vcc field; three Tabs reach rc, whose text is
-        # selected on entry, so typing replaces it.  Type only once the cursor
-        # is in rc's row: keys sent while Tabs are still being handled go to
-        # the field that had the focus (Textual routes each key on arrival).
+        # The editor starts on vcc; three Tabs reach rc, whose text is selected
+        # on arrival, so typing replaces it.  The value is typed straight after
+        # the Tabs, without waiting for them: keys typed ahead must land in
+        # the row the Tabs lead to.
         rc_row = next(i for i, line in enumerate(screen().splitlines()) if line.startswith("rc "))
         tmux("send-keys", "-t", "bench", "Tab", "Tab", "Tab")
-        _wait_for(lambda: tmux("display", "-p", "-t", "bench", "#{cursor_y}").stdout.strip() == str(rc_row),
-                  "the focus to reach rc", show=screen)
         tmux("send-keys", "-t", "bench", "-l", "10k")
         shown = _wait_for(lambda: (lambda s: s if "candidate" in s else "")(screen()),
                           "the candidate in the readout", show=screen)
         assert shown.splitlines()[rc_row].split()[:2] == ["rc", "10k"]
         assert "Enter commits" in shown
+        # The terminal's own cursor follows the editor to its new row.
+        _wait_for(lambda: tmux("display", "-p", "-t", "bench", "#{cursor_y}").stdout.strip() == str(rc_row),
+                  "the cursor on the rc row", show=screen)
 
         tmux("send-keys", "-t", "bench", "Enter")
         shown = _wait_for(lambda: (lambda s: s if "saved entry #2" in s else "")(screen()),

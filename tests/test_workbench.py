@@ -26,6 +26,7 @@ from model.session import DesignSession
 from tui.bundled import default_demo, demo_dir
 from tui.launch import make_app
 from tui.screens import HelpScreen, NotePrompt
+from tui.widgets.knobs import Knobs
 from tui.widgets.ledger_pane import LedgerPane
 
 DEMOS = pathlib.Path(__file__).resolve().parent.parent / "saved_designs"
@@ -72,20 +73,31 @@ def status(app) -> str:
     return str(app.query_one("#status").content)
 
 
+def knobs(app) -> Knobs:
+    return app.query_one(Knobs)
+
+
 def field(app, key: str):
-    return app.query_one("#knob-" + key.replace(".", "-"))
+    """The Knobs editor, on ``key``'s row: moved there (as Tabs would) if it is
+    elsewhere, as it is; there is one editor for all the rows."""
+    panel = knobs(app)
+    if panel.key != key:
+        panel.select(key)
+    return panel.editor
 
 
 async def type_into(pilot, key: str, text: str) -> None:
     """Select all of a field and type ``text`` over it, key by key.
 
-    Moving the focus into a field selects its text (as Tab does); a field that
-    already has the focus is selected with Home, Shift+End.
+    Moving the editor to a row selects its text (as Tab does); on the row it
+    is already on, the text is selected with Home, Shift+End.
     """
-    widget = field(pilot.app, key)
-    if pilot.app.focused is widget:
+    panel = knobs(pilot.app)
+    widget = panel.editor
+    if pilot.app.focused is widget and panel.key == key:
         await pilot.press("home", "shift+end")
     else:
+        panel.select(key)
         widget.focus()
         await pilot.pause()
     assert widget.selected_text == widget.value
@@ -125,7 +137,7 @@ async def test_typing_with_a_prefix_makes_a_candidate_and_previews_it(preamp):
         for text, value in (("4k7", 4.7e3), ("10k", 10e3)):
             await type_into(pilot, "stage.rc", text)
             assert app.candidate is not None
-            assert (app.candidate.key, app.candidate.text) == ("stage.rc", text)
+            assert app.candidate.changes == {"stage.rc": text}
             # Only the one key moved, and the committed design did not.
             assert app.candidate.design == with_values(committed, {"stage.rc": value})
             assert app.design == committed
@@ -281,16 +293,23 @@ async def test_invalid_input_is_refused_and_the_last_candidate_stays(preamp):
     app = make_app(str(preamp))
     async with app.run_test(size=SMALL) as pilot:
         rc = field(app, "stage.rc")
+        committed = rc.value
         # With no candidate at all, Enter on bad text is still an error, not
-        # "nothing to commit", and moving away keeps the field marked.
+        # "nothing to commit".
         await type_into(pilot, "stage.rc", "abc")
         assert app.candidate is None
         await pilot.press("enter")
         await pilot.pause()
         assert status(app).startswith("✗ not committed") and "not a number" in status(app)
+        # Moving away does not keep the broken text, and says so.
         await pilot.press("tab")
         await pilot.pause()
-        assert rc.has_class("-invalid") and rc.value == "abc"
+        assert knobs(app).key == "stage.re1" and not rc.has_class("-invalid")
+        assert "'abc' was not valid and is not kept" in status(app) and committed in status(app)
+        assert knobs(app).text("stage.rc") == committed
+        await pilot.press("shift+tab")
+        await pilot.pause()
+        assert knobs(app).key == "stage.rc" and rc.value == committed and app.candidate is None
 
         # (typed text, the rule the status names, the last valid candidate's rc):
         # "1e" passes through "1", a valid 1 Ω, on the way.
@@ -462,7 +481,7 @@ async def test_a_failed_save_keeps_the_candidate_and_the_file(preamp, monkeypatc
             await pilot.pause()
         assert "not saved" in status(app) and "disk is full" in status(app)
         assert app.candidate is not None and app.candidate.design.stage.rc == 10e3
-        assert field(app, "stage.rc").value == "10k"
+        assert field(app, "stage.rc").value == "10k"  # the editor is still on it, as typed
         assert app.design.stage.rc != 10e3
         assert app.session.history == []
         assert saved(preamp) == before
@@ -560,7 +579,7 @@ async def test_f1_help_lists_every_key_and_the_footer_the_main_ones(preamp):
         await pilot.press("escape")
         await pilot.pause()
         assert not isinstance(app.screen, HelpScreen)
-        assert isinstance(app.focused, type(field(app, "name")))
+        assert app.focused is knobs(app).editor
 
 
 async def test_the_wide_screen_without_colour(preamp, monkeypatch):

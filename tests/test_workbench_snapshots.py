@@ -50,9 +50,8 @@ def test_opening_screen_80x24(app, snap_compare):
 def test_candidate_with_ledger_120x40(app, snap_compare):
     async def before(pilot):
         _steady(pilot)
-        pilot.app.query_one("#knob-stage-rc").focus()
-        await pilot.pause()
-        await pilot.press("1", "0", "k")
+        # From vcc, where the editor starts, to rc: r1, r2, rc.
+        await pilot.press("tab", "tab", "tab", "1", "0", "k")
         await settle(pilot)
 
     assert snap_compare(app, terminal_size=(120, 40), run_before=before)

@@ -10,6 +10,7 @@ The pictures are built and drawn in a second worker once those are in.
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import pathlib
 
@@ -31,7 +32,8 @@ from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
 from .state import Baseline, Candidate, LargeSignalReady
-from .widgets.knobs import KnobAbandoned, KnobCommitted, KnobEdited, Knobs, KnobStepped, field_text
+from .widgets.knobs import (KnobAbandoned, KnobCommitted, KnobEdited, KnobMoved, Knobs, KnobStepped,
+                            field_text)
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
 
@@ -103,7 +105,8 @@ class Workbench(PicturesPane, App):
         self._home.query_one(LedgerPane).show(self.history)
         self._refresh_readout()
         # Start on the supply, the first value people tune; the name is above it.
-        self._home.query_one(Knobs).field("supply.vcc").focus()
+        # At once, not queued: keys typed while the screen first draws must reach it.
+        self._home.set_focus(self._knobs.editor)
         self._say("Tab moves, type or Up/Down to try a value, Enter commits, Esc abandons, F1 help")
 
     @property
@@ -165,7 +168,7 @@ class Workbench(PicturesPane, App):
         if not self._in_service():
             return
         if self.candidate and self.candidate.design == message.design:
-            self.candidate = Candidate(self.candidate.key, self.candidate.text, message.design, message.figures)
+            self.candidate = dataclasses.replace(self.candidate, figures=message.figures)
         elif message.design == self.design:
             self.figures = message.figures
         else:
@@ -183,33 +186,53 @@ class Workbench(PicturesPane, App):
 
     # -- editing ----------------------------------------------------------------
 
+    @property
+    def _knobs(self) -> Knobs:
+        return self._home.query_one(Knobs)
+
+    @property
+    def _pending(self) -> dict:
+        return dict(self.candidate.changes) if self.candidate else {}
+
     def on_knob_edited(self, message: KnobEdited) -> None:
         if not self._in_service():
             return
-        field = self._home.query_one(Knobs).field(message.key)
-        committed = field_text(message.key, get_value(self.design, message.key))
-        if message.text.strip() == committed:
-            # Also the fields' own change events as they mount: nothing to do.
-            if self.candidate is not None and self.candidate.key == message.key:
-                self._abandon(message.key, quiet=True)
-            return
+        knobs = self._knobs
+        editor, pending = knobs.editor, self._pending
+        if message.key not in knobs.keys:
+            return  # the editor's own change event as it mounts, before it has a row
+        if message.text.strip() == field_text(message.key, get_value(self.design, message.key)):
+            editor.set_class(False, "-invalid")
+            if message.key not in pending:
+                return
+            del pending[message.key]  # typed back to the committed value
+        else:
+            pending[message.key] = message.text
         try:
-            design = with_values(self.design, {message.key: message.text})
-            figures = analyse(design, large_signal=False)
+            self._set_candidate(pending)
         except StageledgerError as err:
-            field.set_class(True, "-invalid")
+            editor.set_class(True, "-invalid")
             self._say(f"{err} — the readout shows the last valid candidate", error=True)
             return
-        field.set_class(False, "-invalid")
-        field.set_class(True, "-candidate")
-        self.candidate = Candidate(message.key, message.text, design, figures)
-        self._say(f"candidate {message.key} = {message.text.strip()}: Enter commits, Esc abandons")
+        knobs.hold(pending, self.candidate.design if self.candidate else None)
+        editor.set_class(False, "-invalid")
+        editor.set_class(message.key in pending, "-candidate")
+        if self.candidate:
+            self._say(f"candidate {self.candidate.describe()}: Enter commits, Esc abandons")
+
+    def _set_candidate(self, pending: dict) -> None:
+        """Make ``pending`` (key → text) the candidate, or drop it if empty;
+        raises StageledgerError, with nothing changed, if it is not a valid design."""
+        if pending:
+            design = with_values(self.design, pending)
+            self.candidate = Candidate(pending, design, analyse(design, large_signal=False))
+        else:
+            self.candidate = None
         self._refresh_readout()
 
     def on_knob_stepped(self, message: KnobStepped) -> None:
         key = message.key
-        field = self._home.query_one(Knobs).field(key)
-        current = self.candidate.design if self.candidate and self.candidate.key == key else self.design
+        current = self.candidate.design if key in self._pending else self.design
         value = get_value(current, key)
         words = choices(key)
         if words:
@@ -219,33 +242,46 @@ class Workbench(PicturesPane, App):
                    else step(key, value, message.steps, self.design.parts.series))
         else:
             return
-        field.value = field_text(key, new)  # fires KnobEdited, which previews it
+        self._knobs.editor.value = field_text(key, new)  # fires KnobEdited, which previews it
+
+    def on_knob_moved(self, message: KnobMoved) -> None:
+        if message.dropped is not None:
+            kept = self._knobs.text(message.old)
+            self._say(f"{message.old}: {message.dropped.strip()!r} was not valid and is not kept; "
+                      f"it stays {kept}", error=True)
 
     def on_knob_abandoned(self, message: KnobAbandoned) -> None:
-        self._abandon(message.key)
-
-    def _abandon(self, key: str, quiet: bool = False) -> None:
-        self._home.query_one(Knobs).show(self.design, keys=[key])
-        if self.candidate and self.candidate.key == key:
-            self.candidate = None
-            self._refresh_readout()
-        if not quiet:
-            self._say(f"{key}: candidate abandoned")
+        """Esc undoes the edit in this field; on an unchanged field, the whole candidate."""
+        key, pending = message.key, self._pending
+        knobs = self._knobs
+        if key in pending and len(pending) > 1:
+            del pending[key]
+            self._set_candidate(pending)  # what is left was valid before this key joined it
+            self._say(f"{key}: abandoned; still pending {self.candidate.describe()}")
+        elif pending and (key in pending or not knobs.editor.has_class("-invalid")):
+            self._set_candidate({})
+            self._say(f"candidate abandoned ({', '.join(pending)})")
+        elif knobs.editor.has_class("-invalid"):
+            self._say(f"{key}: edit abandoned")
+        else:
+            self._say("nothing to abandon")
+        knobs.show(self.design, self._pending, self.candidate.design if self.candidate else None)
 
     def on_knob_committed(self, message: KnobCommitted) -> None:
-        # Invalid text is checked first: a field can keep an earlier valid
-        # candidate under text that no longer parses, and Enter on it is "not
-        # committed" (with the rule), not a failed save.
-        if self._home.query_one(Knobs).field(message.key).has_class("-invalid"):
+        # Invalid text is checked first: the editor can sit on text that no
+        # longer parses over an earlier valid candidate, and Enter on it is
+        # "not committed" (with the rule), not a failed save.
+        if self._knobs.editor.has_class("-invalid"):
             try:
-                with_values(self.design, {message.key: message.text})
+                with_values(self.design, {**self._pending, message.key: message.text})
             except StageledgerError as err:
                 self._say(f"not committed: {err}", error=True)
                 return
-        if self.candidate is None or self.candidate.key != message.key:
+        if self.candidate is None:
             self._say(f"{message.key}: nothing to commit")
             return
-        self._commit(lambda s: s.commit({message.key: message.text}, self.note))
+        changes = dict(self.candidate.changes)
+        self._commit(lambda s: s.commit(changes, self.note))
 
     def _commit(self, act) -> None:
         """Run ``act(session)`` (a commit, undo or redo); report saved or not saved."""
@@ -258,8 +294,7 @@ class Workbench(PicturesPane, App):
             return
         self.design, self.figures = session.design, session.figures
         self.candidate, self.note = None, ""
-        knobs = self._home.query_one(Knobs)
-        knobs.show(self.design)
+        self._knobs.show(self.design)
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
         self._refresh_readout()

@@ -11,12 +11,14 @@ from textual.widgets import Input, Label, Static
 
 #: Every key of the workbench, as the help screen lists it.
 KEYS = (
-    ("Tab / Shift+Tab", "move between fields"),
+    ("Tab / Shift+Tab", "move between fields; an uncommitted value stays in its row, so one candidate "
+                        "can change several fields"),
     ("type", "a value with an SI prefix or letter code: 4k7, 2.2k, 100n, R47"),
     ("Up / Down", "step a part along the preferred series; plain numbers by a fixed step"),
     ("PgUp / PgDn", "step a decade"),
-    ("Enter", "commit the candidate: logged in the ledger and saved"),
-    ("Esc", "abandon the candidate (Esc only ever cancels)"),
+    ("Enter", "commit the candidate, all its fields as one entry: logged in the ledger and saved"),
+    ("Esc", "abandon this field's uncommitted value; on an unchanged field, the whole candidate "
+            "(Esc only ever cancels)"),
     ("F2 or Ctrl+N", "write a note for the next commit"),
     ("F3", "show the ledger or the readout (narrow screens)"),
     ("F4", "pin the committed design as the baseline, or unpin it"),

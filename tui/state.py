@@ -3,6 +3,7 @@ workers post back: plain values, so the app's handlers stay short."""
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 from textual.message import Message
@@ -13,12 +14,18 @@ from model.design import Design
 
 @dataclass(frozen=True)
 class Candidate:
-    """An uncommitted value in one field, and what it would do."""
+    """Uncommitted values, one or more fields at once, and what they would do.
 
-    key: str
-    text: str
+    ``changes`` maps each key to its text as typed; Enter commits them all as
+    one ledger entry (a bias pair is often retuned together).
+    """
+
+    changes: Mapping[str, str]
     design: Design
     figures: Figures
+
+    def describe(self) -> str:
+        return ", ".join(f"{key} = {text.strip()}" for key, text in self.changes.items())
 
 
 @dataclass(frozen=True)

@@ -9,13 +9,16 @@
   then timed with each key posted to the app the way the terminal driver
   posts it, without Pilot's wait for every widget's queue after a key;
 * start → first frame: the installed command in tmux, polled until the
-  readout is on screen (skipped without tmux or the installed command).
+  readout is on screen, median of five starts; a bare Textual app with one
+  line of text is started in turn with it, as the floor on this machine
+  (skipped without tmux or the installed command).
 """
 
 from __future__ import annotations
 
 import asyncio
 import pathlib
+import shlex
 import shutil
 import statistics
 import subprocess
@@ -67,7 +70,8 @@ async def keypress_times(path: str) -> tuple:
             marks["painted"].append(time.perf_counter())
 
         screen._compositor_refresh = painted
-        app.query_one("#knob-stage-rc").focus()
+        await pilot.press("tab", "tab", "tab")  # vcc → r1 → r2 → rc
+        assert app.query_one("#knob-label").content == "rc"
         await pilot.pause()
         for k in range(EDITS):
             t = time.perf_counter()
@@ -99,13 +103,18 @@ async def keypress_times(path: str) -> tuple:
     return times, idle, direct
 
 
-def first_frame(path: str) -> float | None:
-    if not (shutil.which("tmux") and shutil.which("stageledger")):
-        return None
+#: A Textual app with one line of text: the floor any Textual program starts from.
+BARE = ("from textual.app import App; from textual.widgets import Static\n"
+        "class Bare(App):\n    def compose(self): yield Static('operating point')\n"
+        "Bare().run()")
+STARTS = 5
+
+
+def first_frame(command: str) -> float | None:
+    """Seconds from starting ``command`` in a 100×30 tmux to "operating point" on screen."""
     sock = "stageledger-bench"
     t = time.perf_counter()
-    subprocess.run(["tmux", "-L", sock, "new-session", "-d", "-x", "100", "-y", "30",
-                    f"stageledger {path}"], check=True)
+    subprocess.run(["tmux", "-L", sock, "new-session", "-d", "-x", "100", "-y", "30", command], check=True)
     try:
         while time.perf_counter() - t < 20:
             screen = subprocess.run(["tmux", "-L", sock, "capture-pane", "-p"], capture_output=True,
@@ -116,6 +125,22 @@ def first_frame(path: str) -> float | None:
         return None
     finally:
         subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True)
+        time.sleep(0.2)  # the server's socket must be gone before the next start
+
+
+def first_frames(path: str) -> dict | None:
+    """Median first frame of the workbench and of the bare app, started in turn
+    so that both see the same machine load."""
+    if not (shutil.which("tmux") and shutil.which("stageledger")):
+        return None
+    commands = {"workbench": f"stageledger {path}", "bare": f"{sys.executable} -c {shlex.quote(BARE)}"}
+    times = {name: [] for name in commands}
+    for _ in range(STARTS):
+        for name, command in commands.items():
+            times[name].append(first_frame(command))
+    if any(t is None for runs in times.values() for t in runs):
+        return None
+    return {name: statistics.median(runs) for name, runs in times.items()}
 
 
 def main() -> None:
@@ -132,10 +157,12 @@ def main() -> None:
         print(f"driver_key_to_readout_p50: {1e3 * statistics.median(direct):.1f} ms")
         print(f"driver_key_to_readout_p95: {1e3 * cuts[18]:.1f} ms")
         print(f"pilot_round_trip_noop_key_p50: {1e3 * statistics.median(idle):.1f} ms")
-        start = first_frame(path)
-        print(f"start_to_first_frame: {start:.2f} s" if start is not None
-              else "start_to_first_frame: skipped (needs tmux and the installed command)")
-
+        starts = first_frames(path)
+        if starts is None:
+            print("start_to_first_frame: skipped (needs tmux and the installed command)")
+        else:
+            print(f"start_to_first_frame: {starts['workbench']:.2f} s (median of {STARTS})")
+            print(f"bare_textual_first_frame: {starts['bare']:.2f} s (median of {STARTS}, same runs)")
 
 if __name__ == "__main__":
     main()

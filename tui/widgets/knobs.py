@@ -1,17 +1,24 @@
-"""The Knobs panel: one compact field per design key, grouped by table.
+"""The Knobs panel: every design key in one list, grouped by table.
 
-Fields post domain messages (:class:`KnobEdited`, :class:`KnobCommitted`,
-:class:`KnobStepped`, :class:`KnobAbandoned`) and never reach into the app.
+The rows are drawn as text, and a single editor moves between them: one
+focusable widget instead of one input per key keeps the screen quick to
+build, and keys typed ahead of a Tab always reach the row the Tab moved to.
+The editor posts domain messages (:class:`KnobEdited`, :class:`KnobCommitted`,
+:class:`KnobStepped`, :class:`KnobAbandoned`, :class:`KnobMoved`) and never
+reaches into the app.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Iterable
 
+from rich.text import Text
+from textual import events
 from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
-from textual.widgets import Input, Label, Static
+from textual.widgets import Input, Static
 
 from model.design import FIELDS, Design, get_value, keys_for
 from model.units import format_si, parse_value
@@ -22,6 +29,9 @@ GROUPS = (
     ("load", "load"), ("transistor", "transistor"), ("environment", "environment"),
     ("parts", "parts"), ("estimate", "hand estimate"),
 )
+
+#: Columns of the label in front of each value.
+LABEL_WIDTH = 13
 
 
 def field_text(key: str, value) -> str:
@@ -52,6 +62,18 @@ def _trim(text: str) -> str:
     return f"{number} {rest}".strip()
 
 
+def layout(design: Design) -> list[tuple[str, str | None]]:
+    """The panel's lines in order: ``(heading, None)`` or ``(label, key)``."""
+    keys = [k for k in keys_for(design.topology) if k not in ("topology", "notes")]
+    lines = [("name", None), ("name", "name")]
+    for table, heading in GROUPS:
+        mine = [k for k in keys if k.startswith(table + ".")]
+        if mine:
+            lines.append((heading, None))
+            lines.extend((k.split(".")[-1], k) for k in mine)
+    return lines
+
+
 class KnobEdited(Message):
     def __init__(self, key: str, text: str):
         super().__init__()
@@ -76,8 +98,17 @@ class KnobAbandoned(Message):
         self.key = key
 
 
-class KnobInput(Input):
-    """A one-line field for one design key, with stepping keys."""
+class KnobMoved(Message):
+    """The editor left ``old`` for ``new``; ``dropped`` is the invalid text it
+    held (not kept), or None."""
+
+    def __init__(self, old: str, new: str, dropped: str | None):
+        super().__init__()
+        self.old, self.new, self.dropped = old, new, dropped
+
+
+class KnobEditor(Input):
+    """The one-line editor, on whichever row is current, with stepping keys."""
 
     BINDINGS = [
         Binding("up", "step(1)", "step up", show=False),
@@ -87,17 +118,28 @@ class KnobInput(Input):
         Binding("escape", "abandon", "cancel edit", show=False),
     ]
 
-    def __init__(self, key: str, value: str):
+    #: Tab and Shift+Tab, as steps through the rows.
+    MOVES = {"tab": 1, "shift+tab": -1}
+
+    def __init__(self, move: Callable[[int], None]):
+        """``move(steps)`` puts the editor on another row."""
         # validate_on=(): Input's own validation (with no validators) marks every
         # value "-valid" on change, blur and submit, which would wipe the app's
         # "-invalid" mark before Enter is handled; the app is the validator here.
-        super().__init__(value, id="knob-" + key.replace(".", "-"), compact=True, select_on_focus=True,
-                         validate_on=())
-        self.key = key
+        super().__init__(id="knob-editor", compact=True, select_on_focus=True, validate_on=())
+        self.key = ""
+        self._move = move
 
-    def on_mount(self) -> None:
-        # Show the start of a long value (a design's name), not its end.
-        self.cursor_position = 0
+    async def _on_key(self, event: events.Key) -> None:
+        # Tab is handled here, in the editor's own queue, not as a binding: a
+        # binding runs only once the key has bubbled up to the app, and the
+        # characters typed after it would reach the old row first.
+        if event.key in self.MOVES:
+            event.stop()
+            event.prevent_default()
+            self._move(self.MOVES[event.key])
+            return
+        await super()._on_key(event)
 
     def action_step(self, steps: int) -> None:
         self.post_message(KnobStepped(self.key, steps, False))
@@ -118,39 +160,112 @@ class KnobInput(Input):
 
 
 class Knobs(VerticalScroll):
-    """Every editable key of a design, grouped by table, one row each."""
+    """Every editable key of a design, one row each, with the editor on one.
+
+    Rows holding a pending (uncommitted) value show it underlined.
+    """
+
+    # The editor takes the focus; the panel itself never does.
+    can_focus = False
 
     def __init__(self, design: Design, **kwargs):
         super().__init__(**kwargs)
         self._design = design
+        self._candidate: Design | None = None
+        self._pending: frozenset[str] = frozenset()
+        self._lines = layout(design)
+        self.keys = [key for _, key in self._lines if key is not None]
+        self.key = "supply.vcc" if "supply.vcc" in self.keys else self.keys[0]
+        self.editor = KnobEditor(self.move)
 
     def compose(self):
-        keys = [k for k in keys_for(self._design.topology) if k not in ("topology", "notes")]
-        yield Label("name", classes="knob-group")
-        yield self._row("name")
-        for table, heading in GROUPS:
-            mine = [k for k in keys if k.startswith(table + ".")]
-            if mine:
-                yield Label(heading, classes="knob-group")
-                for key in mine:
-                    yield self._row(key)
+        yield Static(id="knobs-above", markup=False)
+        with Horizontal(id="knob-row"):
+            yield Static(id="knob-label", markup=False)
+            yield self.editor
+        yield Static(id="knobs-below", markup=False)
 
-    def _row(self, key: str) -> Horizontal:
-        label = key.split(".")[-1]
-        return Horizontal(
-            Static(label, classes="knob-label", markup=False),
-            KnobInput(key, field_text(key, get_value(self._design, key))),
-            classes="knob-row",
-        )
+    def on_mount(self) -> None:
+        self._place()
 
-    def field(self, key: str) -> KnobInput:
-        return self.query_one("#knob-" + key.replace(".", "-"), KnobInput)
+    def text(self, key: str) -> str:
+        """What ``key``'s row shows when the editor is elsewhere: the
+        candidate's value if the key is pending, else the committed one."""
+        design = self._candidate if key in self._pending else self._design
+        return field_text(key, get_value(design, key))
 
-    def show(self, design: Design, keys=None) -> None:
-        """Set the fields (all, or just ``keys``) to ``design``'s values, quietly."""
+    def hold(self, pending: Iterable[str], candidate: Design | None) -> None:
+        """Note the pending keys and the candidate design they make; their rows
+        show it once the editor moves on.  The editor's own text is left alone."""
+        self._pending, self._candidate = frozenset(pending), candidate
+
+    def show(self, design: Design, pending: Iterable[str] = (), candidate: Design | None = None) -> None:
+        """Show ``design``, with the ``pending`` keys taken from ``candidate``, quietly.
+
+        The editor's text is reset to its row's, so a broken entry goes too.
+        """
         self._design = design
-        for field in self.query(KnobInput):
-            if keys is None or field.key in keys:
-                with field.prevent(Input.Changed):
-                    field.value = field_text(field.key, get_value(design, field.key))
-                field.set_class(False, "-candidate", "-invalid")
+        self.hold(pending, candidate)
+        if layout(design) != self._lines:
+            self._lines = layout(design)
+            self.keys = [key for _, key in self._lines if key is not None]
+        self._place()
+
+    def select(self, key: str) -> KnobEditor:
+        """Put the editor on ``key``'s row, with its text selected."""
+        self.key = key
+        self._place()
+        return self.editor
+
+    def move(self, steps: int) -> None:
+        """Tab and Shift+Tab: the next or previous row; past either end the
+        focus leaves the panel (for the ledger), or wraps if nothing else takes it."""
+        old, dropped = self.key, None
+        if self.editor.has_class("-invalid"):
+            dropped = self.editor.value
+        index = self.keys.index(self.key) + steps
+        if not 0 <= index < len(self.keys):
+            index %= len(self.keys)
+            (self.screen.focus_next if steps > 0 else self.screen.focus_previous)()
+        self.select(self.keys[index])
+        self.post_message(KnobMoved(old, self.key, dropped))
+
+    def _place(self) -> None:
+        at = next(i for i, (_, key) in enumerate(self._lines) if key == self.key)
+        for name, lines in (("#knobs-above", self._lines[:at]), ("#knobs-below", self._lines[at + 1:])):
+            part = self.query_one(name, Static)
+            part.update(self._rows_text(lines))
+            part.display = bool(lines)
+        self.query_one("#knob-label", Static).update(self._lines[at][0])
+        editor = self.editor
+        editor.key = self.key
+        with editor.prevent(Input.Changed):
+            editor.value = self.text(self.key)
+        editor.set_class(False, "-invalid")
+        editor.set_class(self.key in self._pending, "-candidate")
+        # Show the start of a long value (a design's name), selected, so typing replaces it.
+        editor.cursor_position = 0
+        editor.select_all()
+        self.call_after_refresh(self._follow)
+
+    def _follow(self) -> None:
+        """Once the rows are laid out: keep the editor in view, and put the
+        terminal's cursor on it (Input set it before the row moved)."""
+        self.scroll_to_widget(self.query_one("#knob-row"), animate=False)
+        self.call_after_refresh(self._put_cursor)
+
+    def _put_cursor(self) -> None:
+        if self.editor.has_focus:
+            self.app.cursor_position = self.editor.cursor_screen_offset
+
+    def _rows_text(self, lines) -> Text:
+        text = Text(no_wrap=True, overflow="ellipsis", end="")
+        for i, (label, key) in enumerate(lines):
+            if i:
+                text.append("\n")
+            if key is None:
+                text.append(label, style="bold")
+                continue
+            text.append(label.ljust(LABEL_WIDTH))
+            text.append(self.text(key), style="bold underline" if key in self._pending else "")
+        return text
