@@ -8,6 +8,7 @@ Expected designs and figures come from ``model`` (``with_values``,
 from __future__ import annotations
 
 import pytest
+from textual import events
 
 from model.analysis import analyse
 from model.design import with_values
@@ -165,3 +166,51 @@ async def test_a_value_the_other_fields_make_invalid_names_the_rule(preamp):
         await pilot.pause()
         assert status(app).startswith("✗ not committed")
         assert app.session.history == []
+
+
+def _typed(app, *keys: str) -> None:
+    """Post keys to the app all at once, as the terminal driver does with a
+    burst (over a slow link, say): nothing waits for one to be handled before
+    the next arrives, unlike Pilot's press()."""
+    names = {"tab": "\t", "shift+tab": None, "enter": "\r", "escape": "\x1b", "up": None}
+    for key in keys:
+        app.post_message(events.Key(key, names.get(key, key)))
+
+
+async def _drain(pilot) -> None:
+    for _ in range(5):
+        await pilot.pause()
+
+
+async def test_keys_typed_ahead_keep_their_order_across_rows_and_commits(preamp):
+    """Enter, Tab and the value for the next row arrive in one burst: each key
+    must act on the row it was typed on, and each commit on what was typed
+    before it (a binding-driven Enter or Tab would run after the characters)."""
+    app = make_app(str(preamp))
+    async with app.run_test(size=SMALL) as pilot:
+        original = app.design
+        _typed(app, "tab", "tab", "tab", *"10k", "enter", "tab", *"47", "enter")
+        await _drain(pilot)
+        history = app.session.history
+        assert [[(c.key, c.new) for c in e.changes] for e in history[1:]] == [
+            [("stage.rc", 10e3)], [("stage.re1", 47.0)]]
+        assert read_document(preamp).design == with_values(original, {"stage.rc": 10e3, "stage.re1": 47.0})
+        assert app.candidate is None
+
+        # A burst over two rows and back: both values make one candidate, and
+        # the editor, back on rc, shows rc's candidate value, not the old one.
+        assert knobs(app).key == "stage.re1"
+        _typed(app, "shift+tab", *"12k", "tab", *"68", "shift+tab")
+        await _drain(pilot)
+        assert app.candidate.changes == {"stage.rc": "12k", "stage.re1": "68"}
+        assert knobs(app).key == "stage.rc" and knobs(app).editor.value == "12 kΩ"
+        assert knobs(app).text("stage.re1") == "68 Ω"
+        assert knobs(app).editor.has_class("-candidate")
+
+        # Broken text, then Tab at once: not kept, and said so; the next row's
+        # typing is unaffected.
+        _typed(app, "escape", "escape", *"zz", "tab", *"56")
+        await _drain(pilot)
+        assert app.candidate.changes == {"stage.re1": "56"}
+        assert knobs(app).text("stage.rc") == field_text("stage.rc", 10e3)
+        assert "'zz' was not valid and is not kept" in status(app) or "candidate stage.re1" in status(app)

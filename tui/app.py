@@ -22,18 +22,17 @@ from textual.widgets import Footer, Header, OptionList, Static
 
 from model import ledger
 from model.analysis import analyse
-from model.design import Design, SERIES, get_value, with_values
+from model.design import Design, SERIES
 from model.errors import StageledgerError
 from model.savefile import atomic_write
 from model.session import DesignSession
-from model.stepping import choices, step, step_decade
 
+from .editing import Editing
 from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
 from .state import Baseline, Candidate, LargeSignalReady
-from .widgets.knobs import (KnobAbandoned, KnobCommitted, KnobEdited, KnobMoved, Knobs, KnobStepped,
-                            field_text)
+from .widgets.knobs import Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
 
@@ -41,7 +40,7 @@ from .widgets.picture import Picture
 DEBOUNCE = 0.15
 
 
-class Workbench(PicturesPane, App):
+class Workbench(Editing, PicturesPane, App):
     """Tune one design from the keyboard and keep the record."""
 
     CSS_PATH = "app.tcss"
@@ -72,6 +71,7 @@ class Workbench(PicturesPane, App):
         self.design = design
         self.figures = session.figures if session else analyse(design)
         self.candidate: Candidate | None = None
+        self._broken = {}
         self.baseline: Baseline | None = None
         self.note = ""
         self._sweep_timer = None
@@ -184,105 +184,6 @@ class Workbench(PicturesPane, App):
         status.update(("✗ " if error else "") + text, layout=False)  # always one line
         status.set_class(error, "-error")
 
-    # -- editing ----------------------------------------------------------------
-
-    @property
-    def _knobs(self) -> Knobs:
-        return self._home.query_one(Knobs)
-
-    @property
-    def _pending(self) -> dict:
-        return dict(self.candidate.changes) if self.candidate else {}
-
-    def on_knob_edited(self, message: KnobEdited) -> None:
-        if not self._in_service():
-            return
-        knobs = self._knobs
-        editor, pending = knobs.editor, self._pending
-        if message.key not in knobs.keys:
-            return  # the editor's own change event as it mounts, before it has a row
-        if message.text.strip() == field_text(message.key, get_value(self.design, message.key)):
-            editor.set_class(False, "-invalid")
-            if message.key not in pending:
-                return
-            del pending[message.key]  # typed back to the committed value
-        else:
-            pending[message.key] = message.text
-        try:
-            self._set_candidate(pending)
-        except StageledgerError as err:
-            editor.set_class(True, "-invalid")
-            self._say(f"{err} — the readout shows the last valid candidate", error=True)
-            return
-        knobs.hold(pending, self.candidate.design if self.candidate else None)
-        editor.set_class(False, "-invalid")
-        editor.set_class(message.key in pending, "-candidate")
-        if self.candidate:
-            self._say(f"candidate {self.candidate.describe()}: Enter commits, Esc abandons")
-
-    def _set_candidate(self, pending: dict) -> None:
-        """Make ``pending`` (key → text) the candidate, or drop it if empty;
-        raises StageledgerError, with nothing changed, if it is not a valid design."""
-        if pending:
-            design = with_values(self.design, pending)
-            self.candidate = Candidate(pending, design, analyse(design, large_signal=False))
-        else:
-            self.candidate = None
-        self._refresh_readout()
-
-    def on_knob_stepped(self, message: KnobStepped) -> None:
-        key = message.key
-        current = self.candidate.design if key in self._pending else self.design
-        value = get_value(current, key)
-        words = choices(key)
-        if words:
-            new = words[(words.index(value) + message.steps) % len(words)]
-        elif isinstance(value, (int, float)):
-            new = (step_decade(key, value, message.steps) if message.decade
-                   else step(key, value, message.steps, self.design.parts.series))
-        else:
-            return
-        self._knobs.editor.value = field_text(key, new)  # fires KnobEdited, which previews it
-
-    def on_knob_moved(self, message: KnobMoved) -> None:
-        if message.dropped is not None:
-            kept = self._knobs.text(message.old)
-            self._say(f"{message.old}: {message.dropped.strip()!r} was not valid and is not kept; "
-                      f"it stays {kept}", error=True)
-
-    def on_knob_abandoned(self, message: KnobAbandoned) -> None:
-        """Esc undoes the edit in this field; on an unchanged field, the whole candidate."""
-        key, pending = message.key, self._pending
-        knobs = self._knobs
-        if key in pending and len(pending) > 1:
-            del pending[key]
-            self._set_candidate(pending)  # what is left was valid before this key joined it
-            self._say(f"{key}: abandoned; still pending {self.candidate.describe()}")
-        elif pending and (key in pending or not knobs.editor.has_class("-invalid")):
-            self._set_candidate({})
-            self._say(f"candidate abandoned ({', '.join(pending)})")
-        elif knobs.editor.has_class("-invalid"):
-            self._say(f"{key}: edit abandoned")
-        else:
-            self._say("nothing to abandon")
-        knobs.show(self.design, self._pending, self.candidate.design if self.candidate else None)
-
-    def on_knob_committed(self, message: KnobCommitted) -> None:
-        # Invalid text is checked first: the editor can sit on text that no
-        # longer parses over an earlier valid candidate, and Enter on it is
-        # "not committed" (with the rule), not a failed save.
-        if self._knobs.editor.has_class("-invalid"):
-            try:
-                with_values(self.design, {**self._pending, message.key: message.text})
-            except StageledgerError as err:
-                self._say(f"not committed: {err}", error=True)
-                return
-        if self.candidate is None:
-            self._say(f"{message.key}: nothing to commit")
-            return
-        changes = dict(self.candidate.changes)
-        self._commit(lambda s: s.commit(changes, self.note))
-
     def _commit(self, act) -> None:
         """Run ``act(session)`` (a commit, undo or redo); report saved or not saved."""
         try:
@@ -294,7 +195,8 @@ class Workbench(PicturesPane, App):
             return
         self.design, self.figures = session.design, session.figures
         self.candidate, self.note = None, ""
-        self._knobs.show(self.design)
+        self._broken.clear()
+        self._show_knobs()
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
         self._refresh_readout()

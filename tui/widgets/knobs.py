@@ -15,7 +15,6 @@ from collections.abc import Callable, Iterable
 
 from rich.text import Text
 from textual import events
-from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Static
@@ -75,9 +74,11 @@ def layout(design: Design) -> list[tuple[str, str | None]]:
 
 
 class KnobEdited(Message):
-    def __init__(self, key: str, text: str):
+    """``text`` typed on ``key``'s row, on the editor's ``visit`` to a row."""
+
+    def __init__(self, key: str, text: str, visit: int):
         super().__init__()
-        self.key, self.text = key, text
+        self.key, self.text, self.visit = key, text, visit
 
 
 class KnobCommitted(Message):
@@ -87,9 +88,9 @@ class KnobCommitted(Message):
 
 
 class KnobStepped(Message):
-    def __init__(self, key: str, steps: int, decade: bool):
+    def __init__(self, key: str, steps: int, decade: bool, visit: int):
         super().__init__()
-        self.key, self.steps, self.decade = key, steps, decade
+        self.key, self.steps, self.decade, self.visit = key, steps, decade, visit
 
 
 class KnobAbandoned(Message):
@@ -99,70 +100,77 @@ class KnobAbandoned(Message):
 
 
 class KnobMoved(Message):
-    """The editor left ``old`` for ``new``; ``dropped`` is the invalid text it
-    held (not kept), or None."""
+    """The editor left ``old``'s row for ``new``'s."""
 
-    def __init__(self, old: str, new: str, dropped: str | None):
+    def __init__(self, old: str, new: str):
         super().__init__()
-        self.old, self.new, self.dropped = old, new, dropped
+        self.old, self.new = old, new
 
 
 class KnobEditor(Input):
-    """The one-line editor, on whichever row is current, with stepping keys."""
+    """The one-line editor, on whichever row is current.
 
-    BINDINGS = [
-        Binding("up", "step(1)", "step up", show=False),
-        Binding("down", "step(-1)", "step down", show=False),
-        Binding("pageup", "decade(1)", "decade up", show=False),
-        Binding("pagedown", "decade(-1)", "decade down", show=False),
-        Binding("escape", "abandon", "cancel edit", show=False),
-    ]
+    Its own keys (Tab, Enter, Esc, the stepping keys) are handled in its key
+    handler rather than as bindings, and every message it posts carries the
+    row it was on when the key came.  A binding runs only once the key has
+    bubbled up to the app, so keys typed after it (say Enter, Tab, "47k")
+    would be handled first, on the wrong row; here they keep their order.
+    """
 
-    #: Tab and Shift+Tab, as steps through the rows.
-    MOVES = {"tab": 1, "shift+tab": -1}
+    #: key → (message kind, steps)
+    KEYS = {
+        "tab": ("move", 1), "shift+tab": ("move", -1),
+        "up": ("step", 1), "down": ("step", -1),
+        "pageup": ("decade", 1), "pagedown": ("decade", -1),
+        "enter": ("commit", 0), "escape": ("abandon", 0),
+    }
 
     def __init__(self, move: Callable[[int], None]):
         """``move(steps)`` puts the editor on another row."""
         # validate_on=(): Input's own validation (with no validators) marks every
         # value "-valid" on change, blur and submit, which would wipe the app's
-        # "-invalid" mark before Enter is handled; the app is the validator here.
+        # "-invalid" mark; the app is the validator here.
         super().__init__(id="knob-editor", compact=True, select_on_focus=True, validate_on=())
         self.key = ""
+        #: Counts the editor's arrivals on a row; a message from an earlier
+        #: visit (even to the same row) no longer describes the editor's text.
+        self.visit = 0
         self._move = move
 
     async def _on_key(self, event: events.Key) -> None:
-        # Tab is handled here, in the editor's own queue, not as a binding: a
-        # binding runs only once the key has bubbled up to the app, and the
-        # characters typed after it would reach the old row first.
-        if event.key in self.MOVES:
-            event.stop()
-            event.prevent_default()
-            self._move(self.MOVES[event.key])
+        if event.key not in self.KEYS:
+            await super()._on_key(event)
             return
-        await super()._on_key(event)
+        event.stop()
+        event.prevent_default()
+        kind, steps = self.KEYS[event.key]
+        key = self.key
+        if kind == "move":
+            self._move(steps)
+            self.post_message(KnobMoved(key, self.key))
+        elif kind == "commit":
+            self.post_message(KnobCommitted(key, self.value))
+        elif kind == "abandon":
+            self.post_message(KnobAbandoned(key))
+        else:
+            self.post_message(KnobStepped(key, steps, kind == "decade", self.visit))
 
-    def action_step(self, steps: int) -> None:
-        self.post_message(KnobStepped(self.key, steps, False))
-
-    def action_decade(self, steps: int) -> None:
-        self.post_message(KnobStepped(self.key, steps, True))
-
-    def action_abandon(self) -> None:
-        self.post_message(KnobAbandoned(self.key))
+    def watch_value(self, value: str) -> None:
+        # Posted here, as the text changes, so it names the row it changed on;
+        # Input's own Changed is handled later, when the editor may have moved.
+        if self.key:
+            self.post_message(KnobEdited(self.key, value, self.visit))
 
     def on_input_changed(self, event: Input.Changed) -> None:
         event.stop()
-        self.post_message(KnobEdited(self.key, event.value))
-
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        self.post_message(KnobCommitted(self.key, event.value))
 
 
 class Knobs(VerticalScroll):
     """Every editable key of a design, one row each, with the editor on one.
 
-    Rows holding a pending (uncommitted) value show it underlined.
+    Rows holding a pending (uncommitted) value show it underlined.  The app
+    tells the panel what it has seen; the panel never overwrites text typed
+    into the editor that the app has not seen yet.
     """
 
     # The editor takes the focus; the panel itself never does.
@@ -177,6 +185,8 @@ class Knobs(VerticalScroll):
         self.keys = [key for _, key in self._lines if key is not None]
         self.key = "supply.vcc" if "supply.vcc" in self.keys else self.keys[0]
         self.editor = KnobEditor(self.move)
+        self._known = ""  # the editor's text as the app last saw it
+        self._drawn: dict[str, Text] = {}
 
     def compose(self):
         yield Static(id="knobs-above", markup=False)
@@ -194,22 +204,48 @@ class Knobs(VerticalScroll):
         design = self._candidate if key in self._pending else self._design
         return field_text(key, get_value(design, key))
 
+    def seen(self, message: KnobEdited) -> bool:
+        """The app has handled ``message``; True if it was typed on the
+        editor's present visit (so the editor still holds it, or more)."""
+        if message.visit != self.editor.visit:
+            return False
+        self._known = message.text
+        return True
+
     def hold(self, pending: Iterable[str], candidate: Design | None) -> None:
-        """Note the pending keys and the candidate design they make; their rows
-        show it once the editor moves on.  The editor's own text is left alone."""
+        """The pending keys and the candidate design they make, shown in
+        their rows; the editor is left alone."""
         self._pending, self._candidate = frozenset(pending), candidate
+        self._draw_rows()
 
     def show(self, design: Design, pending: Iterable[str] = (), candidate: Design | None = None) -> None:
-        """Show ``design``, with the ``pending`` keys taken from ``candidate``, quietly.
+        """Show ``design``, with the ``pending`` keys taken from ``candidate``.
 
-        The editor's text is reset to its row's, so a broken entry goes too.
+        The editor's text is reset to its row's (a broken entry goes too),
+        unless it holds typing the app has not seen yet.
         """
         self._design = design
-        self.hold(pending, candidate)
+        self._pending, self._candidate = frozenset(pending), candidate
         if layout(design) != self._lines:
             self._lines = layout(design)
             self.keys = [key for _, key in self._lines if key is not None]
-        self._place()
+            if self.key not in self.keys:
+                self.key = self.keys[0]
+        if self.editor.value == self._known:
+            self._place()
+        else:
+            self._draw_rows()
+
+    def put(self, message: KnobStepped, text: str) -> bool:
+        """Show ``text`` (the stepped value) in the editor, if it is still on
+        the visit the step came from and holds nothing unseen; True if shown."""
+        if message.visit != self.editor.visit or self.editor.value != self._known:
+            return False
+        with self.editor.prevent(KnobEdited):
+            self.editor.value = text
+        self._known = text
+        self._select_text()
+        return True
 
     def select(self, key: str) -> KnobEditor:
         """Put the editor on ``key``'s row, with its text selected."""
@@ -218,35 +254,52 @@ class Knobs(VerticalScroll):
         return self.editor
 
     def move(self, steps: int) -> None:
-        """Tab and Shift+Tab: the next or previous row; past either end the
-        focus leaves the panel (for the ledger), or wraps if nothing else takes it."""
-        old, dropped = self.key, None
-        if self.editor.has_class("-invalid"):
-            dropped = self.editor.value
+        """Tab and Shift+Tab: the next or previous row.  Past either end the
+        focus leaves the panel (for the readout and the ledger), and the
+        editor waits at the other end."""
         index = self.keys.index(self.key) + steps
         if not 0 <= index < len(self.keys):
             index %= len(self.keys)
             (self.screen.focus_next if steps > 0 else self.screen.focus_previous)()
         self.select(self.keys[index])
-        self.post_message(KnobMoved(old, self.key, dropped))
 
     def _place(self) -> None:
-        at = next(i for i, (_, key) in enumerate(self._lines) if key == self.key)
-        for name, lines in (("#knobs-above", self._lines[:at]), ("#knobs-below", self._lines[at + 1:])):
-            part = self.query_one(name, Static)
-            part.update(self._rows_text(lines))
-            part.display = bool(lines)
+        self._draw_rows()
+        at = self._at()
         self.query_one("#knob-label", Static).update(self._lines[at][0])
         editor = self.editor
         editor.key = self.key
-        with editor.prevent(Input.Changed):
-            editor.value = self.text(self.key)
+        editor.visit += 1
+        text = self.text(self.key)
+        with editor.prevent(KnobEdited):
+            editor.value = text
+        self._known = text
         editor.set_class(False, "-invalid")
         editor.set_class(self.key in self._pending, "-candidate")
-        # Show the start of a long value (a design's name), selected, so typing replaces it.
-        editor.cursor_position = 0
-        editor.select_all()
+        self._select_text()
         self.call_after_refresh(self._follow)
+
+    def _select_text(self) -> None:
+        # The start of a long value (a design's name) in view, and all of it
+        # selected, so typing replaces it.
+        self.editor.cursor_position = 0
+        self.editor.select_all()
+
+    def _at(self) -> int:
+        return next(i for i, (_, key) in enumerate(self._lines) if key == self.key)
+
+    def _draw_rows(self) -> None:
+        at = self._at()
+        for name, lines in (("#knobs-above", self._lines[:at]), ("#knobs-below", self._lines[at + 1:])):
+            text = self._rows_text(lines)
+            if self._drawn.get(name) == text:
+                continue  # as it is: typing in one row leaves the others alone
+            part = self.query_one(name, Static)
+            before = self._drawn.get(name)
+            # Same number of lines, same size: no layout pass for it.
+            part.update(text, layout=before is None or before.plain.count("\n") != text.plain.count("\n"))
+            part.display = bool(lines)
+            self._drawn[name] = text
 
     def _follow(self) -> None:
         """Once the rows are laid out: keep the editor in view, and put the

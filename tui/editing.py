@@ -1,0 +1,132 @@
+"""Editing in the Knobs: their messages turned into the candidate (a mixin
+of :class:`~tui.app.Workbench`, which owns the design, the candidate and the
+commit).
+
+Messages arrive in the order the keys were typed, each naming the row it
+came from, which need not be the row the editor is on by the time it is
+handled: a Tab typed ahead may already have moved it.
+"""
+
+from __future__ import annotations
+
+from model.analysis import analyse
+from model.design import get_value, with_values
+from model.errors import StageledgerError
+from model.stepping import choices, step, step_decade
+
+from .state import Candidate
+from .widgets.knobs import KnobAbandoned, KnobCommitted, KnobEdited, KnobMoved, Knobs, KnobStepped, field_text
+
+
+class Editing:
+    """Candidate values from typing, stepping, moving, Esc and Enter."""
+
+    #: key → (text, why): the last text typed on a row that was not valid.
+    _broken: dict
+
+    @property
+    def _knobs(self) -> Knobs:
+        return self._home.query_one(Knobs)
+
+    @property
+    def _pending(self) -> dict:
+        return dict(self.candidate.changes) if self.candidate else {}
+
+    def _show_knobs(self) -> None:
+        self._knobs.show(self.design, self._pending, self.candidate.design if self.candidate else None)
+
+    def on_knob_edited(self, message: KnobEdited) -> None:
+        if self._in_service() and message.key in self._knobs.keys:
+            # Not "mine" if the editor has moved on since: its marks are not this row's.
+            self._edit(message.key, message.text, mine=self._knobs.seen(message))
+
+    def _edit(self, key: str, text: str, mine: bool) -> None:
+        knobs = self._knobs
+        self._broken.pop(key, None)
+        pending = self._pending
+        if text.strip() == field_text(key, get_value(self.design, key)):
+            if mine:
+                knobs.editor.set_class(False, "-invalid")
+            if key not in pending:
+                return
+            del pending[key]  # typed back to the committed value
+        else:
+            pending[key] = text
+        try:
+            self._set_candidate(pending)
+        except StageledgerError as err:
+            self._broken[key] = (text, str(err))
+            if mine:
+                knobs.editor.set_class(True, "-invalid")
+            self._say(f"{err} — the readout shows the last valid candidate", error=True)
+            return
+        knobs.hold(pending, self.candidate.design if self.candidate else None)
+        if mine:
+            knobs.editor.set_class(False, "-invalid")
+            knobs.editor.set_class(key in pending, "-candidate")
+        if self.candidate:
+            self._say(f"candidate {self.candidate.describe()}: Enter commits, Esc abandons")
+
+    def _set_candidate(self, pending: dict) -> None:
+        """Make ``pending`` (key → text) the candidate, or drop it if empty;
+        raises StageledgerError, with nothing changed, if it is not a valid design."""
+        if pending:
+            design = with_values(self.design, pending)
+            self.candidate = Candidate(pending, design, analyse(design, large_signal=False))
+        else:
+            self.candidate = None
+        self._refresh_readout()
+
+    def on_knob_stepped(self, message: KnobStepped) -> None:
+        key = message.key
+        current = self.candidate.design if key in self._pending else self.design
+        value = get_value(current, key)
+        words = choices(key)
+        if words:
+            new = words[(words.index(value) + message.steps) % len(words)]
+        elif isinstance(value, (int, float)):
+            new = (step_decade(key, value, message.steps) if message.decade
+                   else step(key, value, message.steps, self.design.parts.series))
+        else:
+            return
+        text = field_text(key, new)
+        self._edit(key, text, mine=self._knobs.put(message, text))
+
+    def on_knob_moved(self, message: KnobMoved) -> None:
+        # The editor was placed before the app had seen what was typed on the
+        # way: place it again on what is known now.
+        self._show_knobs()
+        if message.old in self._broken:
+            text, _ = self._broken.pop(message.old)
+            self._say(f"{message.old}: {text.strip()!r} was not valid and is not kept; "
+                      f"it stays {self._knobs.text(message.old)}", error=True)
+
+    def on_knob_abandoned(self, message: KnobAbandoned) -> None:
+        """Esc undoes the edit in this field; on an unchanged field, the whole candidate."""
+        key, pending = message.key, self._pending
+        broken = self._broken.pop(key, None)
+        if key in pending and len(pending) > 1:
+            del pending[key]
+            self._set_candidate(pending)  # what is left was valid before this key joined it
+            self._say(f"{key}: abandoned; still pending {self.candidate.describe()}")
+        elif pending and (key in pending or broken is None):
+            self._set_candidate({})
+            self._say(f"candidate abandoned ({', '.join(pending)})")
+        elif broken is not None:
+            self._say(f"{key}: edit abandoned")
+        else:
+            self._say("nothing to abandon")
+        self._show_knobs()
+
+    def on_knob_committed(self, message: KnobCommitted) -> None:
+        # Broken text is checked first: the editor can sit on text that does
+        # not parse over an earlier valid candidate, and Enter on it is "not
+        # committed" (with the rule), not a failed save.
+        if message.key in self._broken:
+            self._say(f"not committed: {self._broken[message.key][1]}", error=True)
+            return
+        if self.candidate is None:
+            self._say(f"{message.key}: nothing to commit")
+            return
+        changes = dict(self.candidate.changes)
+        self._commit(lambda s: s.commit(changes, self.note))
