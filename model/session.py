@@ -111,12 +111,23 @@ class DesignSession:
         changes = ledger.changes_between(self.design, design)
         return Preview(design, changes, self.figures, analyse(design))
 
-    def commit(self, values: dict, note: str = "") -> Entry:
-        """Apply ``values``, log the change and save; returns the new entry."""
-        p = self.preview(values)
-        if not p.changes:
+    def commit(self, values: dict, note: str = "", known: tuple | None = None) -> Entry:
+        """Apply ``values``, log the change and save; returns the new entry.
+
+        ``known`` is an optional (design, figures) pair the caller has
+        already analysed in full (the workbench's background sweep); it
+        spares the analysis only if it is of exactly the design ``values``
+        make, so a stale pair cannot be logged.
+        """
+        design = with_values(self.design, values)
+        changes = ledger.changes_between(self.design, design)
+        if not changes:
             raise StageledgerError("nothing to commit: every value is already as given")
-        return self._commit(ledger.SET, p.design, p.changes, p.after, note, None)
+        if known is not None and known[0] == design and known[1].large_signal:
+            after = known[1]
+        else:
+            after = analyse(design)
+        return self._commit(ledger.SET, design, changes, after, note, None)
 
     def undo(self, note: str = "") -> Entry:
         undoable, _ = ledger.stacks(self._pending_history())

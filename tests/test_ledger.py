@@ -26,7 +26,7 @@ from model.design import TOPOLOGIES, default_design, design_to_dict
 from model.designfile import dumps_design, read_document
 from model.errors import DesignError, StageledgerError
 from model.historyfile import _ENTRY_KEYS
-from model.ledger import HEADLINE, replay
+from model.ledger import HEADLINE, headline, replay
 from model.savefile import DesignLock
 from model.session import DesignSession, create, design_at
 from tui.cli import main
@@ -279,6 +279,35 @@ def test_commit_of_values_already_held_is_refused(tmp_path):
     with DesignSession(path) as s, pytest.raises(StageledgerError, match="nothing to commit"):
         s.commit({"stage.rc": "6k8"})
     assert path.read_bytes() == before
+
+
+def test_a_commit_reuses_figures_only_of_exactly_its_design(tmp_path, monkeypatch):
+    """The workbench hands over its background sweep's figures: they spare the
+    analysis when they are of the committed design, and are ignored when they
+    are of any other (a stale pair must never be logged)."""
+    import model.session
+
+    path = plain_file(tmp_path)
+    with DesignSession(path) as s:
+        start = s.design
+        design = dataclasses.replace(start, stage=dataclasses.replace(start.stage, rc=8.2e3))
+        full = analyse(design)
+        with monkeypatch.context() as m:
+            m.setattr(model.session, "analyse", lambda d: pytest.fail("analysed again"))
+            entry = s.commit({"stage.rc": "8k2"}, known=(design, full))
+        assert entry.after == headline(full)
+
+        # Figures of another design (rc 9.1k) offered for rc 10k: analysed afresh.
+        other = dataclasses.replace(design, stage=dataclasses.replace(design.stage, rc=9.1e3))
+        entry = s.commit({"stage.rc": "10k"}, known=(other, analyse(other)))
+        wanted = dataclasses.replace(design, stage=dataclasses.replace(design.stage, rc=10e3))
+        assert entry.after == headline(analyse(wanted)) != headline(analyse(other))
+
+        # Quick figures (no swing, distortion or response) are not enough.
+        quick = analyse(design, large_signal=False)
+        entry = s.commit({"stage.rc": "8k2"}, known=(design, quick))
+        assert entry.after == headline(analyse(design))
+        assert "swing_up" in entry.after
 
 
 # -- undo and redo -------------------------------------------------------------

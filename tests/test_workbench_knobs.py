@@ -214,3 +214,30 @@ async def test_keys_typed_ahead_keep_their_order_across_rows_and_commits(preamp)
         assert app.candidate.changes == {"stage.re1": "56"}
         assert knobs(app).text("stage.rc") == field_text("stage.rc", 10e3)
         assert "'zz' was not valid and is not kept" in status(app) or "candidate stage.re1" in status(app)
+
+
+async def test_a_commit_after_the_sweep_logs_the_sweeps_figures_without_analysing_again(preamp, monkeypatch):
+    """Enter after the background sweep is in: the commit takes its figures
+    (a second full analysis is most of a commit's time) and logs them."""
+    import model.session
+    from test_workbench import settle
+
+    calls = []
+    real = model.session.analyse
+    monkeypatch.setattr(model.session, "analyse", lambda d: calls.append(d) or real(d))
+    app = make_app(str(preamp))
+    async with app.run_test(size=SMALL) as pilot:
+        await type_into(pilot, "stage.rc", "10k")
+        await settle(pilot)
+        assert app.candidate.figures.large_signal
+        calls.clear()
+        await pilot.press("enter")
+        await pilot.pause()
+        assert calls == []
+        # What was logged is the full analysis of the design that was saved.
+        saved_design = read_document(preamp).design
+        assert saved_design.stage.rc == 10e3
+        expected = analyse(saved_design)
+        after = app.session.history[-1].after
+        assert after["swing_up"] == pytest.approx(expected.swing_up, rel=1e-5)
+        assert after["f_low"] == pytest.approx(expected.f_low, rel=1e-5)

@@ -129,4 +129,7 @@ class Editing:
             self._say(f"{message.key}: nothing to commit")
             return
         changes = dict(self.candidate.changes)
-        self._commit(lambda s: s.commit(changes, self.note))
+        # The background sweep's full figures of the candidate, if they are in,
+        # spare the session a second analysis; it checks they are of its design.
+        known = (self.candidate.design, self.candidate.figures)
+        self._commit(lambda s: s.commit(changes, self.note, known=known))
