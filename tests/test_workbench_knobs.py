@@ -172,9 +172,9 @@ def _typed(app, *keys: str) -> None:
     """Post keys to the app all at once, as the terminal driver does with a
     burst (over a slow link, say): nothing waits for one to be handled before
     the next arrives, unlike Pilot's press()."""
-    names = {"tab": "\t", "shift+tab": None, "enter": "\r", "escape": "\x1b", "up": None}
+    names = {"tab": "\t", "enter": "\r", "escape": "\x1b", "backspace": "\x7f"}
     for key in keys:
-        app.post_message(events.Key(key, names.get(key, key)))
+        app.post_message(events.Key(key, names.get(key, key if len(key) == 1 else None)))
 
 
 async def _drain(pilot) -> None:
@@ -214,6 +214,29 @@ async def test_keys_typed_ahead_keep_their_order_across_rows_and_commits(preamp)
         assert app.candidate.changes == {"stage.re1": "56"}
         assert knobs(app).text("stage.rc") == field_text("stage.rc", 10e3)
         assert "'zz' was not valid and is not kept" in status(app) or "candidate stage.re1" in status(app)
+
+
+async def test_editing_keys_and_the_apps_keys_in_a_burst_keep_their_order(preamp):
+    """Backspace and the cursor keys are Input bindings, F7 an app binding: in
+    a burst each must act where it was typed, between the characters around
+    it, not after them."""
+    app = make_app(str(preamp))
+    async with app.run_test(size=SMALL) as pilot:
+        original = app.design
+        field(app, "stage.rc")
+        # "12", Backspace, "3", Left, "4": 1 → 12 → 1 → 13 → 1|3 → 143.
+        _typed(app, *"12", "backspace", "3", "left", "4")
+        await _drain(pilot)
+        assert knobs(app).editor.value == "143"
+        assert app.candidate.design == with_values(original, {"stage.rc": 143.0})
+
+        # Commit, then undo it at once: the undo must reverse this commit.
+        _typed(app, "home", "shift+end", *"10k", "enter", "f7")
+        await _drain(pilot)
+        assert [e.action for e in app.session.history] == ["start", "set", "undo"]
+        assert app.session.history[1].changes[0].new == 10e3
+        assert read_document(preamp).design == original
+        assert app.candidate is None
 
 
 async def test_a_commit_after_the_sweep_logs_the_sweeps_figures_without_analysing_again(preamp, monkeypatch):

@@ -15,6 +15,7 @@ from collections.abc import Callable, Iterable
 
 from rich.text import Text
 from textual import events
+from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Static
@@ -110,11 +111,16 @@ class KnobMoved(Message):
 class KnobEditor(Input):
     """The one-line editor, on whichever row is current.
 
-    Its own keys (Tab, Enter, Esc, the stepping keys) are handled in its key
-    handler rather than as bindings, and every message it posts carries the
-    row it was on when the key came.  A binding runs only once the key has
-    bubbled up to the app, so keys typed after it (say Enter, Tab, "47k")
-    would be handled first, on the wrong row; here they keep their order.
+    Textual runs a key's binding only once the key has bubbled up to the
+    app, while a printable key is handled at once; in a burst of keys (a
+    slow link, or fast typing) "12", Backspace, "3" would come out "123",
+    and Enter, Tab, "47" would type 47 before the commit.  So the editor
+    handles every key it knows in its key handler, in arrival order: its
+    own (Tab, Enter, Esc, the stepping keys) and Input's editing bindings.
+    Its messages go straight to its parent, the way a key it does not know
+    (F7, say) bubbles on, so the app receives both in the order typed; and
+    each names the row (and visit) it came from, since a Tab typed ahead
+    may have moved the editor by the time the app handles it.
     """
 
     #: key → (message kind, steps)
@@ -124,6 +130,8 @@ class KnobEditor(Input):
         "pageup": ("decade", 1), "pagedown": ("decade", -1),
         "enter": ("commit", 0), "escape": ("abandon", 0),
     }
+    #: Input's own editing keys (Backspace, the cursor keys, …) → action.
+    EDITING = {key: b.action for b in Input.BINDINGS if isinstance(b, Binding) for key in b.key.split(",")}
 
     def __init__(self, move: Callable[[int], None]):
         """``move(steps)`` puts the editor on another row."""
@@ -137,9 +145,17 @@ class KnobEditor(Input):
         self.visit = 0
         self._move = move
 
+    def _send(self, message: Message) -> None:
+        self.parent.post_message(message)
+
     async def _on_key(self, event: events.Key) -> None:
         if event.key not in self.KEYS:
-            await super()._on_key(event)
+            if event.key in self.EDITING:
+                event.stop()
+                event.prevent_default()
+                await self.run_action(self.EDITING[event.key])
+            else:
+                await super()._on_key(event)
             return
         event.stop()
         event.prevent_default()
@@ -147,19 +163,19 @@ class KnobEditor(Input):
         key = self.key
         if kind == "move":
             self._move(steps)
-            self.post_message(KnobMoved(key, self.key))
+            self._send(KnobMoved(key, self.key))
         elif kind == "commit":
-            self.post_message(KnobCommitted(key, self.value))
+            self._send(KnobCommitted(key, self.value))
         elif kind == "abandon":
-            self.post_message(KnobAbandoned(key))
+            self._send(KnobAbandoned(key))
         else:
-            self.post_message(KnobStepped(key, steps, kind == "decade", self.visit))
+            self._send(KnobStepped(key, steps, kind == "decade", self.visit))
 
     def watch_value(self, value: str) -> None:
-        # Posted here, as the text changes, so it names the row it changed on;
+        # Sent here, as the text changes, so it names the row it changed on;
         # Input's own Changed is handled later, when the editor may have moved.
         if self.key:
-            self.post_message(KnobEdited(self.key, value, self.visit))
+            self._send(KnobEdited(self.key, value, self.visit))
 
     def on_input_changed(self, event: Input.Changed) -> None:
         event.stop()
