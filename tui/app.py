@@ -50,7 +50,9 @@ class Workbench(Editing, PicturesPane, App):
         # The footer shows the first key of each; F3 and F5 are left to the help
         # screen so that the rest fits at 80 columns.
         Binding("f1", "help", "help", id="help"),
-        Binding("f2,ctrl+n", "note", "note", id="note"),
+        # Priority: the prompt must be up before the keys typed behind F2
+        # are handed on, or the note would land in a field.
+        Binding("f2,ctrl+n", "note", "note", id="note", priority=True),
         Binding("f3", "toggle_ledger", "ledger", id="toggle-ledger", show=False),
         Binding("f4", "baseline", "baseline", id="baseline"),
         Binding("f5", "cycle_series", "series", id="series", show=False),
@@ -184,8 +186,14 @@ class Workbench(Editing, PicturesPane, App):
         status.update(("✗ " if error else "") + text, layout=False)  # always one line
         status.set_class(error, "-error")
 
-    def _commit(self, act) -> None:
-        """Run ``act(session)`` (a commit, undo or redo); report saved or not saved."""
+    def _commit(self, act, keep: bool = False) -> None:
+        """Run ``act(session)`` (a commit, undo or redo); report saved or not saved.
+
+        ``keep``: the act is not the candidate's own commit (an undo, redo or
+        series switch), so the candidate's values stay pending on the new
+        committed design, where they still make sense.
+        """
+        pending = self._pending if keep else {}
         try:
             session = self._writable_session()
             entry = act(session)
@@ -193,14 +201,17 @@ class Workbench(Editing, PicturesPane, App):
             self._say(f"not saved: {err}", error=True)
             self.notify(str(err), title="not saved", severity="error", timeout=8)
             return
+        said = f"saved entry #{entry.number} ({entry.action}) to {session.path}"
+        if self._broken:
+            said += f"; the invalid text in {', '.join(self._broken)} is not kept"
         self.design, self.figures = session.design, session.figures
         self.candidate, self.note = None, ""
         self._broken.clear()
+        said += self._reapply(pending)
         self._show_knobs()
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
-        self._refresh_readout()
-        self._say(f"saved entry #{entry.number} ({entry.action}) to {session.path}")
+        self._say(said)
 
     def _writable_session(self) -> DesignSession:
         if self.session is not None:
@@ -239,6 +250,8 @@ class Workbench(Editing, PicturesPane, App):
         self.push_screen(HelpScreen())
 
     def action_note(self) -> None:
+        if isinstance(self.screen, NotePrompt):
+            return  # F2 inside the prompt (priority keys reach the app there too)
         def keep(text: str | None) -> None:
             if text is not None:
                 self.note = text
@@ -270,13 +283,14 @@ class Workbench(Editing, PicturesPane, App):
     def action_cycle_series(self) -> None:
         current = self.design.parts.series
         wanted = next((s for s in ("E12", "E24", "E96") if SERIES.index(s) > SERIES.index(current)), "E12")
-        self._commit(lambda s: s.commit({"parts.series": wanted}, self.note or f"step along {wanted}"))
+        self._commit(lambda s: s.commit({"parts.series": wanted}, self.note or f"step along {wanted}"),
+                     keep=True)
 
     def action_undo(self) -> None:
-        self._commit(lambda s: s.undo(self.note))
+        self._commit(lambda s: s.undo(self.note), keep=True)
 
     def action_redo(self) -> None:
-        self._commit(lambda s: s.redo(self.note))
+        self._commit(lambda s: s.redo(self.note), keep=True)
 
     def on_unmount(self) -> None:
         if self.session is not None:

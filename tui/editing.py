@@ -9,6 +9,8 @@ handled: a Tab typed ahead may already have moved it.
 
 from __future__ import annotations
 
+import math
+
 from model.analysis import analyse
 from model.design import get_value, with_values
 from model.errors import StageledgerError
@@ -77,17 +79,40 @@ class Editing:
             self.candidate = None
         self._refresh_readout()
 
+    def _reapply(self, pending: dict) -> str:
+        """Make ``pending`` the candidate again on a new committed design (after
+        an undo, say), leaving out values it now holds; the status to add."""
+        still = {k: t for k, t in pending.items()
+                 if not _holds(self.design, k, t)}
+        if not still:
+            self._refresh_readout()
+            return ""
+        try:
+            self._set_candidate(still)
+        except StageledgerError as err:
+            self._refresh_readout()
+            return f"; dropped the pending {', '.join(still)}: {err}"
+        return f"; still pending {self.candidate.describe()}"
+
     def on_knob_stepped(self, message: KnobStepped) -> None:
         key = message.key
         current = self.candidate.design if key in self._pending else self.design
         value = get_value(current, key)
         words = choices(key)
-        if words:
-            new = words[(words.index(value) + message.steps) % len(words)]
-        elif isinstance(value, (int, float)):
-            new = (step_decade(key, value, message.steps) if message.decade
-                   else step(key, value, message.steps, self.design.parts.series))
-        else:
+        if isinstance(value, float) and math.isinf(value):
+            self._say(f"{key} is open, which has no neighbouring value: type one", error=True)
+            return
+        try:
+            if words:
+                new = words[(words.index(value) + message.steps) % len(words)]
+            elif isinstance(value, (int, float)):
+                new = (step_decade(key, value, message.steps) if message.decade
+                       else step(key, value, message.steps, self.design.parts.series))
+            else:
+                self._say(f"{key}: text has no steps; type it")
+                return
+        except StageledgerError as err:
+            self._say(f"{key}: cannot step: {err}", error=True)
             return
         text = field_text(key, new)
         self._edit(key, text, mine=self._knobs.put(message, text))
@@ -107,8 +132,12 @@ class Editing:
         broken = self._broken.pop(key, None)
         if key in pending and len(pending) > 1:
             del pending[key]
-            self._set_candidate(pending)  # what is left was valid before this key joined it
-            self._say(f"{key}: abandoned; still pending {self.candidate.describe()}")
+            try:
+                self._set_candidate(pending)
+                self._say(f"{key}: abandoned; still pending {self.candidate.describe()}")
+            except StageledgerError as err:  # the rest needed this value
+                self._set_candidate({})
+                self._say(f"candidate abandoned: without {key}, {err}", error=True)
         elif pending and (key in pending or broken is None):
             self._set_candidate({})
             self._say(f"candidate abandoned ({', '.join(pending)})")
@@ -133,3 +162,11 @@ class Editing:
         # spare the session a second analysis; it checks they are of its design.
         known = (self.candidate.design, self.candidate.figures)
         self._commit(lambda s: s.commit(changes, self.note, known=known))
+
+
+def _holds(design, key: str, text: str) -> bool:
+    """True if ``design`` already has the value ``text`` gives ``key``."""
+    try:
+        return get_value(with_values(design, {key: text}), key) == get_value(design, key)
+    except StageledgerError:
+        return False

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from rich.table import Table
+from textual import events
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical, VerticalScroll
@@ -69,6 +70,19 @@ class NotePrompt(ModalScreen[str | None]):
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()
         self.dismiss(event.value.strip())
+
+    def on_key(self, event: events.Key) -> None:
+        # Keys typed straight after F2 can arrive before the input has the
+        # focus; they are the note's, so they go into it, in order.
+        field = self.query_one("#note-input", Input)
+        if field.has_focus:
+            return
+        if event.is_printable:
+            event.stop()
+            field.insert_text_at_cursor(event.character)
+        elif event.key == "enter":
+            event.stop()
+            self.dismiss(field.value.strip())
 
     def action_cancel(self) -> None:
         self.dismiss(None)

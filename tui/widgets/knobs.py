@@ -19,6 +19,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Static
+from textual.widgets.input import Selection
 
 from model.design import FIELDS, Design, get_value, keys_for
 from model.units import format_si, parse_value
@@ -149,6 +150,14 @@ class KnobEditor(Input):
         self.parent.post_message(message)
 
     async def _on_key(self, event: events.Key) -> None:
+        if self.screen.focused is not self:
+            # A Tab earlier in the burst moved the focus out of the panel, but
+            # the keys behind it were handed to the editor before it was
+            # handled: hand them on, in order, to whatever has the focus now.
+            event.stop()
+            event.prevent_default()
+            self.app.post_message(events.Key(event.key, event.character))
+            return
         if event.key not in self.KEYS:
             if event.key in self.EDITING:
                 event.stop()
@@ -164,12 +173,21 @@ class KnobEditor(Input):
         if kind == "move":
             self._move(steps)
             self._send(KnobMoved(key, self.key))
-        elif kind == "commit":
+            return
+        if kind == "commit":
             self._send(KnobCommitted(key, self.value))
         elif kind == "abandon":
             self._send(KnobAbandoned(key))
         else:
             self._send(KnobStepped(key, steps, kind == "decade", self.visit))
+        # The app will put the row's new text here, selected; until then the
+        # old text is selected at once, so keys typed ahead replace it too.
+        self.select_whole()
+
+    def select_whole(self) -> None:
+        """Select all the text with the cursor at its start, so typing
+        replaces it and a long value (a design's name) shows its beginning."""
+        self.selection = Selection(len(self.value), 0)
 
     def watch_value(self, value: str) -> None:
         # Sent here, as the text changes, so it names the row it changed on;
@@ -212,7 +230,7 @@ class Knobs(VerticalScroll):
         yield Static(id="knobs-below", markup=False)
 
     def on_mount(self) -> None:
-        self._place()
+        self._place(arrive=True)
 
     def text(self, key: str) -> str:
         """What ``key``'s row shows when the editor is elsewhere: the
@@ -242,13 +260,14 @@ class Knobs(VerticalScroll):
         """
         self._design = design
         self._pending, self._candidate = frozenset(pending), candidate
+        arrive = False
         if layout(design) != self._lines:
             self._lines = layout(design)
             self.keys = [key for _, key in self._lines if key is not None]
             if self.key not in self.keys:
-                self.key = self.keys[0]
-        if self.editor.value == self._known:
-            self._place()
+                self.key, arrive = self.keys[0], True
+        if arrive or self.editor.value == self._known:
+            self._place(arrive)
         else:
             self._draw_rows()
 
@@ -260,13 +279,13 @@ class Knobs(VerticalScroll):
         with self.editor.prevent(KnobEdited):
             self.editor.value = text
         self._known = text
-        self._select_text()
+        self.editor.select_whole()
         return True
 
     def select(self, key: str) -> KnobEditor:
         """Put the editor on ``key``'s row, with its text selected."""
         self.key = key
-        self._place()
+        self._place(arrive=True)
         return self.editor
 
     def move(self, steps: int) -> None:
@@ -279,27 +298,24 @@ class Knobs(VerticalScroll):
             (self.screen.focus_next if steps > 0 else self.screen.focus_previous)()
         self.select(self.keys[index])
 
-    def _place(self) -> None:
+    def _place(self, arrive: bool) -> None:
+        """The editor on its row with the row's text; ``arrive``: a new visit
+        (a move), rather than the same row brought up to date."""
         self._draw_rows()
         at = self._at()
         self.query_one("#knob-label", Static).update(self._lines[at][0])
         editor = self.editor
         editor.key = self.key
-        editor.visit += 1
+        if arrive:
+            editor.visit += 1
         text = self.text(self.key)
         with editor.prevent(KnobEdited):
             editor.value = text
         self._known = text
         editor.set_class(False, "-invalid")
         editor.set_class(self.key in self._pending, "-candidate")
-        self._select_text()
+        editor.select_whole()
         self.call_after_refresh(self._follow)
-
-    def _select_text(self) -> None:
-        # The start of a long value (a design's name) in view, and all of it
-        # selected, so typing replaces it.
-        self.editor.cursor_position = 0
-        self.editor.select_all()
 
     def _at(self) -> int:
         return next(i for i, (_, key) in enumerate(self._lines) if key == self.key)
@@ -320,7 +336,10 @@ class Knobs(VerticalScroll):
     def _follow(self) -> None:
         """Once the rows are laid out: keep the editor in view, and put the
         terminal's cursor on it (Input set it before the row moved)."""
-        self.scroll_to_widget(self.query_one("#knob-row"), animate=False)
+        if self.key == self.keys[0]:
+            self.scroll_home(animate=False)  # with the heading above it
+        else:
+            self.scroll_to_widget(self.query_one("#knob-row"), animate=False)
         self.call_after_refresh(self._put_cursor)
 
     def _put_cursor(self) -> None:
