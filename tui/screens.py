@@ -26,7 +26,7 @@ KEYS = (
     ("Enter on a ledger entry", "pin the design as it stood after that entry"),
     ("F5", "switch the preferred series (E12, E24, E96) — a logged change"),
     ("F6", "show the pictures (narrow screens), then the next: Bode, load lines, transfer"),
-    ("F7 or Ctrl+Z", "undo the last change (logged as a new entry)"),
+    ("F7 or Ctrl+Z", "undo the last change (logged as a new entry); pending values stay pending"),
     ("F8 or Ctrl+Y", "redo (logged as a new entry)"),
     ("F1", "this help"),
     ("Ctrl+P", "every action by name"),
