@@ -56,8 +56,14 @@ async def test_tab_past_the_last_row_leaves_the_panel_and_the_next_tab_comes_bac
                 assert app.focused is app.query_one(other), size
             await pilot.press("tab")
             assert app.focused is panel.editor and panel.key == panel.keys[0], size
+            # And back: Shift+Tab leaves from the first row and comes back
+            # through the same stops to the last row.
+            for other in reversed(others):
+                await pilot.press("shift+tab")
+                assert app.focused is app.query_one(other), size
+                assert panel.key == panel.keys[0], size  # the editor waits where it was
             await pilot.press("shift+tab")
-            assert app.focused is not panel.editor, size
+            assert app.focused is panel.editor and panel.key == panel.keys[-1], size
 
 
 async def test_a_candidate_spans_several_fields_and_commits_as_one_entry(preamp):

@@ -246,6 +246,22 @@ class Workbench(Editing, PicturesPane, App):
         for title, text, action in self.PALETTE:
             yield SystemCommand(title, text, getattr(self, "action_" + action))
 
+    # Tab and Shift+Tab from the readout or the ledger: entering the Knobs
+    # forward lands on the first row, backward on the last, as a focus
+    # chain would if every row were a widget of its own.
+    def action_focus_next(self) -> None:
+        super().action_focus_next()
+        self._entered_knobs(first=True)
+
+    def action_focus_previous(self) -> None:
+        super().action_focus_previous()
+        self._entered_knobs(first=False)
+
+    def _entered_knobs(self, first: bool) -> None:
+        knobs = self._knobs
+        if self.screen is self._home and self.focused is knobs.editor:
+            knobs.select(knobs.keys[0] if first else knobs.keys[-1])
+
     def action_help(self) -> None:
         self.push_screen(HelpScreen())
 

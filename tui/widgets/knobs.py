@@ -291,12 +291,15 @@ class Knobs(VerticalScroll):
     def move(self, steps: int) -> None:
         """Tab and Shift+Tab: the next or previous row.  Past either end the
         focus leaves the panel (for the readout and the ledger), and the
-        editor waits at the other end."""
+        editor stays where it was until the focus comes back (see the app's
+        ``action_focus_next``)."""
         index = self.keys.index(self.key) + steps
-        if not 0 <= index < len(self.keys):
-            index %= len(self.keys)
-            (self.screen.focus_next if steps > 0 else self.screen.focus_previous)()
-        self.select(self.keys[index])
+        if 0 <= index < len(self.keys):
+            self.select(self.keys[index])
+            return
+        (self.screen.focus_next if steps > 0 else self.screen.focus_previous)()
+        if self.screen.focused is self.editor:  # nothing else takes the focus: wrap
+            self.select(self.keys[index % len(self.keys)])
 
     def _place(self, arrive: bool) -> None:
         """The editor on its row with the row's text; ``arrive``: a new visit
