@@ -8,6 +8,8 @@
   does nothing is printed beside it for comparison.  The same edits are
   then timed with each key posted to the app the way the terminal driver
   posts it, without Pilot's wait for every widget's queue after a key;
+* Tab → the editor on the next row and painted, p50 and p95, keys posted
+  as the driver posts them;
 * start → first frame: the installed command in tmux, polled until the
   readout is on screen, median of five starts; a bare Textual app with one
   line of text is started in turn with it, as the floor on this machine
@@ -31,6 +33,7 @@ sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 # tui first: it sets Textual's frame rate before Textual is imported.
 from tui.launch import make_app  # noqa: E402
 from textual import events  # noqa: E402
+from tui.widgets.knobs import Knobs  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 EDITS = 240
@@ -98,9 +101,38 @@ async def keypress_times(path: str) -> tuple:
             if latency is not None:
                 direct.append(latency)
             await pilot.pause()
+        moves = await _tab_times(app, marks)
     # Every sixth step returns to the committed value, which shows no candidate.
     assert previewed >= EDITS * 2 // 3, previewed
-    return times, idle, direct
+    return times, idle, direct, moves
+
+
+async def _tab_times(app, marks) -> list:
+    """Tab and Shift+Tab, posted as the driver posts them, from the key to the
+    first paint after the editor has moved: down the panel and back, so every
+    row (and the scrolling at 80×24) is crossed."""
+    knobs = app.query_one(Knobs)
+    select, moved = knobs.select, []
+
+    def selecting(key):
+        moved.append(time.perf_counter())
+        return select(key)
+
+    knobs.select = selecting
+    knobs.select("supply.vcc")
+    times = []
+    for key in ["tab"] * (len(knobs.keys) - 2) + ["shift+tab"] * (len(knobs.keys) - 2):
+        t = time.perf_counter()
+        app.post_message(events.Key(key, "\t" if key == "tab" else None))
+        latency = None
+        while latency is None and time.perf_counter() - t < 2.0:
+            await asyncio.sleep(0.0005)
+            arrived = next((m for m in moved if m > t), None)
+            if arrived is not None:
+                latency = next((p - t for p in marks["painted"] if p >= arrived), None)
+        if latency is not None:
+            times.append(latency)
+    return times
 
 
 #: A Textual app with one line of text: the floor any Textual program starts from.
@@ -147,7 +179,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         path = str(pathlib.Path(tmp) / "bench.toml")
         shutil.copy(DEMO, path)
-        times, idle, direct = asyncio.run(keypress_times(path))
+        times, idle, direct, moves = asyncio.run(keypress_times(path))
         cuts = statistics.quantiles(times, n=20)
         print(f"keypress_to_readout_edits: {len(times)} edits")
         print(f"keypress_to_readout_p50: {1e3 * statistics.median(times):.1f} ms")
@@ -157,6 +189,10 @@ def main() -> None:
         print(f"driver_key_to_readout_p50: {1e3 * statistics.median(direct):.1f} ms")
         print(f"driver_key_to_readout_p95: {1e3 * cuts[18]:.1f} ms")
         print(f"pilot_round_trip_noop_key_p50: {1e3 * statistics.median(idle):.1f} ms")
+        cuts = statistics.quantiles(moves, n=20)
+        print(f"tab_to_next_row_moves: {len(moves)} moves")
+        print(f"tab_to_next_row_p50: {1e3 * statistics.median(moves):.1f} ms")
+        print(f"tab_to_next_row_p95: {1e3 * cuts[18]:.1f} ms")
         starts = first_frames(path)
         if starts is None:
             print("start_to_first_frame: skipped (needs tmux and the installed command)")
