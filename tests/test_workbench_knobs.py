@@ -78,8 +78,13 @@ async def test_a_candidate_spans_several_fields_and_commits_as_one_entry(preamp)
         expected = with_values(committed, {"bias.r1": 270e3, "bias.r2": 56e3})
         assert app.candidate.changes == {"bias.r1": "270k", "bias.r2": "56k"}
         assert app.candidate.design == expected
-        # The row the editor left shows the candidate's value, in full.
+        # The row the editor left shows the candidate's value, in full, and
+        # underlined (bold too): a mark that needs no colour.
         assert knobs(app).text("bias.r1") == "270 kΩ"
+        rows = app.query_one("#knobs-above").content
+        marked = [rows.plain[span.start:span.end] for span in rows.spans
+                  if "underline" in str(span.style)]
+        assert marked == ["270 kΩ"], marked
         assert "bias.r1 = 270k, bias.r2 = 56k" in status(app)
         new = analyse(expected, large_signal=False)
         assert f"{new.ic * 1e6:.3g} µA" in readout_row(app, "IC")
