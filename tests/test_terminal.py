@@ -98,6 +98,16 @@ def test_typing_a_resistor_and_committing_in_tmux(tmp_path):
         # The readout on screen shows the committed gain.
         assert f"{analyse(expected).av_loaded:+.4g}" in shown
 
+        # A burst in one send: Tab to re1, a value, Enter, then back to rc
+        # and another.  Each value must be committed on its own row.
+        tmux("send-keys", "-t", "bench", "Tab", "4", "7", "Enter", "BTab", "1", "2", "k", "Enter")
+        _wait_for(lambda: "saved entry #4" in screen(), "both commits to be reported", show=screen)
+        expected = with_values(expected, {"stage.re1": 47.0, "stage.rc": 12e3})
+        doc = read_document(path)
+        assert doc.design == expected
+        assert [[(c.key, c.new) for c in e.changes] for e in doc.history[2:]] == [
+            [("stage.re1", 47.0)], [("stage.rc", 12e3)]]
+
         # F10 quits; the session (and its pane) ends with the program.
         tmux("send-keys", "-t", "bench", "F10")
         _wait_for(lambda: tmux("has-session", "-t", "bench", check=False).returncode != 0,
