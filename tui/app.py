@@ -32,7 +32,7 @@ from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
 from .state import Baseline, Candidate, LargeSignalReady
-from .widgets.knobs import Knobs
+from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
 
@@ -59,6 +59,8 @@ class Workbench(Editing, PicturesPane, App):
         Binding("f6", "picture", "plot", id="picture"),
         Binding("f7,ctrl+z", "undo", "undo", id="undo"),
         Binding("f8,ctrl+y", "redo", "redo", id="redo"),
+        # Esc's twin: a terminal joins a lone Esc to a key typed soon after it.
+        Binding("f9", "abandon", "abandon", id="abandon", show=False),
         Binding("f10", "quit", "quit", id="quit", priority=True),
     ]
 
@@ -201,13 +203,16 @@ class Workbench(Editing, PicturesPane, App):
             self._say(f"not saved: {err}", error=True)
             self.notify(str(err), title="not saved", severity="error", timeout=8)
             return
-        said = f"saved entry #{entry.number} ({entry.action}) to {session.path}"
+        # What happened to pending values comes before the path: at 80
+        # columns the end of the line is cut off.
+        said = f"saved entry #{entry.number} ({entry.action})"
         if self._broken:
-            said += f"; the invalid text in {', '.join(self._broken)} is not kept"
+            said += f"; the invalid text in {', '.join(self._broken)} was dropped"
         self.design, self.figures = session.design, session.figures
         self.candidate, self.note = None, ""
         self._broken.clear()
-        said += self._reapply(pending)
+        said += self._reapply(pending) + f" to {session.path}"
+        self._checkpoint(self._knobs.key)
         self._show_knobs()
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
@@ -237,6 +242,8 @@ class Workbench(Editing, PicturesPane, App):
         ("Show pictures / next picture", "Bode, load lines, transfer (F6)", "picture"),
         ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
         ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
+        ("Abandon", "this row's pending value, or on a row with none the whole candidate (Esc or F9)",
+         "abandon"),
         ("Undo", "the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
         ("Redo", "the last undone change, logged (F8 or Ctrl+Y)", "redo"),
     )
@@ -262,6 +269,9 @@ class Workbench(Editing, PicturesPane, App):
         if self.screen is self._home and self.focused is knobs.editor:
             knobs.select(knobs.keys[0] if first else knobs.keys[-1])
 
+    def action_abandon(self) -> None:
+        self.on_knob_abandoned(KnobAbandoned(self._knobs.key))
+
     def action_help(self) -> None:
         self.push_screen(HelpScreen())
 
@@ -271,7 +281,7 @@ class Workbench(Editing, PicturesPane, App):
         def keep(text: str | None) -> None:
             if text is not None:
                 self.note = text
-                self._say(f"note for the next commit: {text!r}" if text else "note cleared")
+                self._say(f"note for the next logged change: {text!r}" if text else "note cleared")
 
         self.push_screen(NotePrompt(self.note), keep)
 

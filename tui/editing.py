@@ -25,6 +25,12 @@ class Editing:
 
     #: key → (text, why): the last text typed on a row that was not valid.
     _broken: dict
+    #: (key, its pending text or None) at the last checkpoint on a row: the
+    #: editor's arrival, or an Esc, a step or a commit there since.
+    _arrival: tuple | None = None
+
+    def _checkpoint(self, key: str) -> None:
+        self._arrival = (key, self._pending.get(key))
 
     @property
     def _knobs(self) -> Knobs:
@@ -60,14 +66,15 @@ class Editing:
             self._broken[key] = (text, str(err))
             if mine:
                 knobs.editor.set_class(True, "-invalid")
-            self._say(f"{err} — the readout shows the last valid candidate", error=True)
+            self._say(f"{err} (the readout keeps the last valid values)", error=True)
             return
         knobs.hold(pending, self.candidate.design if self.candidate else None)
         if mine:
             knobs.editor.set_class(False, "-invalid")
             knobs.editor.set_class(key in pending, "-candidate")
         if self.candidate:
-            self._say(f"candidate {self.candidate.describe()}: Enter commits, Esc abandons")
+            # The keys first: a candidate of several fields runs past 80 columns.
+            self._say(f"Enter commits, Esc drops this row: candidate {self.candidate.describe()}")
 
     def _set_candidate(self, pending: dict) -> None:
         """Make ``pending`` (key → text) the candidate, or drop it if empty;
@@ -116,18 +123,43 @@ class Editing:
             return
         text = field_text(key, new)
         self._edit(key, text, mine=self._knobs.put(message, text))
+        self._checkpoint(key)
 
     def on_knob_moved(self, message: KnobMoved) -> None:
-        # The editor was placed before the app had seen what was typed on the
-        # way: place it again on what is known now.
-        self._show_knobs()
-        if message.old in self._broken:
-            text, _ = self._broken.pop(message.old)
-            self._say(f"{message.old}: {text.strip()!r} was not valid and is not kept; "
-                      f"it stays {self._knobs.text(message.old)}", error=True)
+        old = message.old
+        if old in self._broken:
+            text, _ = self._broken.pop(old)
+            self._back_to_arrival(old)
+            # The editor was placed before the app had seen what was typed on
+            # the way: _show_knobs below places it again on what is known now.
+            self._show_knobs()
+            kept = "pending" if old in self._pending else "committed"
+            self._say(f"{old}: {text.strip()!r} is not valid and was dropped; the row keeps "
+                      f"{self._knobs.text(old)} ({kept})", error=True)
+        else:
+            self._show_knobs()
+        self._checkpoint(message.new)
+
+    def _back_to_arrival(self, key: str) -> None:
+        """Give ``key`` back the pending value it had at the last checkpoint
+        (see ``_arrival``), not whatever valid prefix of the broken text came
+        on the way ("5" of "5x")."""
+        if self._arrival is None or self._arrival[0] != key:
+            return
+        pending, text = self._pending, self._arrival[1]
+        if text is None:
+            pending.pop(key, None)
+        else:
+            pending[key] = text
+        try:
+            self._set_candidate(pending)
+        except StageledgerError:
+            pass  # keep the candidate as it is: it was valid
 
     def on_knob_abandoned(self, message: KnobAbandoned) -> None:
-        """Esc undoes the edit in this field; on an unchanged field, the whole candidate."""
+        """Esc (or F9) drops this row's edit: its pending value and any invalid
+        text (and the whole candidate if the rest is not valid without it); on
+        a row with neither, the whole candidate."""
         key, pending = message.key, self._pending
         broken = self._broken.pop(key, None)
         if key in pending and len(pending) > 1:
@@ -142,9 +174,10 @@ class Editing:
             self._set_candidate({})
             self._say(f"candidate abandoned ({', '.join(pending)})")
         elif broken is not None:
-            self._say(f"{key}: edit abandoned")
+            self._say(f"{key}: invalid text dropped")
         else:
             self._say("nothing to abandon")
+        self._checkpoint(key)
         self._show_knobs()
 
     def on_knob_committed(self, message: KnobCommitted) -> None:
@@ -155,7 +188,7 @@ class Editing:
             self._say(f"not committed: {self._broken[message.key][1]}", error=True)
             return
         if self.candidate is None:
-            self._say(f"{message.key}: nothing to commit")
+            self._say("nothing to commit")
             return
         changes = dict(self.candidate.changes)
         # The background sweep's full figures of the candidate, if they are in,

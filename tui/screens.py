@@ -12,22 +12,20 @@ from textual.widgets import Input, Label, Static
 
 #: Every key of the workbench, as the help screen lists it.
 KEYS = (
-    ("Tab / Shift+Tab", "move between fields; an uncommitted value stays in its row, so one candidate "
-                        "can change several fields"),
+    ("Tab / Shift+Tab", "move between fields; a pending value stays, so a candidate can span several"),
     ("type", "a value with an SI prefix or letter code: 4k7, 2.2k, 100n, R47"),
     ("Up / Down", "step a part along the preferred series; plain numbers by a fixed step"),
     ("PgUp / PgDn", "step a decade"),
     ("Enter", "commit the candidate, all its fields as one entry: logged in the ledger and saved"),
-    ("Esc", "abandon this field's uncommitted value; on an unchanged field, the whole candidate "
-            "(Esc only ever cancels)"),
-    ("F2 or Ctrl+N", "write a note for the next commit"),
+    ("Esc or F9", "abandon this row's edit, or on an unchanged row the whole candidate"),
+    ("F2 or Ctrl+N", "write a note for the next logged change (commit, undo, redo, F5)"),
     ("F3", "show the ledger or the readout (narrow screens)"),
     ("F4", "pin the committed design as the baseline, or unpin it"),
     ("Enter on a ledger entry", "pin the design as it stood after that entry"),
     ("F5", "switch the preferred series (E12, E24, E96) — a logged change"),
     ("F6", "show the pictures (narrow screens), then the next: Bode, load lines, transfer"),
     ("F7 or Ctrl+Z", "undo the last change (logged as a new entry); pending values stay pending"),
-    ("F8 or Ctrl+Y", "redo (logged as a new entry)"),
+    ("F8 or Ctrl+Y", "redo (logged as a new entry); pending values stay pending"),
     ("F1", "this help"),
     ("Ctrl+P", "every action by name"),
     ("F10 or Ctrl+Q", "quit; every commit is already saved"),

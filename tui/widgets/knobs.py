@@ -2,7 +2,8 @@
 
 The rows are drawn as text, and a single editor moves between them: one
 focusable widget instead of one input per key keeps the screen quick to
-build, and keys typed ahead of a Tab always reach the row the Tab moved to.
+build, and keys typed ahead of a Tab reach the row the Tab moved to (a lone
+Esc excepted: the terminal driver joins it to a key that follows quickly).
 The editor posts domain messages (:class:`KnobEdited`, :class:`KnobCommitted`,
 :class:`KnobStepped`, :class:`KnobAbandoned`, :class:`KnobMoved`) and never
 reaches into the app.
@@ -120,8 +121,9 @@ class KnobEditor(Input):
     own (Tab, Enter, Esc, the stepping keys) and Input's editing bindings.
     Its messages go straight to its parent, the way a key it does not know
     (F7, say) bubbles on, so the app receives both in the order typed; and
-    each names the row (and visit) it came from, since a Tab typed ahead
-    may have moved the editor by the time the app handles it.
+    each names the row it came from (edits and steps the visit too), since
+    a Tab typed ahead may have moved the editor by the time the app
+    handles it.
     """
 
     #: key → (message kind, steps)
