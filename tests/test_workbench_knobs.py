@@ -102,14 +102,17 @@ async def test_a_candidate_spans_several_fields_and_commits_as_one_entry(preamp)
         assert app.figures.ic != pytest.approx(old.ic, rel=1e-3)
 
 
-async def test_escape_drops_this_field_first_and_then_the_whole_candidate(preamp):
+@pytest.mark.parametrize("abandon", ["escape", "f9"])
+async def test_escape_drops_this_field_first_and_then_the_whole_candidate(preamp, abandon):
+    """F9 does what Esc does: a terminal joins a lone Esc to a key typed soon
+    after it (as an Alt key), so abandoning has a function key too."""
     before = saved(preamp)
     app = make_app(str(preamp))
     async with app.run_test(size=SMALL) as pilot:
         committed = app.design
         await type_into(pilot, "bias.r1", "270k")
         await type_into(pilot, "bias.r2", "56k")
-        await pilot.press("escape")
+        await pilot.press(abandon)
         await pilot.pause()
         # Only r2 went: r1 is still pending, and the readout shows r1 alone.
         assert app.candidate.changes == {"bias.r1": "270k"}
@@ -119,34 +122,17 @@ async def test_escape_drops_this_field_first_and_then_the_whole_candidate(preamp
 
         # On a field with nothing pending, Esc abandons everything left.
         await pilot.press("tab")
-        await pilot.press("escape")
+        await pilot.press(abandon)
         await pilot.pause()
         assert app.candidate is None
         assert knobs(app).text("bias.r1") == field_text("bias.r1", committed.bias.r1)
         assert "candidate abandoned (bias.r1)" in status(app)
         assert "candidate" not in header_row(app)
         # And once more: there is nothing left to abandon, which it says.
-        await pilot.press("escape")
+        await pilot.press(abandon)
         await pilot.pause()
         assert "nothing to abandon" in status(app)
     assert saved(preamp) == before
-
-
-async def test_f9_does_what_esc_does(preamp):
-    """A terminal joins a lone Esc to a key typed soon after it (as an Alt
-    key), so abandoning has a function key too."""
-    app = make_app(str(preamp))
-    async with app.run_test(size=SMALL) as pilot:
-        committed = app.design
-        await type_into(pilot, "bias.r1", "270k")
-        await type_into(pilot, "bias.r2", "56k")
-        await pilot.press("f9")
-        await pilot.pause()
-        assert app.candidate.changes == {"bias.r1": "270k"}
-        assert field(app, "bias.r2").value == field_text("bias.r2", committed.bias.r2)
-        await pilot.press("f9")
-        await pilot.pause()
-        assert app.candidate is None and "candidate abandoned (bias.r1)" in status(app)
 
 
 async def test_leaving_invalid_text_gives_the_row_back_its_value_from_before(preamp):
