@@ -145,10 +145,11 @@ async def _two_field_candidate(pilot) -> dict:
 
 @pytest.mark.parametrize("key", ["f5", "f7", "ctrl+z"])
 async def test_an_app_key_does_not_drop_a_candidate_of_several_fields_unsaid(preamp, key):
-    """F5 (series) and undo commit through the session, which clears the
-    candidate: values typed on rows now out of sight vanish while the status
-    speaks only of the saved entry.  Either keep them (on the new committed
-    design) or say they were dropped; and the rows must agree."""
+    """F5 (series) and undo commit through the session, which replaces the
+    committed design: values typed on rows now out of sight must not vanish
+    while the status speaks only of the saved entry.  Either they are kept
+    (on the new committed design) or the status names them as dropped; and
+    the rows must agree."""
     app = make_app(str(preamp))
     async with app.run_test(size=SMALL) as pilot:
         if key != "f5":  # something to undo
