@@ -260,8 +260,11 @@ class Knobs(VerticalScroll):
         The editor's text is reset to its row's (a broken entry goes too),
         unless it holds typing the app has not seen yet.
         """
-        self._design = design
-        self._pending, self._candidate = frozenset(pending), candidate
+        pending = frozenset(pending)
+        if ((design, pending, candidate) == (self._design, self._pending, self._candidate)
+                and self.editor.value == self.text(self.key) == self._known):
+            return  # as shown already (the app's check after every Tab, mostly)
+        self._design, self._pending, self._candidate = design, pending, candidate
         arrive = False
         if layout(design) != self._lines:
             self._lines = layout(design)
