@@ -89,16 +89,14 @@ class Editing:
     def _reapply(self, pending: dict) -> str:
         """Make ``pending`` the candidate again on a new committed design (after
         an undo, say), leaving out values it now holds; the status to add."""
-        still = {k: t for k, t in pending.items()
-                 if not _holds(self.design, k, t)}
-        if not still:
-            self._refresh_readout()
-            return ""
+        still = {k: t for k, t in pending.items() if not _holds(self.design, k, t)}
         try:
             self._set_candidate(still)
         except StageledgerError as err:
-            self._refresh_readout()
+            self._set_candidate({})
             return f"; dropped the pending {', '.join(still)}: {err}"
+        if not still:
+            return ""
         return f"; still pending {self.candidate.describe()}"
 
     def on_knob_stepped(self, message: KnobStepped) -> None:
