@@ -15,6 +15,7 @@ from .design import Design
 from .errors import SolveError
 from .hand import HandEstimate, hand_estimate
 from .midband import decibels, device_small_signal, midband
+from .plain_json import plain
 from .power import dissipation
 from .response import POINTS_PER_DECADE, Response, device_capacitance, response as _response
 from .solve import operating_point
@@ -109,7 +110,12 @@ class Figures:
     emf_edges: tuple = (math.nan, math.nan)
 
     def to_dict(self) -> dict:
-        """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras."""
+        """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras.
+
+        Every number is finite or None, at any depth: an unbounded figure (an
+        open load's rout, the hand estimate's re of a stage that does not
+        conduct) or an undefined one (the corners without a passband) is None.
+        """
         out = {k: getattr(self, k) for k in FIGURE_KEYS}
         out["warnings"] = [w.to_dict() for w in self.warnings]
         out["hand"] = self.hand.to_dict()
@@ -123,19 +129,12 @@ class Figures:
         if r is not None:
             out["f_low_by"] = r.low_by.part if r.low_by else None
             out["f_high_by"] = r.high_by.part if r.high_by else None
-            out["f_low_parts"] = {p.part: _plain(p.freq) for p in r.low_parts}
-            out["f_high_parts"] = {p.part: _plain(p.freq) for p in r.high_parts}
+            out["f_low_parts"] = {p.part: p.freq for p in r.low_parts}
+            out["f_high_parts"] = {p.part: p.freq for p in r.high_parts}
             out["f_low_estimate"] = r.f_low_estimate
             out["f_high_estimate"] = r.f_high_estimate
             out["f_high_miller"] = r.f_high_miller
-        return {k: _plain(v) for k, v in out.items()}
-
-
-def _plain(v):
-    """JSON has no infinity: an unbounded figure (an open load's rout) becomes null."""
-    if isinstance(v, float) and not math.isfinite(v):
-        return None
-    return v
+        return plain(out)
 
 
 def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POINTS_PER_DECADE) -> Figures:

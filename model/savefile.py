@@ -31,6 +31,7 @@ import socket
 import time
 from dataclasses import dataclass
 
+from . import plain_json
 from .errors import StageledgerError
 
 
@@ -229,8 +230,8 @@ class DesignLock:
         except OSError as err:
             os.close(fd)
             raise SaveError(self.path, f"cannot lock {name}: {_reason(err)}") from None
-        stamp = json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
-                            "since": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())})
+        stamp = plain_json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
+                            "since": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())}, indent=None)
         try:
             os.ftruncate(fd, 0)
             os.pwrite(fd, stamp.encode() + b"\n", 0)

@@ -7,7 +7,6 @@ stderr, never a traceback), 3 for an internal fault.
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 
 from model.design import TOPOLOGIES
@@ -95,12 +94,14 @@ def _dispatch(args) -> int:
 
 def _report(path: str, as_json: bool) -> int:
     import model
+    from model import plain_json
+
     from .report import render_report
 
     design = model.read_design(path)
     figures = model.analyse(design)
     if as_json:
-        print(json.dumps(figures.to_dict(), indent=2, allow_nan=False))
+        print(plain_json.dumps(figures.to_dict()))
     else:
         sys.stdout.write(render_report(design, figures, path))
     return 0

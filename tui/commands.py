@@ -6,10 +6,7 @@ becomes one line on stderr and exit status 2 in :mod:`tui.cli`.
 
 from __future__ import annotations
 
-import json
-import math
-
-from model import analyse
+from model import analyse, plain_json
 from model.design import TOPOLOGIES, default_design
 from model.errors import StageledgerError
 from model.historyfile import entry_to_dict
@@ -81,7 +78,7 @@ def cmd_history(path: str, as_json: bool) -> int:
             d["time"] = e.time.isoformat().replace("+00:00", "Z")
             items.append(d)
         data = {"entries": items, "unlogged_hand_edits": [vars(c) for c in hand]}
-        print(json.dumps(_finite(data), indent=2, allow_nan=False))
+        print(plain_json.dumps(data))
         return 0
     if not history:
         print(f"{path}: no history yet; the first change will start it")
@@ -91,17 +88,6 @@ def cmd_history(path: str, as_json: bool) -> int:
         print("changed by hand since the last entry (logged with the next change):")
         print("\n".join(render_changes(hand)))
     return 0
-
-
-def _finite(value):
-    """JSON has no infinity: an unbounded figure (an open load's rout) becomes null."""
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_finite(v) for v in value]
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
 
 
 def cmd_diff(a: str, b: str) -> int:
