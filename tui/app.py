@@ -30,6 +30,7 @@ from model.session import DesignSession
 from .editing import Editing
 from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
+from .safe_text import visible
 from .screens import HelpScreen, NotePrompt
 from .state import Baseline, Candidate, LargeSignalReady
 from .widgets.knobs import KnobAbandoned, Knobs
@@ -124,10 +125,13 @@ class Workbench(Editing, PicturesPane, App):
         return self.session.history if self.session else []
 
     def _where(self) -> str:
+        """The sub-title: the file's path (escaped: a path may hold any byte)."""
         if self.session is None:
-            return f"{self.source} (bundled demo: the first commit saves a copy)" if self.demo_copy_dir \
+            where = f"{self.source} (bundled demo: the first commit saves a copy)" if self.demo_copy_dir \
                 else f"{self.source} (read-only)"
-        return self.session.path + (" (read-only)" if self.session.read_only else "")
+        else:
+            where = self.session.path + (" (read-only)" if self.session.read_only else "")
+        return visible(where)
 
     # -- the readout --------------------------------------------------------------
 
@@ -201,7 +205,7 @@ class Workbench(Editing, PicturesPane, App):
             entry = act(session)
         except StageledgerError as err:
             self._say(f"not saved: {err}", error=True)
-            self.notify(str(err), title="not saved", severity="error", timeout=8)
+            self.notify(visible(str(err)), title="not saved", severity="error", timeout=8, markup=False)
             return
         # What happened to pending values comes before the path: at 80
         # columns the end of the line is cut off.
@@ -229,7 +233,7 @@ class Workbench(Editing, PicturesPane, App):
         except OSError as err:
             raise StageledgerError(f"cannot read the bundled demo {self.source}: {err.strerror}") from None
         self.session = DesignSession(str(copy))
-        self.notify(f"saved a copy of the demo as {copy}", title="demo copied", timeout=8)
+        self.notify(f"saved a copy of the demo as {visible(str(copy))}", title="demo copied", timeout=8, markup=False)
         return self.session
 
     # -- actions ----------------------------------------------------------------
@@ -281,7 +285,7 @@ class Workbench(Editing, PicturesPane, App):
         def keep(text: str | None) -> None:
             if text is not None:
                 self.note = text
-                self._say(f"note for the next logged change: {text!r}" if text else "note cleared")
+                self._say(f'note for the next logged change: "{visible(text)}"' if text else "note cleared")
 
         self.push_screen(NotePrompt(self.note), keep)
 

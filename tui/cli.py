@@ -12,6 +12,8 @@ import sys
 from model.design import TOPOLOGIES
 from model.errors import StageledgerError
 
+from .safe_text import visible
+
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # one line and status 2, as for a bad file
@@ -138,12 +140,14 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return _dispatch(args)
     except StageledgerError as exc:
-        print(f"stageledger: {exc}", file=sys.stderr)
+        # A message may quote the file's path or its text: escaped, as everywhere.
+        print(f"stageledger: {visible(str(exc))}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         return 130
     except Exception as exc:  # a fault of ours: still one line, never a traceback
-        print(f"stageledger: internal error ({type(exc).__name__}: {exc}); please report it", file=sys.stderr)
+        print(f"stageledger: internal error ({type(exc).__name__}: {visible(str(exc))}); please report it",
+              file=sys.stderr)
         return 3
 
 

@@ -14,6 +14,7 @@ from model.ledger import changes_between, headline, warning_codes
 from model.session import DesignSession, create, design_at
 
 from .consequences import render_changes, render_consequences, render_entry
+from .safe_text import visible
 
 
 def parse_assignments(items: list) -> dict:
@@ -35,7 +36,8 @@ def cmd_new(path: str, topology: str | None, origin: str | None) -> int:
     else:
         design, label = default_design(topology or TOPOLOGIES[0]), None
     create(path, design, origin=label)
-    print(f"created {path}: a {design.topology} design" + (f" from {label}" if label else " from defaults"))
+    print(f"created {visible(path)}: a {design.topology} design"
+          + (f" from {visible(label)}" if label else " from defaults"))
     return 0
 
 
@@ -65,7 +67,7 @@ def cmd_reverse(path: str, which: str, note: str, drop_comments: bool) -> int:
 
 def _print_entry(path: str, entry) -> None:
     print("\n".join(render_entry(entry)))
-    print(f"saved {path} (entry {entry.number})")
+    print(f"saved {visible(path)} (entry {entry.number})")
 
 
 def cmd_history(path: str, as_json: bool) -> int:
@@ -81,7 +83,7 @@ def cmd_history(path: str, as_json: bool) -> int:
         print(plain_json.dumps(data))
         return 0
     if not history:
-        print(f"{path}: no history yet; the first change will start it")
+        print(f"{visible(path)}: no history yet; the first change will start it")
     for e in history:
         print("\n".join(render_entry(e)))
     if hand:
@@ -93,7 +95,7 @@ def cmd_history(path: str, as_json: bool) -> int:
 def cmd_diff(a: str, b: str) -> int:
     design_a, label_a = design_at(a)
     design_b, label_b = design_at(b)
-    lines = [f"{label_a} → {label_b}"]
+    lines = [f"{visible(label_a)} → {visible(label_b)}"]
     if design_a.topology != design_b.topology:
         lines.append(f"  topology: {design_a.topology} → {design_b.topology}")
         lines.append("  (different topologies: parameters are not compared key by key)")

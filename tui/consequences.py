@@ -8,6 +8,8 @@ from model.design import FIELDS
 from model.ledger import HEADLINE, Entry
 from model.units import format_si
 
+from .safe_text import visible
+
 #: How each headline figure is shown: (label, unit for format_si, or a special kind).
 _SHOW = {
     "ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),
@@ -20,25 +22,34 @@ _SHOW = {
 
 def show_figure(key: str, value) -> str:
     unit = _SHOW[key][1]
-    if value is None:
-        return "—"
     if unit is None:
         return str(value)
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return _not_finite(key, value)
     if unit == "gain":
         return f"{value:+.4g} V/V"
     if unit == "%":
         return f"{100 * value:.3g} %"
     if unit == "°C":
         return f"{value:.1f} °C"
-    if isinstance(value, float) and math.isinf(value):
-        return f"∞ {unit}"
     return format_si(value, unit)
+
+
+def _not_finite(key: str, value) -> str:
+    """A headline figure that is not a number, in words: an infinite corner
+    does not exist (no f_high below 10 THz); any other infinite figure (an
+    open-circuit resistance) is unbounded; NaN or null does not exist."""
+    if value is None or math.isnan(value) or key in ("f_low", "f_high"):
+        return "none"
+    return "unbounded"
 
 
 def show_value(key: str, value) -> str:
     """A design value with its unit, e.g. ``stage.rc`` 6800 → "6.80 kΩ"."""
     field = FIELDS.get(key)
-    if isinstance(value, str) or field is None or not field.unit or field.unit == "°C":
+    if isinstance(value, str):
+        return visible(value)  # a name or notes: text from the file, shown on a terminal
+    if field is None or not field.unit or field.unit == "°C":
         return f"{value:g} {field.unit}" if isinstance(value, float) and field and field.unit else str(value)
     return format_si(value, field.unit)
 
@@ -84,10 +95,10 @@ def render_entry(e: Entry) -> list:
     if e.reverses is not None:
         head += f" of #{e.reverses}"
     if e.origin:
-        head += f" from {e.origin}"
+        head += f" from {visible(e.origin)}"
     rows = [head]
     if e.note:
-        rows.append(f"  note: {e.note}")
+        rows.append(f"  note: {visible(e.note)}")
     rows += render_changes(e.changes)
     rows += render_consequences(e.before, e.after, e.raised, e.cleared)
     return rows

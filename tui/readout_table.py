@@ -45,7 +45,8 @@ def show(value, kind, compact: bool = False) -> str:
     if kind == "°C":
         return f"{value:.1f} °C"
     if math.isinf(value):
-        return f"∞ {kind}"
+        # In words, as the report writes it: no upper corner, or a resistance with no path.
+        return "none" if kind == "Hz" else "unbounded"
     if kind == "V/V":
         return f"{value:.4g}"
     return format_si(value, kind)

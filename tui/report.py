@@ -10,17 +10,37 @@ from model.design import Design
 from model.midband import decibels
 from model.units import format_si
 
+from .safe_text import visible
 
-def _si(x: float, unit: str) -> str:
-    return format_si(x, unit) if math.isfinite(x) else ("∞ " + unit if x > 0 else "—")
+
+#: The words for a figure that is not a finite number: an infinite one is
+#: unbounded (a resistance with no path, a band with no upper corner); a NaN
+#: one does not exist for this design (the corners of a stage with no passband).
+UNBOUNDED, NONE = "unbounded", "none"
+
+
+def _si(x: float, unit: str, infinite: str = UNBOUNDED) -> str:
+    if math.isfinite(x):
+        return format_si(x, unit)
+    return NONE if math.isnan(x) else infinite
+
+
+def _db(x: float) -> str:
+    """A gain's magnitude in dB; a zero gain has none."""
+    db = float(decibels(x))
+    return f"{db:+.1f} dB" if math.isfinite(db) else "no dB: zero"
 
 
 def _gain(x: float) -> str:
-    return f"{x:+.4g} V/V ({float(decibels(x)):+.1f} dB)"
+    return f"{x:+.4g} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
 
 
 def _pct(x: float) -> str:
-    return f"{100.0 * x:.3g} %"
+    return f"{100.0 * x:.3g} %" if math.isfinite(x) else NONE
+
+
+def _title(design: Design) -> str:
+    return visible(design.name) or "(unnamed design)"
 
 
 def render_report(design: Design, fig: Figures, source: str) -> str:
@@ -28,8 +48,8 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
     h = fig.hand
     t = design.transistor
     rows = [
-        f"{design.name or '(unnamed design)'} — {design.topology}, {t.polarity.upper()}",
-        f"file: {source}",
+        f"{_title(design)} — {design.topology}, {t.polarity.upper()}",
+        f"file: {visible(source)}",
         "",
         "Operating point                    exact          hand estimate",
         f"  region                           {fig.region}",
@@ -83,15 +103,19 @@ def part_name(part: str) -> str:
     return PART_NAMES.get(part, part)
 
 
-def _hz(x: float) -> str:
+def _hz(x: float, infinite: str = NONE) -> str:
+    """A corner or a part's corner alone (Hz): an infinite one (a part
+    with no capacitance, no corner below 10 THz) does not exist."""
     if math.isnan(x):
-        return "none"
-    return _si(x, "Hz") if x > 0 else "below 1 µHz"
+        return NONE
+    return _si(x, "Hz", infinite) if x > 0 else "below 1 µHz"
 
 
 def corner_sentence(which: str, freq: float, by) -> str:
     """``f_low 8.5 Hz, set by ce (6.9 Hz alone)``: the corner and the part to change."""
     text = f"{which} {_hz(freq)}"
+    if which == "f_high" and freq == math.inf:
+        text += " below 10 THz"
     if by is not None and math.isfinite(freq) and freq > 0:
         text += f", set by {part_name(by.part)} ({_hz(by.freq)} alone)"
     return text
@@ -112,13 +136,23 @@ def response_lines(design: Design, fig: Figures) -> list:
         f"  {corner_sentence('f_high', r.f_high, r.high_by)}",
         f"    open-circuit estimates   {high}",
         f"{pad}1/(2πΣτ) {_hz(r.f_high_estimate)}; Miller (input pole) {_hz(r.f_high_miller)}",
-        f"  bandwidth                        {_hz(r.bandwidth)}",
+        f"  bandwidth                        {_hz(r.bandwidth, UNBOUNDED)}",
         f"  at source.freq {_si(design.source.freq, 'Hz'):<17} {abs(r.gain_at_freq):.4g} V/V "
-        f"({float(decibels(r.gain_at_freq)):+.1f} dB), phase {r.phase_at_freq:.1f}°",
+        f"({_db(r.gain_at_freq)}), phase {_deg(r.phase_at_freq)}",
         f"  device capacitance               Cπ {_si(r.device.c_pi, 'F')}, Cμ {_si(r.device.c_mu, 'F')}"
         + (" (Cπ floored at 0)" if r.device.floored else ""),
     ]
     return rows
+
+
+def _deg(x: float) -> str:
+    return f"{x:.1f}°" if math.isfinite(x) else NONE
+
+
+def _cell(x: float) -> str:
+    """A CSV number; a non-finite one (the dB of a zero gain, its undefined
+    phase) leaves the cell empty, as spreadsheets read a missing value."""
+    return f"{x:.6g}" if math.isfinite(x) else ""
 
 
 def render_response(design: Design, fig: Figures, source: str, as_csv: bool) -> str:
@@ -127,10 +161,15 @@ def render_response(design: Design, fig: Figures, source: str, as_csv: bool) -> 
     mag, phase = r.magnitude_db(), r.phase_deg()
     if as_csv:
         rows = ["freq_hz,gain_db,phase_deg"]
-        rows += [f"{f:.6g},{m:.6g},{p:.6g}" for f, m, p in zip(r.freq, mag, phase)]
+        rows += [f"{_cell(f)},{_cell(m)},{_cell(p)}" for f, m, p in zip(r.freq, mag, phase)]
         return "\n".join(rows) + "\n"
-    rows = [f"{design.name or '(unnamed design)'} — av_source against frequency", f"file: {source}"]
+    rows = [f"{_title(design)} — av_source against frequency", f"file: {visible(source)}"]
     rows += response_lines(design, fig)
     rows += ["", f"  {'frequency':>12}  {'gain':>10}  {'phase':>8}"]
-    rows += [f"  {_si(f, 'Hz'):>12}  {m:>7.2f} dB  {p:>7.1f}°" for f, m, p in zip(r.freq, mag, phase)]
+    rows += [f"  {_si(f, 'Hz'):>12}  {_fixed(m, 7, 2, ' dB'):>10}  {_fixed(p, 7, 1, '°'):>8}"
+             for f, m, p in zip(r.freq, mag, phase)]
     return "\n".join(rows) + "\n"
+
+
+def _fixed(x: float, width: int, places: int, unit: str) -> str:
+    return f"{x:>{width}.{places}f}{unit}" if math.isfinite(x) else NONE

@@ -25,6 +25,8 @@ from textual.widgets.input import Selection
 from model.design import FIELDS, Design, get_value, keys_for
 from model.units import format_si, parse_value
 
+from ..safe_text import visible
+
 #: Table order on screen, with the heading shown for each.
 GROUPS = (
     ("supply", "supply"), ("bias", "bias"), ("stage", "stage"), ("source", "source"),
@@ -363,5 +365,6 @@ class Knobs(VerticalScroll):
                 text.append(label, style="bold")
                 continue
             text.append(label.ljust(LABEL_WIDTH))
-            text.append(self.text(key), style="bold underline" if key in self._pending else "")
+            # visible(): the name row shows the file's text (its rule refuses controls; belt and braces).
+            text.append(visible(self.text(key)), style="bold underline" if key in self._pending else "")
         return text

@@ -8,6 +8,7 @@ from textual.widgets.option_list import Option
 from model.ledger import Entry
 
 from ..consequences import compact_deltas
+from ..safe_text import visible
 from .knobs import field_text
 
 
@@ -24,11 +25,19 @@ def entry_line(e: Entry) -> str:
         line += " · " + compact_deltas(e.before, e.after)
     if e.note:
         line += f' · "{e.note}"'
-    return line
+    # The note, the origin and any name or notes change are the file's text.
+    return visible(line)
 
 
 class LedgerPane(OptionList):
-    """The history; selecting an entry pins it as the baseline."""
+    """The history; selecting an entry pins it as the baseline.
+
+    Its lines are plain text, never markup: a note such as "[b]x[/b]" or
+    "gain[dB]" is shown as typed.
+    """
+
+    def __init__(self, *, id: str | None = None):
+        super().__init__(id=id, markup=False)
 
     def show(self, history: list) -> None:
         self.clear_options()
