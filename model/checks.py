@@ -82,7 +82,7 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
         f_low, f_high, relative = band
         if math.isnan(f_low):
             out.append(Warning_("NO-PASSBAND", "the gain never comes within 3 dB of its midband value: "
-                                "a coupling capacitor is far too small or a device capacitance far too large"))
+                                "a coupling or bypass capacitor is far too small or a device capacitance far too large"))
         elif not f_low <= d.source.freq <= f_high:
             where = "below f_low" if d.source.freq < f_low else "above f_high"
             corner = f_low if d.source.freq < f_low else f_high
