@@ -217,7 +217,21 @@ def validate(design: Design) -> Design:
                 raise DesignError(key, _shown(value),
                                   f"is not used by a {topology} design and must stay {f.default!r}")
         top[table] = cls(**values)
-    return dataclasses.replace(design, **top)
+    checked = dataclasses.replace(design, **top)
+    _check_wiring(checked)
+    return checked
+
+
+def _check_wiring(design: Design) -> None:
+    """Rules across keys: a direct connection in place of cin must not put
+    the source's ideal 0 V straight across the base–emitter junction."""
+    s = design.stage
+    if design.topology == CE and s.cin == 0 and design.source.rs == 0 and s.re1 == 0 and s.re2 == 0:
+        # Nothing would limit the junction current: VBE is fixed at the
+        # emitter's rail voltage (vcc for a PNP), so no operating point exists.
+        raise DesignError("stage.cin", NONE, "with source.rs, stage.re1 and stage.re2 all 0, the source "
+                          "would be wired straight across the base-emitter junction; fit cin or give "
+                          "one of them a resistance")
 
 
 def design_to_dict(design: Design) -> dict:
