@@ -43,7 +43,7 @@ from test_engine_properties import _decades, designs
 #: The capacitor keys that may be left off, with a topology that has each.
 UNFITTED = [("stage.ce", CE), ("stage.cin", CE), ("stage.cout", EF), ("load.cl", EF),
             ("stage.cin", EF), ("stage.cout", CE), ("load.cl", CE)]
-#: An Early voltage so large that ro (≈ VA/IC, about 1e9 Ω here) drops out of
+#: An Early voltage so large that ro (≈ VA/IC, about 2e9 Ω here) drops out of
 #: every formula below, which all take ro = ∞.
 NO_EARLY = 1e6
 #: A coupling capacitor that is a short at every frequency that matters (its
@@ -192,8 +192,8 @@ def test_unbypassed_f_low_is_set_by_the_coupling_capacitors_alone():
 
 def test_dc_coupled_input_leaves_cout_alone_at_the_low_end():
     """cin not fitted: the low corner is cout's single pole, 1/(2π(RC + RL)cout),
-    taking the collector's own resistance as RC (ro[1 + gm(RE‖rπ)] ≈ 1e12 Ω
-    against 6.8 kΩ), to 1e-4."""
+    to 1e-4: the output resistance is RC in parallel with the collector's own,
+    which is at least ro ≈ VA/IC ≈ 2e9 Ω (a 3e-6 effect)."""
     d = _design(**{**UNBYPASSED, "stage.cin": "none", "source.rs": 220e3, "stage.cout": 100e-9})
     fig = analyse(d)
     assert fig.region == "active"
