@@ -43,10 +43,10 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
     out = []
     if region == "saturation":
         out.append(Warning_("Q-SATURATED", f"transistor saturated at rest: VBC {_v(vbc, 'V')} above 0.4 V "
-                            f"(VCE {_v(vce, 'V')}); the stage cannot amplify"))
+                            f"(VCE {_v(vce, 'V')}); the stage cannot amplify{_dc_coupled(d)}"))
     elif region == "cutoff":
         out.append(Warning_("Q-CUTOFF", f"transistor cut off at rest: IC {_v(ic, 'A')} below 10 nA; "
-                            "the bias does not turn it on"))
+                            f"the bias does not turn it on{_dc_coupled(d)}"))
     short = [(name, s) for name, s in (("up", swing_up), ("down", swing_down)) if s < wanted_out]
     # A stage that is not active at rest already has its own warning; saying
     # that its zero swing is short of the request would only add noise.
@@ -82,7 +82,7 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
         f_low, f_high, relative = band
         if math.isnan(f_low):
             out.append(Warning_("NO-PASSBAND", "the gain never comes within 3 dB of its midband value: "
-                                "a coupling capacitor is far too small or a device capacitance far too large"))
+                                "a coupling or bypass capacitor is far too small or a device capacitance far too large"))
         elif not f_low <= d.source.freq <= f_high:
             where = "below f_low" if d.source.freq < f_low else "above f_high"
             corner = f_low if d.source.freq < f_low else f_high
@@ -93,3 +93,15 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
         out.append(Warning_("HAZARDOUS-VOLTAGE", f"supply {_v(d.supply.vcc, 'V')} exceeds 60 V DC: a shock "
                             "hazard; follow local codes and licensed practice"))
     return tuple(out)
+
+
+def _dc_coupled(d) -> str:
+    """Why the bias may not be what the divider alone would give: a coupling
+    capacitor not fitted puts the source's or the load's DC path in it."""
+    parts = []
+    if d.stage.cin == 0:
+        parts.append(f"with cin none the source's 0 V through rs {_v(d.source.rs, 'Ω')} is part of the bias")
+    if d.stage.cout == 0 and math.isfinite(d.load.rl):
+        parts.append(f"with cout none rl {_v(d.load.rl, 'Ω')} carries DC from the "
+                     + ("emitter" if d.topology == "emitter-follower" else "collector"))
+    return "".join(f"; {p}" for p in parts)

@@ -11,15 +11,14 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import math
 from dataclasses import dataclass
 
 from .errors import DesignError
 # The keys and their rules live in fields.py; they are re-exported here because
 # callers think of them as part of the design.
 from .fields import (  # noqa: F401
-    CE, EF, FIELDS, FORMAT, POLARITIES, SERIES, TOPOLOGIES, Field, Rule, _choice, _shown,
-    check_value, keys_for, rule_for,
+    CE, EF, FIELDS, FORMAT, NONE, OPEN, POLARITIES, SERIES, TOPOLOGIES, Field, Rule, _choice,
+    _shown, check_value, file_word, keys_for, rule_for,
 )
 
 @dataclass(frozen=True)
@@ -42,6 +41,11 @@ class Stage:
     Common emitter: rc, re1 (unbypassed), re2 (bypassed by ce), ce.
     Emitter follower: rc (0 = collector tied to the supply) and re.
     Both: cin, cout. A field the topology does not use stays 0.
+
+    A capacitor of 0 is not fitted ("none" in the file): without ce, re2 is
+    in the signal path too; without cin the source is wired straight to the
+    base, and without cout the load straight to the output terminal, so
+    their DC paths become part of the bias.
     """
 
     rc: float = 0.0
@@ -63,7 +67,8 @@ class Source:
 
 @dataclass(frozen=True)
 class Load:
-    """rl in Ω (math.inf = no load, "open" in the file) in parallel with cl in F."""
+    """rl in Ω (math.inf = no load, "open" in the file) in parallel with cl in F
+    (0 = not fitted, "none" in the file)."""
     rl: float
     cl: float = 0.0
 
@@ -212,13 +217,28 @@ def validate(design: Design) -> Design:
                 raise DesignError(key, _shown(value),
                                   f"is not used by a {topology} design and must stay {f.default!r}")
         top[table] = cls(**values)
-    return dataclasses.replace(design, **top)
+    checked = dataclasses.replace(design, **top)
+    _check_wiring(checked)
+    return checked
+
+
+def _check_wiring(design: Design) -> None:
+    """Rules across keys: a direct connection in place of cin must not put
+    the source's ideal 0 V straight across the base–emitter junction."""
+    s = design.stage
+    if design.topology == CE and s.cin == 0 and design.source.rs == 0 and s.re1 == 0 and s.re2 == 0:
+        # Nothing would limit the junction current: VBE is fixed at the
+        # emitter's rail voltage (vcc for a PNP), so no operating point exists.
+        raise DesignError("stage.cin", NONE, "with source.rs, stage.re1 and stage.re2 all 0, the source "
+                          "would be wired straight across the base-emitter junction; fit cin or give "
+                          "one of them a resistance")
 
 
 def design_to_dict(design: Design) -> dict:
     """The TOML-ready dict of ``design``: format first, then text keys, then tables.
 
-    Only the keys of the design's topology appear; an open load is "open".
+    Only the keys of the design's topology appear; an open load is "open"
+    and a capacitor not fitted is "none" (see ``fields.file_word``).
     """
     design = validate(design)
     data: dict[str, object] = {"format": FORMAT}
@@ -231,7 +251,8 @@ def design_to_dict(design: Design) -> dict:
             if key.startswith(table + "."):
                 attr = key.split(".")[1]
                 value = getattr(part, attr)
-                entries[attr] = "open" if value == math.inf else value
+                word = file_word(key, value)
+                entries[attr] = value if word is None else word
         data[table] = entries
     return data
 

@@ -20,6 +20,10 @@ TOPOLOGIES = ("common-emitter", "emitter-follower")
 SERIES = ("E6", "E12", "E24", "E48", "E96")
 POLARITIES = ("npn", "pnp")
 CE, EF = TOPOLOGIES
+#: The file's words for an infinite resistance and for a part not fitted.
+#: The one place they are spelt: parsing (check_value), the file
+#: (design_to_dict) and the Knobs (file_word) all use these.
+OPEN, NONE = "open", "none"
 
 
 @dataclass(frozen=True)
@@ -27,8 +31,10 @@ class Rule:
     """What a value must be; ``text`` says it in words for error messages.
 
     kind "number": low/high limits (strict or not); open_ok lets the string
-    "open" (or +inf) stand for an infinite resistance. kind "choice": one of
-    choices. kind "text": any string; one_line also refuses control characters.
+    "open" (or +inf) stand for an infinite resistance; none_ok lets 0 or the
+    string "none" stand for a part that is not fitted (stored as 0.0).
+    kind "choice": one of choices. kind "text": any string; one_line also
+    refuses control characters.
     """
 
     text: str
@@ -38,6 +44,7 @@ class Rule:
     high: float = math.inf
     high_strict: bool = False
     open_ok: bool = False
+    none_ok: bool = False
     choices: tuple[str, ...] = ()
     one_line: bool = False
 
@@ -52,9 +59,15 @@ def _range(unit: str, low: float | None = None, high: float | None = None, *,
         shown = high_shown or f"{high:g} {unit}".rstrip()
         words.append(("less than " if high_strict else "at most ") + shown)
     text = "must be " + (" and ".join(words) or "a finite number")
-    text += ", or 'open' for none" if open_ok else ""
+    text += f", or '{OPEN}' for an open circuit" if open_ok else ""
     return Rule(text, low=-math.inf if low is None else low, low_strict=low_strict,
                 high=math.inf if high is None else high, high_strict=high_strict, open_ok=open_ok)
+
+
+def _fitted(unit: str) -> Rule:
+    """A part that may be left off the board: positive, or 0 / "none" when not fitted."""
+    return Rule(f"must be greater than 0 {unit}, or 0 or '{NONE}' when not fitted",
+                low=0.0, low_strict=False, none_ok=True)
 
 
 def _choice(choices: tuple[str, ...]) -> Rule:
@@ -88,15 +101,17 @@ FIELDS: dict[str, Field] = {
     "stage.rc": Field("Ω", {CE: _POSITIVE_OHMS, EF: _range("Ω", 0, low_strict=False)}),
     "stage.re1": Field("Ω", {CE: _range("Ω", 0, low_strict=False)}),
     "stage.re2": Field("Ω", {CE: _range("Ω", 0, low_strict=False)}),
-    "stage.ce": Field("F", {CE: _range("F", 0)}),
+    # Not fitted: ce leaves re2 in the signal path; cin and cout are replaced
+    # by a direct (DC) connection; cl is simply absent. See README "Keys".
+    "stage.ce": Field("F", {CE: _fitted("F")}),
     "stage.re": Field("Ω", {EF: _POSITIVE_OHMS}),
-    "stage.cin": _both("F", _range("F", 0)),
-    "stage.cout": _both("F", _range("F", 0)),
+    "stage.cin": _both("F", _fitted("F")),
+    "stage.cout": _both("F", _fitted("F")),
     "source.rs": _both("Ω", _range("Ω", 0, low_strict=False)),
     "source.vpk": _both("V", _range("V", 0, low_strict=False)),
     "source.freq": _both("Hz", _range("Hz", 0)),
     "load.rl": _both("Ω", _range("Ω", 0, open_ok=True)),
-    "load.cl": _both("F", _range("F", 0, low_strict=False)),
+    "load.cl": _both("F", _fitted("F")),
     "transistor.polarity": _both("", _choice(POLARITIES)),
     "transistor.beta": _both("", _range("", 0)),
     "transistor.beta_r": _both("", _range("", 0)),
@@ -177,14 +192,34 @@ def check_value(key: str, topology: str, value: object) -> float | str:
     if isinstance(value, bool) or not isinstance(value, (numbers.Real, str)):
         # bool is an int to Python but never a quantity to a person.
         raise broken(f"must be a number (or a string such as '4k7'); {rule.text}")
-    if rule.open_ok and isinstance(value, str) and value.strip().casefold() == "open":
+    word = value.strip().casefold() if isinstance(value, str) else None
+    if rule.open_ok and word == OPEN:
         return math.inf
+    if rule.none_ok and word == NONE:
+        return 0.0
     try:
         number = parse_value(value, FIELDS[key].unit, allow_inf=rule.open_ok)
     except UnitError as err:
         raise broken(f"{err.reason}; {rule.text}") from None
+    if rule.none_ok and number == 0.0:
+        return 0.0  # also turns -0.0 into the one stored form of "none"
     too_low = number <= rule.low if rule.low_strict else number < rule.low
     too_high = number >= rule.high if rule.high_strict else number > rule.high
     if too_low or too_high:
         raise broken(rule.text)
     return number
+
+
+def file_word(key: str, value: object) -> str | None:
+    """The word the file and the Knobs show for ``value`` of ``key``: "open"
+    for an infinite resistance, "none" for a part not fitted; None when the
+    value is an ordinary number (or ``key`` has no such word)."""
+    field = FIELDS.get(key)
+    if field is None or isinstance(value, (bool, str)) or not isinstance(value, numbers.Real):
+        return None
+    rules = field.rules.values()
+    if value == math.inf and any(r.open_ok for r in rules):
+        return OPEN
+    if value == 0 and any(r.none_ok for r in rules):
+        return NONE
+    return None

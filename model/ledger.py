@@ -14,7 +14,9 @@ import math
 from dataclasses import dataclass, field
 
 from .analysis import Figures
-from .design import Design, design_from_dict, design_to_dict, get_value, with_values
+from .design import (
+    Design, check_value, design_from_dict, design_to_dict, file_word, get_value, with_values,
+)
 from .errors import DesignError, StageledgerError
 
 #: Entry kinds, in the words the file uses.
@@ -160,6 +162,8 @@ def check_changes_apply(design: Design, changes: tuple) -> None:
     """Refuse to reverse a change whose new values the design no longer holds."""
     for c in changes:
         current = get_value(design, c.key)
-        current = "open" if current == math.inf else current
-        if current != c.old:
-            raise DesignError(c.key, current, f"no longer holds {c.old!r}; cannot reverse that entry")
+        # Compared as stored values, so "none" and 0.0 (or "open" and inf,
+        # as older files wrote some of them) are the same value.
+        if current != check_value(c.key, design.topology, c.old):
+            shown = file_word(c.key, current) or current
+            raise DesignError(c.key, shown, f"no longer holds {c.old!r}; cannot reverse that entry")

@@ -97,8 +97,10 @@ class Response:
 
     freq (Hz) and gain (complex V/V) are the sweep; ``midband`` is av_source
     at midband (V/V, signed).  f_low and f_high are the exact −3 dB points
-    (Hz): f_low 0 if none lies above 1 µHz, f_high inf if none below 10 THz,
-    both NaN if the gain never comes within 3 dB of midband.
+    (Hz): f_low 0 if none lies above 1 µHz (always so when no coupling or
+    bypass capacitor is fitted: the stage is flat to DC), f_high inf if none
+    below 10 THz, both NaN if the gain never comes within 3 dB of midband.
+    Capacitors not fitted are not in the netlist, so they have no estimate.
     """
 
     freq: np.ndarray
@@ -157,7 +159,7 @@ class Response:
 
 def low_estimate(parts) -> float:
     """f_low estimate (Hz): the sum of the short-circuit corners."""
-    return sum(p.freq for p in parts if math.isfinite(p.freq))
+    return sum((p.freq for p in parts if math.isfinite(p.freq)), 0.0)
 
 
 def high_estimate(parts) -> float:
@@ -188,6 +190,10 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     # The sweep kept spans whole decades from one below the exact f_low to one
     # above the exact f_high, and always the signal frequency.
     want_lo = math.floor(math.log10(f_low)) - 1 if math.isfinite(f_low) and f_low > 0 else lo
+    if not low:
+        # No coupling or bypass capacitor is fitted: flat to DC (f_low = 0),
+        # and two decades below the signal show that as well as ten would.
+        want_lo = math.floor(math.log10(signal_freq)) - 2
     want_hi = math.ceil(math.log10(f_high)) + 1 if math.isfinite(f_high) else hi
     want_lo = max(min(want_lo, math.floor(math.log10(signal_freq))), _LOWEST_DECADE)
     want_hi = min(max(want_hi, math.ceil(math.log10(signal_freq)), want_lo + 1), _HIGHEST_DECADE)

@@ -8,8 +8,12 @@ The source and the load stay referred to ground, as they are on the bench.
 
 Values come as a dict ``"table.key" → array`` (one entry per batch row), so
 a batch of designs that share a shape builds one netlist.  A zero-ohm
-resistor is not a part but a joined node, which changes the shape; rows of
-one batch must agree on which resistors are zero (see :func:`shape_of`).
+resistor is not a part but a joined node, which changes the shape; so does a
+capacitor of 0 F, which is not fitted: a missing bypass or load capacitor is
+simply absent, and a missing coupling capacitor is a direct (DC) connection
+in its place, so the source's and the load's DC paths join the bias and the
+operating point is solved with them.  Rows of one batch must agree on all
+of these (see :func:`shape_of`).
 """
 
 from __future__ import annotations
@@ -26,10 +30,12 @@ SUPPLY, EMF, TRANSISTOR = "vcc", "vs", "q1"
 #: Tags for the groups of parts that the midband figures remove.
 BIAS, SOURCE, LOAD = "bias", "source", "load"
 
-#: Which resistors may be 0 (joining two nodes) in each topology.
+#: Which parts may be 0 in each topology: a resistor of 0 Ω joins two nodes,
+#: a capacitor of 0 F is not fitted.
 _OPTIONAL = {
-    "common-emitter": ("stage.re1", "stage.re2", "source.rs"),
-    "emitter-follower": ("stage.rc", "source.rs"),
+    "common-emitter": ("stage.re1", "stage.re2", "source.rs",
+                       "stage.ce", "stage.cin", "stage.cout", "load.cl"),
+    "emitter-follower": ("stage.rc", "source.rs", "stage.cin", "stage.cout", "load.cl"),
 }
 
 
@@ -51,10 +57,11 @@ class StageCircuit:
 
 
 def shape_of(topology: str, values: dict) -> tuple:
-    """The structural key of each batch row: which optional parts are absent."""
+    """The structural key of each batch row: which optional parts are absent
+    (zero resistors, capacitors not fitted, an open load) and the polarity."""
     v = {k: np.atleast_1d(np.asarray(x, dtype=float)) for k, x in values.items()}
     flags = [v[k] == 0 for k in _OPTIONAL[topology]]
-    flags += [np.isinf(v["load.rl"]), v["load.cl"] == 0, v["transistor.sign"] < 0]
+    flags += [np.isinf(v["load.rl"]), v["transistor.sign"] < 0]
     return np.stack(np.broadcast_arrays(*flags), axis=-1)
 
 
@@ -100,6 +107,18 @@ class _Parts:
         self.resistors.append(name)
         self.elements.append(Resistor(name, a, b, r, frozenset(tags)))
 
+    def capacitor(self, name, a, b, key, *, wired_to=None, coupling=True, tags=()):
+        """A capacitor from ``key``.  At 0 F it is not fitted: no part at all,
+        or, for a coupling capacitor, a wire in its place (the other end is
+        joined onto ``wired_to``, the stage's own end)."""
+        c = self.v[key]
+        if c[0] > 0:
+            self.elements.append(Capacitor(name, a, b, c, coupling, frozenset(tags)))
+        elif wired_to is not None:
+            gone, keep = self.node(b if wired_to == a else a), self.node(wired_to)
+            if gone != keep:
+                self.joined[gone] = keep
+
     def finish(self, topology, *, base, collector, emitter, has_load) -> StageCircuit:
         n = self.node
         fixed = []
@@ -133,13 +152,14 @@ class _Parts:
         self.resistor("r2", "b", self.rail(GROUND), "bias.r2", (BIAS,))
         self.elements.append(VoltageSource(EMF, "src", GROUND, np.zeros(self.batch), frozenset((SOURCE,))))
         self.resistor("rs", "src", "in", "source.rs", (SOURCE,))
-        self.elements.append(Capacitor("cin", "in", "b", v["stage.cin"]))
-        self.elements.append(Capacitor("cout", out_from, "out", v["stage.cout"]))
+        # Without cin the source is wired to the base ("in" joins "b"), and
+        # without cout the load to the output terminal ("out" joins it).
+        self.capacitor("cin", "in", "b", "stage.cin", wired_to="b")
+        self.capacitor("cout", out_from, "out", "stage.cout", wired_to=out_from)
         has_load = not np.isinf(v["load.rl"][0])
         if has_load:
             self.resistor("rl", "out", GROUND, "load.rl", (LOAD,))
-        if v["load.cl"][0] > 0:
-            self.elements.append(Capacitor("cl", "out", GROUND, v["load.cl"], coupling=False, tags=frozenset((LOAD,))))
+        self.capacitor("cl", "out", GROUND, "load.cl", coupling=False, tags=(LOAD,))
         params = params_at(
             i_s=v["transistor.i_s"],
             beta_f=v["transistor.beta"],
@@ -161,7 +181,8 @@ def _common_emitter(p: _Parts) -> StageCircuit:
     p.resistor("re1", "e", "em", "stage.re1")
     p.resistor("re2", "em", p.rail(GROUND), "stage.re2")
     if p.v["stage.re2"][0] > 0:
-        p.elements.append(Capacitor("ce", "em", p.rail(GROUND), p.v["stage.ce"]))
+        # Not fitted: re2 stays in the signal path with re1 (unbypassed).
+        p.capacitor("ce", "em", p.rail(GROUND), "stage.ce")
     return p.finish("common-emitter", base="b", collector="c", emitter="e", has_load=has_load)
 
 

@@ -43,6 +43,10 @@ def designs(draw, topology, open_load):
     }
     rl = _values_for(FIELDS["load.rl"].rules[topology]).filter(lambda r: math.isinf(r) == open_load)
     values["load.rl"] = draw(rl)
+    if topology == "common-emitter" and values["source.rs"] == values["stage.re1"] == values["stage.re2"] == 0:
+        # The one rule across keys: with no resistance anywhere, a cin not
+        # fitted would wire the source across the junction (model.design).
+        values["stage.cin"] = draw(_values_for(FIELDS["stage.cin"].rules[topology]).filter(lambda c: c > 0))
     return with_values(default_design(topology), values)
 
 

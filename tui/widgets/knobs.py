@@ -11,7 +11,6 @@ reaches into the app.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Callable, Iterable
 
 from rich.text import Text
@@ -22,7 +21,7 @@ from textual.message import Message
 from textual.widgets import Input, Static
 from textual.widgets.input import Selection
 
-from model.design import FIELDS, Design, get_value, keys_for
+from model.design import FIELDS, Design, file_word, get_value, keys_for
 from model.units import format_si, parse_value
 
 from ..safe_text import visible
@@ -44,8 +43,9 @@ def field_text(key: str, value) -> str:
     if isinstance(value, str):
         return value
     unit = FIELDS[key].unit if key in FIELDS else ""
-    if value == math.inf:
-        return "open"
+    word = file_word(key, value)
+    if word is not None:
+        return word
     if unit == "°C":
         return f"{value:g}"
     for digits in range(3, 13):
