@@ -20,7 +20,7 @@ import re
 import tempfile
 
 import pytest
-from hypothesis import HealthCheck, example, given, settings
+from hypothesis import HealthCheck, example, given, reject, settings
 from hypothesis import strategies as st
 
 from model.analysis import analyse
@@ -182,8 +182,17 @@ SATURATED_EF = ("emitter-follower", {"stage.rc": 100e3, "bias.r1": 1e3, "bias.r2
 @example(SATURATED_EF)
 def test_machine_readable_output_is_strict_for_any_valid_design(drawn):
     topology, values = drawn
+    try:
+        design = with_values(default_design(topology), values)
+    except DesignError:
+        # Each value is valid alone, but a rule across keys refuses the
+        # combination (cin none with no resistance between the source and
+        # the emitter): not a valid design, so nothing to output.
+        reject()
     with tempfile.TemporaryDirectory() as folder:
-        check_outputs(write(folder, topology, values))
+        path = pathlib.Path(folder) / "design.toml"
+        path.write_text(dumps_design(design), encoding="utf-8")
+        check_outputs(path)
 
 
 @pytest.mark.parametrize("drawn, region", [

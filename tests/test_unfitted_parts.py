@@ -481,3 +481,18 @@ async def test_the_knobs_show_and_step_a_capacitor_not_fitted(tmp_path):
         await _drain(pilot)
         assert app.candidate is None
     assert read_document(path).design.stage.ce == 0.0  # the one stored form of "none"
+
+
+def test_report_says_flat_to_dc_when_no_coupling_or_bypass_capacitor_is_fitted(tmp_path, capsys):
+    # A stage with cin, cout and ce all left off has no lower corner: the
+    # report says why in words rather than "below 1 µHz" and an empty estimate.
+    from tui.cli import main
+
+    path = tmp_path / "flat.toml"
+    assert main(["new", str(path)]) == 0
+    assert main(["set", str(path), "stage.cin=none", "stage.cout=none", "stage.ce=none"]) == 0
+    capsys.readouterr()
+    assert main(["report", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "flat to DC, no coupling or bypass capacitor fitted" in out
+    assert "below 1 µHz" not in out

@@ -114,6 +114,8 @@ def _hz(x: float, infinite: str = NONE) -> str:
 def corner_sentence(which: str, freq: float, by) -> str:
     """``f_low 8.5 Hz, set by ce (6.9 Hz alone)``: the corner and the part to change."""
     text = f"{which} {_hz(freq)}"
+    if which == "f_low" and freq == 0 and by is None:
+        return "f_low 0 Hz: flat to DC, no coupling or bypass capacitor fitted"
     if which == "f_high" and freq == math.inf:
         text += " below 10 THz"
     if by is not None and math.isfinite(freq) and freq > 0:
@@ -126,13 +128,15 @@ def response_lines(design: Design, fig: Figures) -> list:
     r = fig.response
     if r is None:
         return ["  not computed"]
-    low = " · ".join(f"{part_name(p.part)} {_hz(p.freq)}" for p in r.low_parts)
+    # With no coupling or bypass capacitor fitted there is no lower corner to estimate.
+    low = (" · ".join(f"{part_name(p.part)} {_hz(p.freq)}" for p in r.low_parts) if r.low_parts
+           else "none fitted (flat to DC)")
     high = " · ".join(f"{part_name(p.part)} {_hz(p.freq)}" for p in r.high_parts)
     pad = " " * 29
     rows = [
         f"  {corner_sentence('f_low', r.f_low, r.low_by)}",
         f"    short-circuit estimates  {low}",
-        f"{pad}sum {_hz(r.f_low_estimate)}",
+        *([f"{pad}sum {_hz(r.f_low_estimate)}"] if r.low_parts else []),
         f"  {corner_sentence('f_high', r.f_high, r.high_by)}",
         f"    open-circuit estimates   {high}",
         f"{pad}1/(2πΣτ) {_hz(r.f_high_estimate)}; Miller (input pole) {_hz(r.f_high_miller)}",
