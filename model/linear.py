@@ -11,7 +11,8 @@ import numpy as np
 from .linalg import solve_batched
 from .netlist import Bjt, Capacitor, Netlist
 from .plan import AC, DC, MIDBAND, Plan, plan_for
-from .solve import OperatingPoint, admittance_values, assemble_linear, node_dict, terminal_conductance
+from .assembly import admittance_values, assemble_linear, node_dict, terminal_conductance
+from .solve import OperatingPoint
 
 
 def _linearised(net: Netlist, op: OperatingPoint, plan: Plan, g, v):

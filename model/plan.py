@@ -73,6 +73,40 @@ class Plan:
     def node_terms(self):
         return _sparse(self.node_coef)
 
+    # The transistors as two-ports on their junctions, k transistors, forward
+    # sense before the polarity sign: junction voltages (VBE, VBC of each) are
+    # terminal voltages @ term_junction, and the currents into the terminals
+    # are junction_terms @ (IC, IB of each).
+    @cached_property
+    def term_junction(self) -> np.ndarray:
+        """(3k, 2k): VBE = vb − ve, VBC = vb − vc from (c, b, e) of each transistor."""
+        k = self.term_pick.shape[1] // 3
+        m = np.zeros((3 * k, 2 * k))
+        for t in range(k):
+            m[3 * t + 1, 2 * t], m[3 * t + 2, 2 * t] = 1.0, -1.0
+            m[3 * t + 1, 2 * t + 1], m[3 * t, 2 * t + 1] = 1.0, -1.0
+        return m
+
+    @cached_property
+    def junction_terms(self) -> np.ndarray:
+        """(3k, 2k): currents into (c, b, e) are (IC, IB, −IC − IB)."""
+        k = self.term_pick.shape[1] // 3
+        m = np.zeros((3 * k, 2 * k))
+        for t in range(k):
+            m[3 * t, 2 * t], m[3 * t + 1, 2 * t + 1] = 1.0, 1.0
+            m[3 * t + 2, 2 * t], m[3 * t + 2, 2 * t + 1] = -1.0, -1.0
+        return m
+
+    @cached_property
+    def port_junction(self) -> np.ndarray:
+        """(n_ports, 2k): junction voltages from the port unknowns."""
+        return self.term_pick[: self.n_ports] @ self.term_junction
+
+    @cached_property
+    def port_drive(self) -> np.ndarray:
+        """(n_ports, 2k): where each junction current enters the port equations."""
+        return self.term_pick[: self.n_ports] @ self.junction_terms
+
 
 def plan_for(net: Netlist, kind: str) -> Plan:
     """The (cached) plan of ``net``'s shape for a DC, MIDBAND or AC analysis."""

@@ -21,7 +21,7 @@ import numpy as np
 
 from .device import critical_voltage
 from .linear import small_signal
-from .solve import OperatingPoint, junction_voltages, operating_point
+from .solve import OperatingPoint, junction_voltages, operating_sweep
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
@@ -196,10 +196,9 @@ def _predictor(stage: StageCircuit, op: OperatingPoint):
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
     """The held circuit solved at each EMF (V); ``junctions`` is one start for
     all points (transistor, 2) or one per point (point, transistor, 2)."""
-    net = held.repeat(emf.size).with_source(EMF, emf)
     if junctions.ndim == 2:
         junctions = np.repeat(junctions[None], emf.size, axis=0)
-    return operating_point(net, start=junctions)
+    return operating_sweep(held, EMF, emf, start=junctions)
 
 
 def _bracket(active, centre, step):
