@@ -112,10 +112,10 @@ def frequency_sweep(
     return {node: volts.reshape(batch, count) for node, volts in nodes.items()}
 
 
-#: A low-rank update whose correction cancels the part it removes to within
-#: this fraction is redone as a direct solve: the update's relative error is
-#: about the float epsilon over this ratio, so it stays below 1e-9.
-_CANCELLATION = 1e-6
+#: A row whose low-rank system keeps less than this fraction of a removed
+#: part's 1/g is redone as a direct solve: the correction's relative error is
+#: then at most a few float epsilons over this ratio, about 1e-12.
+_CANCELLATION = 1e-3
 
 
 class Factored:

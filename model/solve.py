@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import device
+from . import device, kernel
 from .assembly import admittance_values, assemble_linear, node_dict
 from .linalg import solve_batched
 from .netlist import GROUND, Bjt, Netlist, Resistor
@@ -103,8 +103,13 @@ def operating_sweep(net: Netlist, source: str, volts, start=None, max_iter: int 
     ``start`` is as for :func:`operating_point`, one row per point.
     """
     volts = np.asarray(volts, dtype=float).reshape(net.batch, -1)
-    pair = net.repeat(2).with_source(source, np.tile([0.0, 1.0], net.batch))
-    return _solve(_reduce(pair).along(volts), start, max_iter)
+    plan = plan_for(net, DC)
+    g, v = admittance_values(net, plan)
+    v = np.repeat(v, 2, axis=0)
+    v[:, plan.constraints.index(source)] = np.tile([0.0, 1.0], net.batch)
+    dev = _stack_params([q.params for q in net.of_type(Bjt)])
+    dev = device.DeviceParams(*(np.repeat(getattr(dev, f), 2, axis=0) for f in _PARAM_FIELDS))
+    return _solve(_reduce(net, np.repeat(g, 2, axis=0), v, dev).along(volts), start, max_iter)
 
 
 @dataclass(frozen=True)
@@ -151,21 +156,24 @@ class _Reduced:
                         mix(self.u0), same(self.r), dev, same(self.sign))
 
 
-def _reduce(net: Netlist) -> _Reduced:
+def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
+    """Assemble and reduce ``net``, or the rows given by admittances g,
+    constraint voltages v and device parameters dev of its shape."""
     plan = plan_for(net, DC)
     bjts = net.of_type(Bjt)
     # A part at the edge of float range (a 1e-300 Ω resistor is "valid") may
     # overflow; such a row comes out non-finite and is flagged, not raised.
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        g, v = admittance_values(net, plan)
+        if g is None:
+            g, v = admittance_values(net, plan)
+            dev = _stack_params([q.params for q in bjts])
         a, b = assemble_linear(plan, g, v)
         y, j, back = _schur(a, b, plan.n_ports)
-        dev = _stack_params([q.params for q in bjts])
         sign = np.repeat(dev.sign, 2, axis=1)
         # One solve of the ports for the network's own drive and for a unit
         # current in each junction: every Newton iteration then only multiplies.
         drive = solve_batched(y, np.concatenate([j[:, :, None], np.broadcast_to(
-            plan.port_drive, (net.batch, *plan.port_drive.shape))], axis=2))
+            plan.port_drive, (g.shape[0], *plan.port_drive.shape))], axis=2))
         t_offset = v @ plan.term_coef
         u0 = sign * (drive[:, :, 0] @ plan.port_junction + t_offset @ plan.term_junction)
         r = sign[:, :, None] * _left(plan.port_junction.T, drive[:, :, 1:]) * sign[:, None, :]
@@ -217,7 +225,23 @@ def _terminal_currents(s, st: device.JunctionState):
 
 
 def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
-    """Newton on F(u) = u − u₀ + R·i(u) for every batch row.
+    """Newton on F(u) = u − u₀ + R·i(u) for every batch row: the compiled
+    kernel of :mod:`model.kernel` once it is loaded, else :func:`newton_numpy`.
+    Returns (u (batch, k, 2), converged, iterations)."""
+    fn = kernel.ready()
+    if fn is None:
+        return newton_numpy(r, u0, dev, u, max_iter)
+    u = np.array(u, dtype=float)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        v_crit = device.critical_voltage(dev)
+    done, iterations = fn(np.ascontiguousarray(r), np.ascontiguousarray(u0),
+                          *(np.ascontiguousarray(getattr(dev, f)) for f in ("i_s", "beta_f", "beta_r", "va", "vt")),
+                          np.ascontiguousarray(v_crit), u, _V_TOL, max_iter)
+    return u, done, int(iterations)
+
+
+def newton_numpy(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
+    """Newton on F(u) = u − u₀ + R·i(u) for every batch row, in numpy.
 
     r (batch, 2k, 2k), u0 (batch, 2k) in V and Ω; dev holds (batch, k)
     parameters; u (batch, k, 2) the first junction voltages.  Rows that have
