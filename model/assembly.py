@@ -56,6 +56,16 @@ def _sparse_product(values, terms, width):
     return out
 
 
+def index_dot(x, c):
+    """x (b, p) @ c (p, q) for a constant c of a few ±1 entries (a plan's
+    index matrix), one whole-batch operation per entry: a BLAS product of
+    such thin matrices costs far more than the arithmetic."""
+    out = np.zeros((x.shape[0], c.shape[1]), dtype=np.result_type(x, c))
+    for i, j in zip(*np.nonzero(c)):
+        out[:, j] += c[i, j] * x[:, i]
+    return out
+
+
 def node_dict(plan: Plan, x, v):
     """Node name → voltage (batch,), ground included, from the unknowns x."""
     if x.shape[0] < SPARSE_FROM:

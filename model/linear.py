@@ -11,7 +11,7 @@ import numpy as np
 from .linalg import solve_batched
 from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
 from .plan import AC, DC, MIDBAND, Plan, plan_for
-from .assembly import admittance_values, assemble_linear, node_dict, terminal_conductance
+from .assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
 from .solve import OperatingPoint
 
 
@@ -23,8 +23,9 @@ def _linearised(net: Netlist, op: OperatingPoint, plan: Plan, g, v):
     bjts = net.of_type(Bjt)
     if bjts:
         g_t = terminal_conductance([op.states[q.name] for q in bjts])
-        a = a + (g_t.reshape(net.batch, -1) @ plan.term_spread).reshape(a.shape)
-        b = b - np.einsum("bts,bs->bt", g_t, v @ plan.term_coef) @ plan.term_pick.T
+        a = a + index_dot(g_t.reshape(net.batch, -1), plan.term_spread).reshape(a.shape)
+        if v.any():  # the terminals' known offsets: none when every source is zero
+            b = b - index_dot(np.einsum("bts,bs->bt", g_t, index_dot(v, plan.term_coef)), plan.term_pick.T)
     return a, b
 
 

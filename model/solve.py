@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import device, kernel
-from .assembly import admittance_values, assemble_linear, node_dict
+from .assembly import admittance_values, assemble_linear, index_dot, node_dict
 from .linalg import solve_batched
 from .netlist import GROUND, Bjt, Netlist, Resistor
 from .plan import DC, plan_for
@@ -174,8 +174,8 @@ def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
         # current in each junction: every Newton iteration then only multiplies.
         drive = solve_batched(y, np.concatenate([j[:, :, None], np.broadcast_to(
             plan.port_drive, (g.shape[0], *plan.port_drive.shape))], axis=2))
-        t_offset = v @ plan.term_coef
-        u0 = sign * (drive[:, :, 0] @ plan.port_junction + t_offset @ plan.term_junction)
+        t_offset = index_dot(v, plan.term_coef)
+        u0 = sign * (index_dot(drive[:, :, 0], plan.port_junction) + index_dot(t_offset, plan.term_junction))
         r = sign[:, :, None] * _left(plan.port_junction.T, drive[:, :, 1:]) * sign[:, None, :]
     return _Reduced(plan, bjts, a, b, g, v, back, drive, u0, r, dev, sign)
 
@@ -211,8 +211,8 @@ def _params_of(dev: device.DeviceParams, k: int) -> device.DeviceParams:
 def _kcl_residual(plan, a, b, x, g, volts, signs, states):
     """Largest |KCL sum| over the free (super)nodes over the largest branch current."""
     into = np.stack([c for s, st in zip(signs, states.values()) for c in _terminal_currents(s, st)], axis=1)
-    r = _bmv(a, x) - b + into @ plan.term_pick.T
-    drops = np.stack([volts[n] for n in plan.nodes], axis=1) @ plan.adm_incidence
+    r = _bmv(a, x) - b + index_dot(into, plan.term_pick.T)
+    drops = index_dot(np.stack([volts[n] for n in plan.nodes], axis=1), plan.adm_incidence)
     scale = np.maximum(_row_max(np.abs(g * drops)), _row_max(np.abs(into)))
     worst = _row_max(np.abs(r))
     with np.errstate(invalid="ignore", divide="ignore"):
