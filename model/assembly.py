@@ -59,7 +59,10 @@ def _sparse_product(values, terms, width):
 def index_dot(x, c):
     """x (b, p) @ c (p, q) for a constant c of a few ±1 entries (a plan's
     index matrix), one whole-batch operation per entry: a BLAS product of
-    such thin matrices costs far more than the arithmetic."""
+    such thin matrices costs far more than the arithmetic, except on small
+    batches, where numpy's fixed cost per call dominates and one product wins."""
+    if x.shape[0] < SPARSE_FROM:
+        return x @ c
     out = np.zeros((x.shape[0], c.shape[1]), dtype=np.result_type(x, c))
     for i, j in zip(*np.nonzero(c)):
         out[:, j] += c[i, j] * x[:, i]
