@@ -107,7 +107,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
         coarse = _solve_at(held, grid, predict(grid))
         curve_out = coarse.voltages[stage.output] - out_q
         brackets = _brackets(coarse, grid)
-    edges, outs = _edges(held, stage, grid, brackets, curve_out, out_q, predict)
+    edges, outs = _edges(held, stage, grid, brackets, curve_out, out_q, _between(grid, coarse, predict))
     up = max(max(outs), 0.0)
     down = max(-min(outs), 0.0)
     return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
@@ -184,13 +184,33 @@ def _predictor(stage: StageCircuit, op: OperatingPoint):
     an edge does not start with a wildly forward-biased junction."""
     q = stage.net.element(TRANSISTOR)
     slope = np.stack(junction_voltages(q, small_signal(stage.net, op, excite={EMF: 1.0})), axis=-1)
-    ceiling = critical_voltage(q.params)[0]
+    # A saturating collector junction ends below the conducting emitter
+    # junction's voltage, so it starts no higher than the quiescent VBE.
+    crit = critical_voltage(q.params)[0]
+    ceiling = np.array([crit, min(crit, float(op.junctions[0, 0, 0]))])
 
     def predict(emf):
         u = op.junctions[0, 0] + np.outer(emf, slope[0])
         return np.minimum(u, ceiling)[:, None, :]
 
     return predict
+
+
+def _between(grid, coarse: OperatingPoint, predict):
+    """Newton starts warm from a solved sweep: at EMFs between its points, the
+    junction voltages of the nearest one.  (Interpolating would cut across the
+    kink at a region's edge, and a start on the kink's chord is a poor one.)"""
+    ok = coarse.converged
+
+    def start(emf):
+        if ok.sum() < 2:
+            return predict(emf)
+        x, u = grid[ok], coarse.junctions[ok]
+        right = np.clip(np.searchsorted(x, emf), 1, x.size - 1)
+        nearest = np.where(emf - x[right - 1] < x[right] - emf, right - 1, right)
+        return u[nearest]
+
+    return start
 
 
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
