@@ -15,8 +15,9 @@ How a netlist becomes equations
 * Nodes with no conductive path to ground in this analysis (the load side of
   an unloaded coupling capacitor at DC) are held at 0 V; no current flows
   there, so the choice changes nothing else.
-* Transistor terminals are numbered first, so the DC solve can reduce the
-  linear network onto them (a Schur complement) once before Newton.
+* Transistor terminals are numbered first (``n_ports`` of them), and the
+  junction maps (``unknown_junction``, ``unknown_drive``) let the DC solve
+  reduce the linear network onto the junctions once before Newton.
 """
 
 from __future__ import annotations
@@ -98,14 +99,20 @@ class Plan:
         return m
 
     @cached_property
-    def port_junction(self) -> np.ndarray:
-        """(n_ports, 2k): junction voltages from the port unknowns."""
-        return self.term_pick[: self.n_ports] @ self.term_junction
+    def unknown_junction(self) -> np.ndarray:
+        """(n, 2k): junction voltages from the unknowns (before the offsets)."""
+        return self.term_pick @ self.term_junction
 
     @cached_property
-    def port_drive(self) -> np.ndarray:
-        """(n_ports, 2k): where each junction current enters the port equations."""
-        return self.term_pick[: self.n_ports] @ self.junction_terms
+    def unknown_drive(self) -> np.ndarray:
+        """(n, 2k): where each junction current enters the nodal equations."""
+        return self.term_pick @ self.junction_terms
+
+    @cached_property
+    def adm_unknown(self) -> np.ndarray:
+        """(n_adm, n): +1 at the unknown of an admittance's a end, −1 at its b
+        end; branch currents @ it are the currents leaving each (super)node."""
+        return self.adm_incidence.T @ self.node_pick.T
 
 
 def plan_for(net: Netlist, kind: str) -> Plan:

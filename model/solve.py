@@ -27,7 +27,7 @@ import numpy as np
 
 from . import device, kernel
 from .assembly import admittance_values, assemble_linear, index_dot, node_dict
-from .linalg import solve_batched
+from .linalg import solve_batched, solve_dominant
 from .netlist import GROUND, Bjt, Netlist, Resistor
 from .plan import DC, plan_for
 
@@ -116,20 +116,16 @@ def operating_sweep(net: Netlist, source: str, volts, start=None, max_iter: int 
 class _Reduced:
     """A batch's DC network assembled and reduced onto its junctions.
 
-    a, b, g, v: the nodal equations (see :mod:`model.assembly`);
-    back = (xb, xp): the unknowns beyond the ports are xb − xp·x_ports;
-    drive (batch, ports, 1 + 2k): the ports for the network's own sources
+    g, v: admittances and constraint voltages (see :mod:`model.assembly`);
+    drive (batch, n, 1 + 2k): the unknowns for the network's own sources
     (column 0) and for a unit current into each junction (the rest);
     u0, r: the junction equations u = u0 − r·i(u), sign included.
     """
 
     plan: object
     bjts: list
-    a: np.ndarray
-    b: np.ndarray
     g: np.ndarray
     v: np.ndarray
-    back: tuple | None
     drive: np.ndarray
     u0: np.ndarray
     r: np.ndarray
@@ -149,9 +145,8 @@ class _Reduced:
         def same(x):
             return np.repeat(x[0::2], m, axis=0)
 
-        back = None if self.back is None else (mix(self.back[0]), same(self.back[1]))
         dev = device.DeviceParams(*(same(getattr(self.dev, f)) for f in _PARAM_FIELDS))
-        return _Reduced(self.plan, self.bjts, same(self.a), mix(self.b), same(self.g), mix(self.v), back,
+        return _Reduced(self.plan, self.bjts, same(self.g), mix(self.v),
                         np.concatenate([mix(self.drive[:, :, :1]), same(self.drive[:, :, 1:])], axis=2),
                         mix(self.u0), same(self.r), dev, same(self.sign))
 
@@ -168,16 +163,16 @@ def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
             g, v = admittance_values(net, plan)
             dev = _stack_params([q.params for q in bjts])
         a, b = assemble_linear(plan, g, v)
-        y, j, back = _schur(a, b, plan.n_ports)
         sign = np.repeat(dev.sign, 2, axis=1)
-        # One solve of the ports for the network's own drive and for a unit
-        # current in each junction: every Newton iteration then only multiplies.
-        drive = solve_batched(y, np.concatenate([j[:, :, None], np.broadcast_to(
-            plan.port_drive, (g.shape[0], *plan.port_drive.shape))], axis=2))
+        # One solve for the network's own drive and for a unit current in each
+        # junction: every Newton iteration then only multiplies 2k × 2k.
+        # The linear part alone: diagonally dominant, no pivoting needed.
+        drive = solve_dominant(a, np.concatenate([b[:, :, None], np.broadcast_to(
+            plan.unknown_drive, (g.shape[0], *plan.unknown_drive.shape))], axis=2))
         t_offset = index_dot(v, plan.term_coef)
-        u0 = sign * (index_dot(drive[:, :, 0], plan.port_junction) + index_dot(t_offset, plan.term_junction))
-        r = sign[:, :, None] * _left(plan.port_junction.T, drive[:, :, 1:]) * sign[:, None, :]
-    return _Reduced(plan, bjts, a, b, g, v, back, drive, u0, r, dev, sign)
+        u0 = sign * (index_dot(drive[:, :, 0], plan.unknown_junction) + index_dot(t_offset, plan.term_junction))
+        r = sign[:, :, None] * _left(plan.unknown_junction.T, drive[:, :, 1:]) * sign[:, None, :]
+    return _Reduced(plan, bjts, g, v, drive, u0, r, dev, sign)
 
 
 def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
@@ -191,13 +186,12 @@ def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
         # The ports from one last linearised step, as a nodal Newton would
         # leave them: their error is then second order in that step.
         _, i = newton_step(red.r, red.u0, red.dev, u)
-        x_ports = red.drive[:, :, 0] - _bmv(red.drive[:, :, 1:], red.sign * i)
-    x_ports = np.where(np.isfinite(x_ports), x_ports, 0.0)
-    x = _assemble(x_ports, red.back)
+        x = red.drive[:, :, 0] - _bmv(red.drive[:, :, 1:], red.sign * i)
+    x = np.where(np.isfinite(x), x, 0.0)
     volts = node_dict(red.plan, x, red.v)
     per = [_params_of(red.dev, k) for k in range(len(red.bjts))]
     states = {q.name: device.evaluate(p, *junction_voltages(q, volts, p.sign)) for q, p in zip(red.bjts, per)}
-    residual = _kcl_residual(red.plan, red.a, red.b, x, red.g, volts, [p.sign for p in per], states)
+    residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
     junctions = np.stack([np.stack(junction_voltages(q, volts, p.sign), axis=-1) for q, p in zip(red.bjts, per)], axis=1)
     return OperatingPoint(volts, states, converged, iterations, residual, junctions)
@@ -208,12 +202,14 @@ def _params_of(dev: device.DeviceParams, k: int) -> device.DeviceParams:
     return device.DeviceParams(*(getattr(dev, f)[:, k] for f in _PARAM_FIELDS))
 
 
-def _kcl_residual(plan, a, b, x, g, volts, signs, states):
-    """Largest |KCL sum| over the free (super)nodes over the largest branch current."""
+def _kcl_residual(plan, g, volts, signs, states):
+    """Largest |KCL sum| over the free (super)nodes over the largest branch
+    current, summed from the branch currents at the node voltages found."""
     into = np.stack([c for s, st in zip(signs, states.values()) for c in _terminal_currents(s, st)], axis=1)
-    r = _bmv(a, x) - b + index_dot(into, plan.term_pick.T)
     drops = index_dot(np.stack([volts[n] for n in plan.nodes], axis=1), plan.adm_incidence)
-    scale = np.maximum(_row_max(np.abs(g * drops)), _row_max(np.abs(into)))
+    branch = g * drops
+    r = index_dot(branch, plan.adm_unknown) + index_dot(into, plan.term_pick.T)
+    scale = np.maximum(_row_max(np.abs(branch)), _row_max(np.abs(into)))
     worst = _row_max(np.abs(r))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(scale > 0, worst / scale, worst)
@@ -395,44 +391,12 @@ def _bmv(m, x):
     return out
 
 
-def _bmm(m, x):
-    """m (b, n, p) @ x (b, p, q) for every batch row b."""
-    out = np.zeros((m.shape[0], m.shape[1], x.shape[2]), dtype=np.result_type(m, x))
-    for j in range(x.shape[1]):
-        out += m[:, :, j, None] * x[:, None, j, :]
-    return out
-
-
 def _left(c, x):
     """A constant c (n, p) times x (b, p, q) for every batch row b."""
     out = np.zeros((x.shape[0], c.shape[0], x.shape[2]))
     for i, j in zip(*np.nonzero(c)):
         out[:, i] += c[i, j] * x[:, j]
     return out
-
-
-def _schur(a, b, n_ports):
-    """Reduce A x = b onto its first n_ports unknowns.
-
-    Returns (Y, J, back) with Y x_p = J for the ports and back = (Xb, Xp) so
-    that the other unknowns are Xb − Xp x_p.
-    """
-    if a.shape[-1] == n_ports:
-        return a, b, None
-    app, api = a[:, :n_ports, :n_ports], a[:, :n_ports, n_ports:]
-    aip, aii = a[:, n_ports:, :n_ports], a[:, n_ports:, n_ports:]
-    sol = solve_batched(aii, np.concatenate([b[:, n_ports:, None], aip], axis=2))
-    xb, xp = sol[:, :, 0], sol[:, :, 1:]
-    y = app - _bmm(api, xp)
-    j = b[:, :n_ports] - _bmv(api, xb)
-    return y, j, (xb, xp)
-
-
-def _assemble(x_ports, back):
-    if back is None:
-        return x_ports
-    xb, xp = back
-    return np.concatenate([x_ports, xb - _bmv(xp, x_ports)], axis=1)
 
 
 def branch_currents(net: Netlist, v: dict, states: dict) -> dict:
