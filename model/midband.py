@@ -16,7 +16,7 @@ import numpy as np
 
 from .linear import Factored
 from .solve import OperatingPoint
-from .topologies import BIAS, EMF, LOAD, SOURCE, TRANSISTOR, StageCircuit
+from .topologies import BIAS, LOAD, SOURCE, TRANSISTOR, StageCircuit
 
 
 @dataclass(frozen=True)

@@ -28,7 +28,7 @@ import numpy as np
 from . import device, kernel
 from .assembly import admittance_values, assemble_linear, index_dot, node_dict
 from .linalg import solve_batched, solve_dominant
-from .netlist import GROUND, Bjt, Netlist, Resistor
+from .netlist import Bjt, Netlist
 from .plan import DC, plan_for
 
 #: Newton stops when no node moves by more than this (V) and no junction was
@@ -98,7 +98,7 @@ def operating_sweep(net: Netlist, source: str, volts, start=None, max_iter: int 
 
     Rows come design by design, m points each, as ``net.repeat(m)`` with the
     source set would give; the answer is the same.  The network is reduced
-    once per design: the ports' drive is affine in a source's voltage, so it
+    once per design: the network's drive is affine in a source's voltage, so it
     is found at 0 V and 1 V and every point is a weighted sum of the two.
     ``start`` is as for :func:`operating_point`, one row per point.
     """
@@ -183,7 +183,7 @@ def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
         u = np.array(start, dtype=float).reshape(batch, len(red.bjts), 2)
     u, done, iterations = newton(red.r, red.u0, red.dev, u, max_iter)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        # The ports from one last linearised step, as a nodal Newton would
+        # The unknowns from one last linearised step, as a nodal Newton would
         # leave them: their error is then second order in that step.
         _, i = newton_step(red.r, red.u0, red.dev, u)
         x = red.drive[:, :, 0] - _bmv(red.drive[:, :, 1:], red.sign * i)
@@ -397,34 +397,3 @@ def _left(c, x):
     for i, j in zip(*np.nonzero(c)):
         out[:, i] += c[i, j] * x[:, j]
     return out
-
-
-def branch_currents(net: Netlist, v: dict, states: dict) -> dict:
-    """DC current of each resistor (a → b) and each transistor terminal (into it), A."""
-    out = {}
-    for r in net.of_type(Resistor):
-        out[r.name] = (v[r.a] - v[r.b]) / r.r
-    for q in net.of_type(Bjt):
-        st, s = states[q.name], q.params.sign
-        out[q.name + ".c"] = s * st.ic
-        out[q.name + ".b"] = s * st.ib
-        out[q.name + ".e"] = -s * (st.ic + st.ib)
-    return out
-
-
-def node_outflows(net: Netlist, v: dict, states: dict) -> dict:
-    """Current (A) leaving each node through resistors and transistors.
-
-    For a node driven by one voltage source this is the current that source
-    delivers; at any other node KCL makes it zero.
-    """
-    currents = branch_currents(net, v, states)
-    total = {n: np.zeros(net.batch) for n in (*net.nodes, GROUND)}
-    for r in net.of_type(Resistor):
-        total[r.a] = total[r.a] + currents[r.name]
-        total[r.b] = total[r.b] - currents[r.name]
-    for q in net.of_type(Bjt):
-        for t in "cbe":
-            node = getattr(q, t)
-            total[node] = total[node] + currents[f"{q.name}.{t}"]
-    return total

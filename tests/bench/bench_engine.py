@@ -196,7 +196,7 @@ def single_parts(design) -> None:
     }
     for name, fn in parts.items():
         fn()
-        print(f"single_{name}_median: {median_ms(fn, 30):.2f} ms")
+        print(f"single_{name}_median: {median_ms(fn, 30):.3f} ms")
     print(f"single_quick_analysis_median: {median_ms(lambda: analyse(design, large_signal=False), 30):.2f} ms")
 
 
