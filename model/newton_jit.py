@@ -15,20 +15,23 @@ from numba import njit
 from .device import _EXP_LIMIT
 
 
-
 @njit(cache=True)
 def exp_limited(x):
+    """exp(x) continued linearly above the limit, and its slope (device._exp_limited)."""
     slope = math.exp(min(x, _EXP_LIMIT))
     return slope * (1.0 + max(x - _EXP_LIMIT, 0.0)), slope
 
+
 @njit(cache=True)
 def limit(v_new, v_old, vt, v_crit):
+    """One junction's step limited as in device.limit_junction; (voltage, limited)."""
     if not (v_new > v_crit and abs(v_new - v_old) > 2.0 * vt):
         return v_new, False
     if v_old > 0.0:
         arg = 1.0 + (v_new - v_old) / vt
         return (v_old + vt * math.log(max(arg, 1e-300)) if arg > 0.0 else v_crit), True
     return vt * math.log(max(v_new / vt, 1e-300)), True
+
 
 @njit(cache=True)
 def eliminate(m, x):
@@ -54,8 +57,11 @@ def eliminate(m, x):
             acc -= m[k, j] * x[j]
         x[k] = acc / m[k, k]
 
+
 @njit(cache=True)
 def newton_rows(r, u0, i_s, beta_f, beta_r, va, vt, v_crit, u, tol, max_iter):
+    """Newton on u − u₀ + R·i(u) = 0 row by row, u (batch, k, 2) updated in
+    place; parameters (batch, k).  Returns (converged per row, most iterations)."""
     batch, count = i_s.shape
     n = 2 * count
     done = np.zeros(batch, dtype=np.bool_)
@@ -111,6 +117,7 @@ def newton_rows(r, u0, i_s, beta_f, beta_r, va, vt, v_crit, u, tol, max_iter):
                 break
         used = max(used, it)
     return done, used
+
 
 def warm_up():
     """Compile now (or read the cache), so a caller that got the kernel never waits."""
