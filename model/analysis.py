@@ -19,7 +19,7 @@ from .plain_json import plain
 from .power import dissipation
 from .response import POINTS_PER_DECADE, Response, device_capacitance, response as _response
 from .solve import operating_point
-from .topologies import TRANSISTOR, build, shape_of
+from .topologies import TRANSISTOR, StageCircuit, build, shape_of
 from .transfer import LargeSignal, region_of
 from .transfer import large_signal as _large_signal
 
@@ -148,14 +148,14 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     t = design.transistor
     variants = [design, _with_beta(design, t.beta / 2.0), _with_beta(design, t.beta * 2.0)]
     stage = build(design.topology, design_values(variants))
-    op3 = operating_point(stage.net)
+    # The β/2 and 2β variants ride along in the same batch: their midband
+    # costs next to nothing there, and only their IC is used.
+    op3, dev, mid = dc_midband(stage, np.full(3, design.source.rs))
     if not op3.converged[0]:
         raise SolveError("the operating point did not converge",
                          f"KCL residual {op3.residual[0]:.1e} after {op3.iterations} iterations")
     nominal = replace(stage, net=stage.net.take(np.array([0])))
     op = op3.take(np.array([0]))
-    dev = device_small_signal(op)
-    mid = midband(nominal, op, np.array([design.source.rs]))
     st = op.states[TRANSISTOR]
     vbe, vbc = float(op.junctions[0, 0, 0]), float(op.junctions[0, 0, 1])
     region = str(region_of(st.ic, op.junctions[:, 0, 1])[0])
@@ -206,6 +206,16 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     )
 
 
+def dc_midband(stage: StageCircuit, rs: np.ndarray):
+    """The operating point, device small-signal parameters and midband figures
+    of every row of a built stage: the one DC-and-midband path of both
+    :func:`analyse` and :func:`analyse_batch`.  ``rs`` (Ω) per row."""
+    op = operating_point(stage.net)
+    # Rows that did not converge carry garbage; they are flagged, not warned about.
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return op, device_small_signal(op), midband(stage, op, rs)
+
+
 def _with_beta(design: Design, beta: float) -> Design:
     return replace(design, transistor=replace(design.transistor, beta=beta))
 
@@ -245,9 +255,7 @@ def analyse_batch(topology: str, values: dict) -> BatchFigures:
     for g in np.unique(group):
         rows = np.flatnonzero(group == g)
         stage = build(topology, {k: v[rows] for k, v in full.items()})
-        op = operating_point(stage.net)
-        dev = device_small_signal(op)
-        mid = midband(stage, op, full["source.rs"][rows])
+        op, dev, mid = dc_midband(stage, full["source.rs"][rows])
         st = op.states[TRANSISTOR]
         vbe, vbc = op.junctions[:, 0, 0], op.junctions[:, 0, 1]
         parts[g] = (rows, dict(

@@ -41,6 +41,20 @@ def solve_batched(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return x[..., 0] if vector else x
 
 
+def solve_dominant(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """:func:`solve_batched` for diagonally dominant matrices (the nodal
+    matrix of a network of positive resistors to known nodes): elimination
+    without pivoting is stable there (Golub & Van Loan, *Matrix
+    Computations*, on diagonally dominant systems, from memory; the nodal
+    matrix is symmetric, so dominant by rows and by columns alike), so big
+    batches skip the pivot search."""
+    if a.shape[0] < _LAPACK_BELOW or a.shape[-1] <= 3:
+        return solve_batched(a, b)
+    vector = b.ndim == 2
+    x = _eliminate(a, b[..., None] if vector else b, pivot=False)
+    return x[..., 0] if vector else x
+
+
 def _lapack(a, rhs):
     try:
         return np.linalg.solve(a, rhs)
@@ -79,15 +93,16 @@ def _cofactor(a, rhs):
         return np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)], axis=1)
 
 
-def _eliminate(a, rhs):
-    """Gaussian elimination with partial pivoting, vectorised over the batch."""
+def _eliminate(a, rhs, pivot=True):
+    """Gaussian elimination (with partial pivoting unless told otherwise),
+    vectorised over the batch."""
     n = a.shape[-1]
     dtype = np.result_type(a, rhs)
     # Entry-major layout makes every step below a contiguous whole-batch operation.
-    m = np.concatenate([a, rhs], axis=-1).astype(dtype).transpose(1, 2, 0).copy()
+    m = np.concatenate([a, rhs], axis=-1).astype(dtype, copy=False).transpose(1, 2, 0).copy()
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for k in range(n):
-            if k < n - 1:
+            if pivot and k < n - 1:
                 _pivot(m, k)
             inv = 1.0 / m[k, k]
             for i in range(k + 1, n):

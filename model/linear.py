@@ -9,9 +9,10 @@ from __future__ import annotations
 import numpy as np
 
 from .linalg import solve_batched
-from .netlist import Bjt, Capacitor, Netlist
+from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
 from .plan import AC, DC, MIDBAND, Plan, plan_for
-from .solve import OperatingPoint, admittance_values, assemble_linear, node_dict, terminal_conductance
+from .assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
+from .solve import OperatingPoint
 
 
 def _linearised(net: Netlist, op: OperatingPoint, plan: Plan, g, v):
@@ -22,8 +23,9 @@ def _linearised(net: Netlist, op: OperatingPoint, plan: Plan, g, v):
     bjts = net.of_type(Bjt)
     if bjts:
         g_t = terminal_conductance([op.states[q.name] for q in bjts])
-        a = a + (g_t.reshape(net.batch, -1) @ plan.term_spread).reshape(a.shape)
-        b = b - np.einsum("bts,bs->bt", g_t, v @ plan.term_coef) @ plan.term_pick.T
+        a = a + index_dot(g_t.reshape(net.batch, -1), plan.term_spread).reshape(a.shape)
+        if v.any():  # the terminals' known offsets: none when every source is zero
+            b = b - index_dot(np.einsum("bts,bs->bt", g_t, index_dot(v, plan.term_coef)), plan.term_pick.T)
     return a, b
 
 
@@ -109,3 +111,150 @@ def frequency_sweep(
     x = solve_batched(a.reshape(batch * count, n, n), b.reshape(batch * count, n))
     nodes = node_dict(plan, x, np.repeat(v, count, axis=0))
     return {node: volts.reshape(batch, count) for node, volts in nodes.items()}
+
+
+#: A row whose low-rank system keeps less than this fraction of a removed
+#: part's 1/g is redone as a direct solve: the correction's relative error is
+#: then at most a few float epsilons over this ratio, about 1e-12.
+_CANCELLATION = 1e-3
+
+
+class Factored:
+    """The midband linearised network of ``net`` at ``op``, factored once,
+    with groups of parts added or removed as low-rank (Woodbury) corrections.
+
+    With Z = A⁻¹ and the changes written A' = A + U·C·Uᵀ (a column of U per
+    changed part: +1 and −1 at its two ends; C its ±conductance, an ideal
+    source or short an infinite one), the response to a test current e is
+    Z'e = Ze − ZU (C⁻¹ + UᵀZU)⁻¹ UᵀZe: a c × c solve for c changed parts.
+    U is two entries a column, so every product here is a few entries of Z.
+    Rows where the c × c system cancels (a removed part carried nearly all
+    the current) are solved directly on the changed netlist instead.
+    """
+
+    def __init__(self, net: Netlist, op: OperatingPoint):
+        self.net, self.op, self.variant = net, op, net
+        self.plan = plan_for(net, MIDBAND)
+        g, v = admittance_values(net, self.plan, excite={})
+        a, _ = _linearised(net, op, self.plan, g, v)
+        z = solve_batched(a, np.broadcast_to(np.eye(self.plan.n), a.shape).copy())
+        # Entry-major: each Z[i, j] below is then one contiguous (batch,) row.
+        self.z = np.ascontiguousarray(z.transpose(1, 2, 0))
+        self.parts, self.exact = (), True
+
+    def changed(self, full: Netlist, tag: str, *, remove: bool) -> "Factored":
+        """This network with ``full``'s parts tagged ``tag`` removed (they must
+        be in it) or added."""
+        out = object.__new__(Factored)
+        out.__dict__ = dict(self.__dict__)
+        group = [e for e in full.elements if tag in e.tags]
+        out.variant = self.variant.without(tag) if remove else self.variant.with_elements(*group)
+        parts = _conductances(group, self.plan)
+        if parts is None or (remove and any(np.isinf(g).any() for _, g in parts)):
+            out.exact = False
+            return out
+        batch = self.net.batch
+        with np.errstate(divide="ignore"):
+            out.parts = self.parts + tuple(
+                (ends, (-1.0 if remove else 1.0) / np.broadcast_to(np.asarray(g, dtype=float), (batch,)), remove)
+                for ends, g in parts if ends[0] != ends[1])
+        return out
+
+    def _z(self, i: int, j: int):
+        return self.z[i, j] if i >= 0 and j >= 0 else 0.0
+
+    def _zu(self, i: int, ends):
+        """(Z·U)[i] for one column of U."""
+        return self._z(i, ends[0]) - self._z(i, ends[1])
+
+    def response(self, into: str):
+        """node → voltage (batch,) for 1 A into node ``into``; 0 at known nodes."""
+        batch = self.z.shape[2]
+        j = self.plan.index.get(into, -1)
+        if not self.exact or j < 0:
+            return self._direct(into, np.arange(batch), None)
+        parts = self.parts
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            s = [[self._zu(ends[0], other) - self._zu(ends[1], other) + (cinv if k == m else 0.0)
+                  for m, (other, _, _) in enumerate(parts)] for k, (ends, cinv, _) in enumerate(parts)]
+            y = [self._z(ends[0], j) - self._z(ends[1], j) for ends, _, _ in parts]
+            coef = _small_solve(s, y, batch)
+            bad = np.zeros(batch, dtype=bool)
+            for k, (_, cinv, removed) in enumerate(parts):
+                bad |= ~np.isfinite(coef[k])
+                if removed:
+                    bad |= np.abs(s[k][k]) < _CANCELLATION * np.abs(cinv)
+
+        def at(node: str):
+            i = self.plan.index.get(node, -1)
+            if i < 0:
+                return np.zeros(batch)
+            out = self.z[i, j] - sum((self._zu(i, ends) * c for (ends, _, _), c in zip(parts, coef)), 0.0)
+            return np.broadcast_to(out, (batch,))
+
+        if bad.any():
+            return self._direct(into, np.flatnonzero(bad), at)
+        return at
+
+    def _direct(self, into, rows, fast):
+        """The rows ``rows`` solved directly on the changed netlist."""
+        sol = small_signal(self.variant.take(rows), self.op.take(rows), inject={into: 1.0})
+        if fast is None:
+            return lambda node: sol[node]
+
+        def at(node: str):
+            out = np.array(fast(node), dtype=float)
+            out[rows] = sol[node]
+            return out
+
+        return at
+
+
+def _small_solve(s, y, batch):
+    """Solve the c × c system s·x = y of (batch,) entries, c ≤ 2 in closed form."""
+    c = len(y)
+    s = [[np.broadcast_to(e, (batch,)) for e in row] for row in s]
+    if c == 0:
+        return []
+    if c == 1:
+        return [y[0] / s[0][0]]
+    if c == 2:
+        det = s[0][0] * s[1][1] - s[0][1] * s[1][0]
+        return [(s[1][1] * y[0] - s[0][1] * y[1]) / det, (s[0][0] * y[1] - s[1][0] * y[0]) / det]
+    m = np.stack([np.stack(row, axis=-1) for row in s], axis=1)
+    x = solve_batched(m, np.stack([np.broadcast_to(v, (batch,)) for v in y], axis=-1))
+    return [x[:, k] for k in range(c)]
+
+
+def _conductances(group, plan: Plan):
+    """((unknown at a, unknown at b), conductance S) for each part of a group
+    at midband (−1 for a known node), or None if some part cannot be written so.  A source
+    that ties a node the plan lacks onto one it has is a series joint, not a
+    part; every other ideal source is an infinite conductance (a short)."""
+    present = set(plan.nodes) | {GROUND}
+    tie = {}
+    parts = []
+    for e in group:
+        if isinstance(e, VoltageSource):
+            ends = (e.plus, e.minus)
+            missing = [p for p in ends if p not in present]
+            if len(missing) == 1:
+                tie[missing[0]] = ends[1] if missing[0] == ends[0] else ends[0]
+            elif not missing:
+                parts.append((ends, np.inf))
+            else:
+                return None
+        elif isinstance(e, Resistor):
+            parts.append(((e.a, e.b), 1.0 / e.r))
+        elif isinstance(e, Capacitor):
+            if e.coupling:
+                parts.append(((e.a, e.b), np.inf))
+        else:
+            return None
+    out = []
+    for (a, b), g in parts:
+        a, b = tie.get(a, a), tie.get(b, b)
+        if a not in present or b not in present or {a, b} & plan.floating:
+            return None
+        out.append(((plan.index.get(a, -1), plan.index.get(b, -1)), g))
+    return out

@@ -1,8 +1,11 @@
 """Midband small-signal figures from the linearised nodal solution.
 
 Midband: coupling and bypass capacitors are short circuits, load and device
-capacitances are open.  Each figure is one linear solve of the whole
-linearised circuit with a test current, so no topology formula is assumed.
+capacitances are open.  Each figure is the whole linearised circuit's
+response to a test current, so no topology formula is assumed: the circuit
+without its source is factored once, and removing the load or the bias
+divider, or putting the source resistance back, are low-rank corrections
+(see :class:`model.linear.Factored`).
 """
 
 from __future__ import annotations
@@ -11,9 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .linear import small_signal
+from .linear import Factored
 from .solve import OperatingPoint
-from .topologies import BIAS, EMF, LOAD, SOURCE, TRANSISTOR, StageCircuit
+from .topologies import BIAS, LOAD, SOURCE, TRANSISTOR, StageCircuit
 
 
 @dataclass(frozen=True)
@@ -57,25 +60,26 @@ def midband(stage: StageCircuit, op: OperatingPoint, rs: np.ndarray) -> Midband:
     ``rs`` is the source resistance (Ω) used to divide the source EMF.
     """
     net = stage.net
-    no_source = net.without(SOURCE)
+    base = Factored(net.without(SOURCE), op)
     # Driving the input terminal with a test current: rin and the terminal gain.
-    loaded = small_signal(no_source, op, inject={stage.input: 1.0})
-    unloaded = small_signal(no_source.without(LOAD), op, inject={stage.input: 1.0})
+    loaded = base.response(stage.input)
+    unloaded = base.changed(net, LOAD, remove=True).response(stage.input)
     # Looking into the base alone: bias divider and source removed.
-    base = small_signal(no_source.without(BIAS), op, inject={stage.base: 1.0})
+    at_base = base.changed(net, BIAS, remove=True).response(stage.base)
     # Looking back into the output: EMF at zero with rs in place, load removed.
-    back = small_signal(net.without(LOAD), op, inject={stage.output: 1.0}, excite={EMF: 0.0})
-    rin = loaded[stage.input]
-    av_loaded = loaded[stage.output] / rin
+    back = base.changed(net, LOAD, remove=True).changed(net, SOURCE, remove=False).response(stage.output)
+    rin = loaded(stage.input)
+    av_loaded = loaded(stage.output) / rin
     with np.errstate(divide="ignore", invalid="ignore"):
         av_source = av_loaded * rin / (rin + rs)
+        av_open = unloaded(stage.output) / unloaded(stage.input)
     return Midband(
-        av_open=unloaded[stage.output] / unloaded[stage.input],
+        av_open=av_open,
         av_loaded=av_loaded,
         av_source=av_source,
         rin=rin,
-        rin_base=base[stage.base],
-        rout=back[stage.output],
+        rin_base=at_base(stage.base),
+        rout=back(stage.output),
     )
 
 

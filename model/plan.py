@@ -15,8 +15,9 @@ How a netlist becomes equations
 * Nodes with no conductive path to ground in this analysis (the load side of
   an unloaded coupling capacitor at DC) are held at 0 V; no current flows
   there, so the choice changes nothing else.
-* Transistor terminals are numbered first, so the DC solve can reduce the
-  linear network onto them (a Schur complement) once before Newton.
+* Transistor terminals are numbered first (``n_ports`` of them), and the
+  junction maps (``unknown_junction``, ``unknown_drive``) let the DC solve
+  reduce the linear network onto the junctions once before Newton.
 """
 
 from __future__ import annotations
@@ -72,6 +73,46 @@ class Plan:
     @cached_property
     def node_terms(self):
         return _sparse(self.node_coef)
+
+    # The transistors as two-ports on their junctions, k transistors, forward
+    # sense before the polarity sign: junction voltages (VBE, VBC of each) are
+    # terminal voltages @ term_junction, and the currents into the terminals
+    # are junction_terms @ (IC, IB of each).
+    @cached_property
+    def term_junction(self) -> np.ndarray:
+        """(3k, 2k): VBE = vb − ve, VBC = vb − vc from (c, b, e) of each transistor."""
+        k = self.term_pick.shape[1] // 3
+        m = np.zeros((3 * k, 2 * k))
+        for t in range(k):
+            m[3 * t + 1, 2 * t], m[3 * t + 2, 2 * t] = 1.0, -1.0
+            m[3 * t + 1, 2 * t + 1], m[3 * t, 2 * t + 1] = 1.0, -1.0
+        return m
+
+    @cached_property
+    def junction_terms(self) -> np.ndarray:
+        """(3k, 2k): currents into (c, b, e) are (IC, IB, −IC − IB)."""
+        k = self.term_pick.shape[1] // 3
+        m = np.zeros((3 * k, 2 * k))
+        for t in range(k):
+            m[3 * t, 2 * t], m[3 * t + 1, 2 * t + 1] = 1.0, 1.0
+            m[3 * t + 2, 2 * t], m[3 * t + 2, 2 * t + 1] = -1.0, -1.0
+        return m
+
+    @cached_property
+    def unknown_junction(self) -> np.ndarray:
+        """(n, 2k): junction voltages from the unknowns (before the offsets)."""
+        return self.term_pick @ self.term_junction
+
+    @cached_property
+    def unknown_drive(self) -> np.ndarray:
+        """(n, 2k): where each junction current enters the nodal equations."""
+        return self.term_pick @ self.junction_terms
+
+    @cached_property
+    def adm_unknown(self) -> np.ndarray:
+        """(n_adm, n): +1 at the unknown of an admittance's a end, −1 at its b
+        end; branch currents @ it are the currents leaving each (super)node."""
+        return self.adm_incidence.T @ self.node_pick.T
 
 
 def plan_for(net: Netlist, kind: str) -> Plan:

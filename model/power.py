@@ -6,7 +6,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .solve import OperatingPoint, branch_currents, node_outflows
+from .netlist import GROUND, Bjt, Resistor
+from .solve import OperatingPoint
 from .topologies import TRANSISTOR, StageCircuit
 
 
@@ -33,3 +34,34 @@ def dissipation(stage: StageCircuit, op: OperatingPoint) -> Dissipation:
     p_q = (vbe - vbc) * st.ic + vbe * st.ib
     i_supply = node_outflows(net, v, op.states)[stage.supply]
     return Dissipation(p_q, v[stage.supply] * i_supply, i_supply, p_res)
+
+
+def branch_currents(net: Netlist, v: dict, states: dict) -> dict:
+    """DC current of each resistor (a → b) and each transistor terminal (into it), A."""
+    out = {}
+    for r in net.of_type(Resistor):
+        out[r.name] = (v[r.a] - v[r.b]) / r.r
+    for q in net.of_type(Bjt):
+        st, s = states[q.name], q.params.sign
+        out[q.name + ".c"] = s * st.ic
+        out[q.name + ".b"] = s * st.ib
+        out[q.name + ".e"] = -s * (st.ic + st.ib)
+    return out
+
+
+def node_outflows(net: Netlist, v: dict, states: dict) -> dict:
+    """Current (A) leaving each node through resistors and transistors.
+
+    For a node driven by one voltage source this is the current that source
+    delivers; at any other node KCL makes it zero.
+    """
+    currents = branch_currents(net, v, states)
+    total = {n: np.zeros(net.batch) for n in (*net.nodes, GROUND)}
+    for r in net.of_type(Resistor):
+        total[r.a] = total[r.a] + currents[r.name]
+        total[r.b] = total[r.b] - currents[r.name]
+    for q in net.of_type(Bjt):
+        for t in "cbe":
+            node = getattr(q, t)
+            total[node] = total[node] + currents[f"{q.name}.{t}"]
+    return total

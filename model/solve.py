@@ -1,14 +1,22 @@
-"""The one nodal core: matrix assembly and the DC operating point by Newton.
-The linear solves of the circuit linearised at that point (midband, test
-currents, frequency sweeps) are in :mod:`model.linear` and share this assembly.
+"""The DC operating point: Newton on the transistor junctions of the
+linear network reduced onto them.
 
 Every topology is a builder that produces a :class:`~model.netlist.Netlist`;
 nothing here knows which topology it is solving.  The netlist's shape is
-compiled once into a :class:`~model.plan.Plan` (see there for how sources and
-floating nodes are eliminated); each solve then assembles its matrices by
-matrix products over the batch.  For the DC solve the linear network is
-reduced onto the transistor terminals once, so each Newton iteration solves
-a system the size of the transistor ports only.
+compiled once into a :class:`~model.plan.Plan` and its equations assembled by
+:mod:`model.assembly`.  The linear network is then reduced, once per design,
+onto the 2k junction voltages u (VBE, VBC of each of k transistors):
+
+    u = u₀ − R·i(u)
+
+where u₀ is what the network alone would put across the junctions, R
+(2k × 2k) the network's transfer resistances between the junction ports
+(polarity sign included) and i(u) the forward-sense (IC, IB) of each
+transistor.  Newton on F(u) = u − u₀ + R·i(u) has the Jacobian I + R·G(u)
+with G block-diagonal 2 × 2: each iteration is a few whole-array operations
+on contiguous (batch, 2k) arrays.  The iterates are those of Newton on the
+full nodal equations (the elimination of the linear part is exact), so the
+junction limiting and convergence behave as in a nodal solver.
 """
 
 from __future__ import annotations
@@ -17,24 +25,25 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import device
-from .linalg import solve_batched
-from .netlist import GROUND, Bjt, Netlist, Resistor
-from .plan import DC, Plan, plan_for
+from . import device, kernel
+from .assembly import admittance_values, assemble_linear, index_dot, node_dict
+from .linalg import solve_batched, solve_dominant
+from .netlist import Bjt, Netlist
+from .plan import DC, plan_for
 
 #: Newton stops when no node moves by more than this (V) and no junction was
 #: limited.  Convergence is quadratic, so the point after such a step is good to
 #: far better than this; the KCL residual check (1e-9) still guards the result.
 _V_TOL = 1e-9
-#: The emitter junction starts where it would carry 1 mA, the collector junction
-#: at zero bias: a typical small-signal stage is a few Newton steps from there.
+#: Where the start's fixed-point iteration on VBE begins: the junction at 1 mA.
 _START_CURRENT = 1e-3
 _MAX_ITER = 200
 
 
-def junction_voltages(q: Bjt, v: dict):
-    """(VBE, VBC) of transistor q in its forward sense, from node voltages."""
-    s = q.params.sign
+def junction_voltages(q: Bjt, v: dict, sign=None):
+    """(VBE, VBC) of transistor q in its forward sense, from node voltages;
+    ``sign`` overrides q's polarity sign (one per row of ``v``)."""
+    s = q.params.sign if sign is None else sign
     return s * (v[q.b] - v[q.e]), s * (v[q.b] - v[q.c])
 
 
@@ -70,169 +79,290 @@ class OperatingPoint:
 _STATE_FIELDS = ("ic", "ib", "dic_dvbe", "dic_dvbc", "dib_dvbe", "dib_dvbc")
 
 
-def admittance_values(net: Netlist, plan: Plan, omega=None, excite=None, split=False):
-    """(g, V): admittances (batch, n_adm) and constraint voltages (batch, n_src).
-
-    A capacitor's entry is jωC, or with ``split`` its capacitance C (F) alone.
-    """
-    real = omega is None
-    g = np.empty((net.batch, len(plan.admittances)), dtype=float if real else complex)
-    for k, name in enumerate(plan.admittances):
-        e = net.element(name)
-        g[:, k] = 1.0 / e.r if isinstance(e, Resistor) else (e.c if split else 1j * omega * e.c)
-    v = np.zeros((net.batch, len(plan.constraints)))
-    for k, name in enumerate(plan.constraints):
-        if excite is None:
-            v[:, k] = net.element(name).v
-        elif name in excite:
-            v[:, k] = excite[name]
-    return g, v
-
-
-#: From this batch size on, matrices are assembled by sparse sums rather
-#: than dense products (which then mostly multiply zeros).
-_SPARSE_FROM = 256
-
-
-def assemble_linear(plan: Plan, g, v):
-    """The linear network's A (batch, n, n) and b (batch, n)."""
-    batch, n = g.shape[0], plan.n
-    gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
-    if batch < _SPARSE_FROM:
-        return (g @ plan.adm_stamp).reshape(batch, n, n), gv @ plan.adm_rhs
-    return (_sparse_product(g, plan.adm_terms, n * n).reshape(batch, n, n),
-            _sparse_product(gv, plan.rhs_terms, n))
-
-
-def _sparse_product(values, terms, width):
-    """values @ M for a sparse M given as (column, ((row, coef), ...)) terms."""
-    out = np.zeros((values.shape[0], width), dtype=values.dtype)
-    for col, acc in _sparse_columns(values, terms):
-        out[:, col] = acc
-    return out
-
-
-def node_dict(plan: Plan, x, v):
-    """Node name → voltage (batch,), ground included, from the unknowns x."""
-    if x.shape[0] < _SPARSE_FROM:
-        volts = x @ plan.node_pick + v @ plan.node_coef
-        cols = {node: volts[:, i] for i, node in enumerate(plan.nodes)}
-    else:
-        known = dict(_sparse_columns(v, plan.node_terms))
-        cols = {}
-        for i, node in enumerate(plan.nodes):
-            k = plan.index[node]
-            base = x[:, k] if k >= 0 else np.zeros(x.shape[0], dtype=x.dtype)
-            cols[node] = base + known[i] if i in known else base
-    return {GROUND: np.zeros(x.shape[0], dtype=x.dtype), **cols}
-
-
-def _sparse_columns(values, terms):
-    """(column, values @ M[:, column]) for each non-zero column of a sparse M."""
-    for col, entries in terms:
-        acc = entries[0][1] * values[:, entries[0][0]]
-        for row, c in entries[1:]:
-            acc = acc + c * values[:, row]
-        yield col, acc
-
-
 def operating_point(net: Netlist, start=None, max_iter: int = _MAX_ITER) -> OperatingPoint:
     """Solve the DC operating point of every row of the batch.
 
-    Capacitors are open.  Newton with junction limiting runs on the transistor
-    ports of the reduced network until every row has converged or
+    Capacitors are open.  Newton with junction limiting runs on the junction
+    voltages of the reduced network until every row has converged or
     ``max_iter`` is reached; rows that did not converge are flagged, never raised.
     ``start`` (batch, transistor, 2) gives first junction voltages (VBE, VBC) to
-    begin from, for example a nearby solution; by default each emitter
-    junction starts at the voltage for 1 mA and each collector junction at 0.
+    begin from, for example a nearby solution; by default each transistor
+    starts where it would be if forward active (see :func:`_active_start`).
     """
+    return _solve(_reduce(net), start, max_iter)
+
+
+def operating_sweep(net: Netlist, source: str, volts, start=None, max_iter: int = _MAX_ITER) -> OperatingPoint:
+    """The operating point of every design of ``net`` with voltage source
+    ``source`` at each of ``volts`` (batch, m) V, or (m,) for a batch of one.
+
+    Rows come design by design, m points each, as ``net.repeat(m)`` with the
+    source set would give; the answer is the same.  The network is reduced
+    once per design: the network's drive is affine in a source's voltage, so it
+    is found at 0 V and 1 V and every point is a weighted sum of the two.
+    ``start`` is as for :func:`operating_point`, one row per point.
+    """
+    volts = np.asarray(volts, dtype=float).reshape(net.batch, -1)
+    plan = plan_for(net, DC)
+    g, v = admittance_values(net, plan)
+    v = np.repeat(v, 2, axis=0)
+    v[:, plan.constraints.index(source)] = np.tile([0.0, 1.0], net.batch)
+    dev = _stack_params([q.params for q in net.of_type(Bjt)])
+    dev = device.DeviceParams(*(np.repeat(getattr(dev, f), 2, axis=0) for f in _PARAM_FIELDS))
+    return _solve(_reduce(net, np.repeat(g, 2, axis=0), v, dev).along(volts), start, max_iter)
+
+
+@dataclass(frozen=True)
+class _Reduced:
+    """A batch's DC network assembled and reduced onto its junctions.
+
+    g, v: admittances and constraint voltages (see :mod:`model.assembly`);
+    drive (batch, n, 1 + 2k): the unknowns for the network's own sources
+    (column 0) and for a unit current into each junction (the rest);
+    u0, r: the junction equations u = u0 − r·i(u), sign included.
+    """
+
+    plan: object
+    bjts: list
+    g: np.ndarray
+    v: np.ndarray
+    drive: np.ndarray
+    u0: np.ndarray
+    r: np.ndarray
+    dev: device.DeviceParams
+    sign: np.ndarray
+
+    def along(self, t) -> "_Reduced":
+        """Rows 0, 2, 4, … solved with a source at 0 V and rows 1, 3, 5, … at
+        1 V, turned into t (designs, m) points per design."""
+        designs, m = t.shape
+
+        def mix(x):
+            x0, x1 = x[0::2], x[1::2]
+            w = t.reshape(designs, m, *([1] * (x.ndim - 1)))
+            return (x0[:, None] + w * (x1 - x0)[:, None]).reshape(designs * m, *x.shape[1:])
+
+        def same(x):
+            return np.repeat(x[0::2], m, axis=0)
+
+        dev = device.DeviceParams(*(same(getattr(self.dev, f)) for f in _PARAM_FIELDS))
+        return _Reduced(self.plan, self.bjts, same(self.g), mix(self.v),
+                        np.concatenate([mix(self.drive[:, :, :1]), same(self.drive[:, :, 1:])], axis=2),
+                        mix(self.u0), same(self.r), dev, same(self.sign))
+
+
+def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
+    """Assemble and reduce ``net``, or the rows given by admittances g,
+    constraint voltages v and device parameters dev of its shape."""
     plan = plan_for(net, DC)
     bjts = net.of_type(Bjt)
     # A part at the edge of float range (a 1e-300 Ω resistor is "valid") may
     # overflow; such a row comes out non-finite and is flagged, not raised.
-    with np.errstate(over="ignore", invalid="ignore"):
-        g, v = admittance_values(net, plan)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        if g is None:
+            g, v = admittance_values(net, plan)
+            dev = _stack_params([q.params for q in bjts])
         a, b = assemble_linear(plan, g, v)
-    n_ports = plan.n_ports
-    y, j, back = _schur(a, b, n_ports)
-    pick = plan.term_pick[:n_ports]
-    t_offset = v @ plan.term_coef
-    dev = _stack_params([q.params for q in bjts])
+        sign = np.repeat(dev.sign, 2, axis=1)
+        # One solve for the network's own drive and for a unit current in each
+        # junction: every Newton iteration then only multiplies 2k × 2k.
+        # The linear part alone: diagonally dominant, no pivoting needed.
+        drive = solve_dominant(a, np.concatenate([b[:, :, None], np.broadcast_to(
+            plan.unknown_drive, (g.shape[0], *plan.unknown_drive.shape))], axis=2))
+        t_offset = index_dot(v, plan.term_coef)
+        u0 = sign * (index_dot(drive[:, :, 0], plan.unknown_junction) + index_dot(t_offset, plan.term_junction))
+        r = sign[:, :, None] * _left(plan.unknown_junction.T, drive[:, :, 1:]) * sign[:, None, :]
+    return _Reduced(plan, bjts, g, v, drive, u0, r, dev, sign)
+
+
+def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
+    batch = red.u0.shape[0]
     if start is None:
-        u = np.stack([dev.vt * np.log(_START_CURRENT / dev.i_s), np.zeros_like(dev.vt)], axis=-1)
+        u = _active_start(red.r, red.u0, red.dev)
     else:
-        u = np.array(start, dtype=float).reshape(net.batch, len(bjts), 2)
-    x_ports, done, iterations = _newton(y, j, pick, t_offset, dev, u, max_iter)
-    x_ports = np.where(np.isfinite(x_ports), x_ports, 0.0)
-    x = _assemble(x_ports, back)
-    volts = node_dict(plan, x, v)
-    states = {q.name: device.evaluate(q.params, *junction_voltages(q, volts)) for q in bjts}
-    residual = _kcl_residual(plan, a, b, x, g, volts, bjts, states)
+        u = np.array(start, dtype=float).reshape(batch, len(red.bjts), 2)
+    u, done, iterations = newton(red.r, red.u0, red.dev, u, max_iter)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        # The unknowns from one last linearised step, as a nodal Newton would
+        # leave them: their error is then second order in that step.
+        _, i = newton_step(red.r, red.u0, red.dev, u)
+        x = red.drive[:, :, 0] - _bmv(red.drive[:, :, 1:], red.sign * i)
+    x = np.where(np.isfinite(x), x, 0.0)
+    volts = node_dict(red.plan, x, red.v)
+    per = [_params_of(red.dev, k) for k in range(len(red.bjts))]
+    states = {q.name: device.evaluate(p, *junction_voltages(q, volts, p.sign)) for q, p in zip(red.bjts, per)}
+    residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
-    junctions = np.stack([np.stack(junction_voltages(q, volts), axis=-1) for q in bjts], axis=1)
+    junctions = np.stack([np.stack(junction_voltages(q, volts, p.sign), axis=-1) for q, p in zip(red.bjts, per)], axis=1)
     return OperatingPoint(volts, states, converged, iterations, residual, junctions)
 
 
-def _kcl_residual(plan, a, b, x, g, volts, bjts, states):
-    """Largest |KCL sum| over the free (super)nodes over the largest branch current."""
-    into = np.stack([c for q in bjts for c in _terminal_currents(q, states[q.name])], axis=1)
-    r = np.einsum("bij,bj->bi", a, x) - b + into @ plan.term_pick.T
-    drops = np.stack([volts[n] for n in plan.nodes], axis=1) @ plan.adm_incidence
-    scale = np.maximum(_row_max(np.abs(g * drops)), _row_max(np.abs(into)))
+def _params_of(dev: device.DeviceParams, k: int) -> device.DeviceParams:
+    """Transistor k's (batch,) parameters out of (batch, transistor) ones."""
+    return device.DeviceParams(*(getattr(dev, f)[:, k] for f in _PARAM_FIELDS))
+
+
+def _kcl_residual(plan, g, volts, signs, states):
+    """Largest |KCL sum| over the free (super)nodes over the largest branch
+    current, summed from the branch currents at the node voltages found."""
+    into = np.stack([c for s, st in zip(signs, states.values()) for c in _terminal_currents(s, st)], axis=1)
+    drops = index_dot(np.stack([volts[n] for n in plan.nodes], axis=1), plan.adm_incidence)
+    branch = g * drops
+    r = index_dot(branch, plan.adm_unknown) + index_dot(into, plan.term_pick.T)
+    scale = np.maximum(_row_max(np.abs(branch)), _row_max(np.abs(into)))
     worst = _row_max(np.abs(r))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(scale > 0, worst / scale, worst)
 
 
-def _terminal_currents(q: Bjt, st: device.JunctionState):
-    """Currents into the collector, base and emitter of q (A)."""
-    s = q.params.sign
+def _terminal_currents(s, st: device.JunctionState):
+    """Currents into the collector, base and emitter (A) of a transistor of sign s."""
     return s * st.ic, s * st.ib, -s * (st.ic + st.ib)
 
 
-def _newton(y, j, pick, t_offset, dev, u, max_iter):
-    """Newton on the port equations Y·x = J − I_device(x) for every batch row.
+def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
+    """Newton on F(u) = u − u₀ + R·i(u) for every batch row: the compiled
+    kernel of :mod:`model.kernel` once it is loaded, else :func:`newton_numpy`.
+    Returns (u (batch, k, 2), converged, iterations)."""
+    fn = kernel.ready()
+    if fn is None:
+        return newton_numpy(r, u0, dev, u, max_iter)
+    u = np.array(u, dtype=float)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        v_crit = device.critical_voltage(dev)
+    done, iterations = fn(np.ascontiguousarray(r), np.ascontiguousarray(u0),
+                          *(np.ascontiguousarray(getattr(dev, f)) for f in ("i_s", "beta_f", "beta_r", "va", "vt")),
+                          np.ascontiguousarray(v_crit), u, _V_TOL, max_iter)
+    return u, done, int(iterations)
 
-    Rows that have converged leave the working set whenever they make up a
-    quarter of it, so a few slow rows do not make the whole batch pay for
-    their extra iterations.  Returns (x_ports, converged, iterations).
+
+def newton_numpy(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
+    """Newton on F(u) = u − u₀ + R·i(u) for every batch row, in numpy.
+
+    r (batch, 2k, 2k), u0 (batch, 2k) in V and Ω; dev holds (batch, k)
+    parameters; u (batch, k, 2) the first junction voltages.  Rows that have
+    converged leave the working set whenever they make up a quarter of it,
+    so a few slow rows do not make the whole batch pay for their extra
+    iterations.  Returns (u, converged, iterations).
     """
-    batch, n_ports = j.shape
-    count = dev.vt.shape[1]
-    spread = np.einsum("pt,qs->tspq", pick, pick).reshape(pick.shape[1] ** 2, n_ports**2)
-    x_out = np.full((batch, n_ports), np.nan)
+    batch, count = u.shape[0], u.shape[1]
+    # Entry-major (…, batch) copies: every operation below then runs over
+    # one contiguous batch axis instead of strided (batch, 2, 2) slices.
+    r, u0, u = _entry_major(r), _entry_major(u0), _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch)
+    dev = _entry_major_params(dev)
+    u_out = np.full((count, 2, batch), np.nan)
     done_out = np.zeros(batch, dtype=bool)
     rows = np.arange(batch)
-    x = np.zeros((batch, n_ports))
     done = np.zeros(batch, dtype=bool)
     iterations = 0
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-        vt_j, v_crit = dev.vt[..., None], device.critical_voltage(_expand(dev))
-        sign = dev.sign[..., None]
+        vt_j, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
         for iterations in range(1, max_iter + 1):
-            g_t, i_eq = _companion(dev, u)
-            a = y + (g_t.reshape(rows.size, -1) @ spread).reshape(y.shape)
-            b = j - (i_eq + np.einsum("bts,bs->bt", g_t, t_offset)) @ pick.T
-            new = solve_batched(a, b)
-            v_t = (new @ pick + t_offset).reshape(rows.size, count, 3)
-            u_raw = sign * np.stack([v_t[..., 1] - v_t[..., 2], v_t[..., 1] - v_t[..., 0]], axis=-1)
-            u, limited = device.limit_junction(u_raw, u, vt_j, v_crit)
-            step = _row_max(np.abs(new - x))
-            done |= (step <= _V_TOL * (1.0 + _row_max(np.abs(new)))) & ~limited.reshape(rows.size, -1).any(axis=1)
-            x = new
+            step, _ = _step(r, u0, dev, u)
+            u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
+            moved = np.abs(u_new - u).max(axis=(0, 1))
+            size = np.abs(u_new).max(axis=(0, 1))
+            done |= (moved <= _V_TOL * (1.0 + size)) & ~limited.any(axis=(0, 1))
+            u = u_new
             if iterations == 1:
                 continue
             if done.all() or 4 * done.sum() >= rows.size:
-                x_out[rows[done]], done_out[rows[done]] = x[done], True
+                u_out[..., rows[done]], done_out[rows[done]] = u[..., done], True
                 if done.all():
                     break
                 keep = ~done
-                rows, x, u, y, j, t_offset = rows[keep], x[keep], u[keep], y[keep], j[keep], t_offset[keep]
-                dev, vt_j, v_crit, sign = dev.take(keep), vt_j[keep], v_crit[keep], sign[keep]
+                rows, u, r, u0 = rows[keep], u[..., keep], r[..., keep], u0[..., keep]
+                dev = device.DeviceParams(*(getattr(dev, f)[..., keep] for f in _PARAM_FIELDS))
+                vt_j, v_crit = vt_j[..., keep], v_crit[..., keep]
                 done = done[keep]
         else:
-            x_out[rows] = x
-    return x_out, done_out, iterations
+            u_out[..., rows] = u
+    return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _active_start(r, u0, dev: device.DeviceParams):
+    """First junction voltages (batch, k, 2) if each transistor were forward
+    active with IC = βF·IB (Early and coupling between transistors left out):
+    IB from the network's own two-port, u = u₀ − R·i, and VBE = VT·ln(IC/IS)
+    by a few fixed-point rounds (the logarithm is flat, so they settle fast).
+    A cut-off transistor starts at u₀; both voltages stay below the critical
+    voltage so a saturated guess cannot start Newton on a runaway exponential.
+    """
+    count = dev.vt.shape[1]
+    out = np.empty((u0.shape[0], count, 2))
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        crit = device.critical_voltage(dev)
+        for t in range(count):
+            e, c = 2 * t, 2 * t + 1
+            beta, vt, i_s = dev.beta_f[:, t], dev.vt[:, t], dev.i_s[:, t]
+            per_ib_e = r[:, e, e] * beta + r[:, e, c]
+            vbe = vt * np.log(_START_CURRENT / i_s)
+            for _ in range(3):
+                ib = np.maximum((u0[:, e] - vbe) / per_ib_e, 0.0)
+                vbe = np.where(ib > 0.0, vt * np.log1p(beta * ib / i_s), u0[:, e])
+            vbc = u0[:, c] - (r[:, c, e] * beta + r[:, c, c]) * ib
+            out[:, t, 0] = np.minimum(vbe, crit[:, t])
+            out[:, t, 1] = np.minimum(vbc, crit[:, t])
+        return np.where(np.isfinite(out), out, 0.0)
+
+
+def newton_step(r, u0, dev: device.DeviceParams, u):
+    """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
+    the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
+    batch, count = u.shape[0], u.shape[1]
+    step, i = _step(_entry_major(r), _entry_major(u0), _entry_major_params(dev),
+                    _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch))
+    return step.transpose(2, 0, 1), i.T
+
+
+def _step(r, u0, dev, u):
+    """:func:`newton_step` on entry-major arrays: r (2k, 2k, b), u0 (2k, b),
+    dev (k, b), u (k, 2, b).  Returns the step (k, 2, b) and currents (2k, b)."""
+    count = u.shape[0]
+    st = device.evaluate(dev, u[:, 0], u[:, 1])
+    i = np.stack([st.ic, st.ib], axis=1).reshape(2 * count, -1)
+    f = u.reshape(2 * count, -1) - u0 + _matvec(r, i)
+    # G is block-diagonal: each transistor's 2 × 2 ∂(IC, IB)/∂(VBE, VBC).
+    g = ((st.dic_dvbe, st.dic_dvbc), (st.dib_dvbe, st.dib_dvbc))
+    jac = np.empty_like(r)
+    for t in range(count):
+        for c in range(2):
+            jac[:, 2 * t + c] = r[:, 2 * t] * g[0][c][t] + r[:, 2 * t + 1] * g[1][c][t]
+    jac[np.arange(2 * count), np.arange(2 * count)] += 1.0
+    step = -_solve_entries(jac, f)
+    di = np.empty_like(step)
+    for t in range(count):
+        for a in range(2):
+            di[2 * t + a] = g[a][0][t] * step[2 * t] + g[a][1][t] * step[2 * t + 1]
+    return step.reshape(count, 2, -1), i + di
+
+
+def _matvec(m, x):
+    """m (n, p, b) times x (p, b) for every b."""
+    out = m[:, 0] * x[0]
+    for j in range(1, x.shape[0]):
+        out += m[:, j] * x[j]
+    return out
+
+
+def _solve_entries(m, f):
+    """Solve m (n, n, b) · x = f (n, b) for every b; 2 × 2 in closed form."""
+    if m.shape[0] == 2:
+        det = m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
+        return np.stack([m[1, 1] * f[0] - m[0, 1] * f[1], m[0, 0] * f[1] - m[1, 0] * f[0]]) / det
+    return solve_batched(m.transpose(2, 0, 1), f.T).T
+
+
+def _entry_major(a):
+    """(batch, …) → (…, batch), contiguous."""
+    return np.ascontiguousarray(np.moveaxis(a, 0, -1))
+
+
+def _entry_major_params(p: device.DeviceParams) -> device.DeviceParams:
+    return device.DeviceParams(*(_entry_major(getattr(p, f)) for f in _PARAM_FIELDS))
+
+
+_PARAM_FIELDS = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
 
 
 def _row_max(a):
@@ -251,92 +381,19 @@ def _stack_params(params: list) -> device.DeviceParams:
     return device.DeviceParams(*(np.stack([getattr(p, f) for p in params], axis=1) for f in fields))
 
 
-def _expand(p: device.DeviceParams) -> device.DeviceParams:
-    """(batch, transistor) parameters broadcast over the two junctions."""
-    fields = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
-    return device.DeviceParams(*(getattr(p, f)[..., None] for f in fields))
-
-
-def terminal_conductance(states: list) -> np.ndarray:
-    """(batch, 3k, 3k) conductance from terminal voltages (c, b, e of each of
-    the k transistors) to the currents into those terminals, block-diagonal."""
-    k = len(states)
-    g = np.zeros((states[0].ic.shape[0], k, 3, k, 3))
-    for i, st in enumerate(states):
-        a, bb, cc, d = st.dic_dvbe, st.dic_dvbc, st.dib_dvbe, st.dib_dvbc
-        g[:, i, 0, i, 0], g[:, i, 0, i, 1], g[:, i, 0, i, 2] = -bb, a + bb, -a
-        g[:, i, 1, i, 0], g[:, i, 1, i, 1], g[:, i, 1, i, 2] = -d, cc + d, -cc
-        g[:, i, 2, i, :] = -(g[:, i, 0, i, :] + g[:, i, 1, i, :])
-    return g.reshape(-1, 3 * k, 3 * k)
-
-
-def _companion(dev: device.DeviceParams, u: np.ndarray):
-    """Linearised terminal currents about junction voltages u = (VBE, VBC).
-
-    Returns (g_t, i_eq): the terminal conductance (see
-    :func:`_terminal_conductance`) and currents i_eq (batch, 3k) such that the
-    currents into the terminals are i_eq + g_t @ v_terminal.
-    """
-    st = device.evaluate(dev, u[..., 0], u[..., 1])
-    count = u.shape[1]
-    per = [device.JunctionState(*(getattr(st, f)[:, i] for f in _STATE_FIELDS)) for i in range(count)]
-    s = dev.sign
-    i_c = s * (st.ic - st.dic_dvbe * u[..., 0] - st.dic_dvbc * u[..., 1])
-    i_b = s * (st.ib - st.dib_dvbe * u[..., 0] - st.dib_dvbc * u[..., 1])
-    i_eq = np.stack([i_c, i_b, -(i_c + i_b)], axis=-1).reshape(u.shape[0], 3 * count)
-    return terminal_conductance(per), i_eq
-
-
-def _schur(a, b, n_ports):
-    """Reduce A x = b onto its first n_ports unknowns.
-
-    Returns (Y, J, back) with Y x_p = J for the ports and back = (Xb, Xp) so
-    that the other unknowns are Xb − Xp x_p.
-    """
-    if a.shape[-1] == n_ports:
-        return a, b, None
-    app, api = a[:, :n_ports, :n_ports], a[:, :n_ports, n_ports:]
-    aip, aii = a[:, n_ports:, :n_ports], a[:, n_ports:, n_ports:]
-    sol = solve_batched(aii, np.concatenate([b[:, n_ports:, None], aip], axis=2))
-    xb, xp = sol[:, :, 0], sol[:, :, 1:]
-    y = app - np.einsum("bij,bjk->bik", api, xp)
-    j = b[:, :n_ports] - np.einsum("bij,bj->bi", api, xb)
-    return y, j, (xb, xp)
-
-
-def _assemble(x_ports, back):
-    if back is None:
-        return x_ports
-    xb, xp = back
-    return np.concatenate([x_ports, xb - np.einsum("bij,bj->bi", xp, x_ports)], axis=1)
-
-
-def branch_currents(net: Netlist, v: dict, states: dict) -> dict:
-    """DC current of each resistor (a → b) and each transistor terminal (into it), A."""
-    out = {}
-    for r in net.of_type(Resistor):
-        out[r.name] = (v[r.a] - v[r.b]) / r.r
-    for q in net.of_type(Bjt):
-        st, s = states[q.name], q.params.sign
-        out[q.name + ".c"] = s * st.ic
-        out[q.name + ".b"] = s * st.ib
-        out[q.name + ".e"] = -s * (st.ic + st.ib)
+# Products of many tiny matrices: a loop over the short inner axis with
+# whole-batch operations beats einsum and matmul, which go matrix by matrix.
+def _bmv(m, x):
+    """m (b, n, p) @ x (b, p) for every batch row b."""
+    out = np.zeros(m.shape[:2], dtype=np.result_type(m, x))
+    for j in range(x.shape[1]):
+        out += m[:, :, j] * x[:, j, None]
     return out
 
 
-def node_outflows(net: Netlist, v: dict, states: dict) -> dict:
-    """Current (A) leaving each node through resistors and transistors.
-
-    For a node driven by one voltage source this is the current that source
-    delivers; at any other node KCL makes it zero.
-    """
-    currents = branch_currents(net, v, states)
-    total = {n: np.zeros(net.batch) for n in (*net.nodes, GROUND)}
-    for r in net.of_type(Resistor):
-        total[r.a] = total[r.a] + currents[r.name]
-        total[r.b] = total[r.b] - currents[r.name]
-    for q in net.of_type(Bjt):
-        for t in "cbe":
-            node = getattr(q, t)
-            total[node] = total[node] + currents[f"{q.name}.{t}"]
-    return total
+def _left(c, x):
+    """A constant c (n, p) times x (b, p, q) for every batch row b."""
+    out = np.zeros((x.shape[0], c.shape[0], x.shape[2]))
+    for i, j in zip(*np.nonzero(c)):
+        out[:, i] += c[i, j] * x[:, j]
+    return out

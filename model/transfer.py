@@ -21,7 +21,7 @@ import numpy as np
 
 from .device import critical_voltage
 from .linear import small_signal
-from .solve import OperatingPoint, junction_voltages, operating_point
+from .solve import OperatingPoint, junction_voltages, operating_sweep
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
@@ -107,7 +107,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
         coarse = _solve_at(held, grid, predict(grid))
         curve_out = coarse.voltages[stage.output] - out_q
         brackets = _brackets(coarse, grid)
-    edges, outs = _edges(held, stage, grid, brackets, curve_out, out_q, predict)
+    edges, outs = _edges(held, stage, grid, brackets, curve_out, out_q, _between(grid, coarse, predict))
     up = max(max(outs), 0.0)
     down = max(-min(outs), 0.0)
     return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
@@ -184,7 +184,10 @@ def _predictor(stage: StageCircuit, op: OperatingPoint):
     an edge does not start with a wildly forward-biased junction."""
     q = stage.net.element(TRANSISTOR)
     slope = np.stack(junction_voltages(q, small_signal(stage.net, op, excite={EMF: 1.0})), axis=-1)
-    ceiling = critical_voltage(q.params)[0]
+    # A saturating collector junction ends below the conducting emitter
+    # junction's voltage, so it starts no higher than the quiescent VBE.
+    crit = critical_voltage(q.params)[0]
+    ceiling = np.array([crit, min(crit, float(op.junctions[0, 0, 0]))])
 
     def predict(emf):
         u = op.junctions[0, 0] + np.outer(emf, slope[0])
@@ -193,13 +196,29 @@ def _predictor(stage: StageCircuit, op: OperatingPoint):
     return predict
 
 
+def _between(grid, coarse: OperatingPoint, predict):
+    """Newton starts warm from a solved sweep: at EMFs between its points, the
+    junction voltages of the nearest one.  (Interpolating would cut across the
+    kink at a region's edge, and a start on the kink's chord is a poor one.)"""
+    ok = coarse.converged
+
+    def start(emf):
+        if ok.sum() < 2:
+            return predict(emf)
+        x, u = grid[ok], coarse.junctions[ok]
+        right = np.clip(np.searchsorted(x, emf), 1, x.size - 1)
+        nearest = np.where(emf - x[right - 1] < x[right] - emf, right - 1, right)
+        return u[nearest]
+
+    return start
+
+
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
     """The held circuit solved at each EMF (V); ``junctions`` is one start for
     all points (transistor, 2) or one per point (point, transistor, 2)."""
-    net = held.repeat(emf.size).with_source(EMF, emf)
     if junctions.ndim == 2:
         junctions = np.repeat(junctions[None], emf.size, axis=0)
-    return operating_point(net, start=junctions)
+    return operating_sweep(held, EMF, emf, start=junctions)
 
 
 def _bracket(active, centre, step):

@@ -2,7 +2,11 @@
 
 Measures a full single-design analysis, batched DC + midband throughput for
 100,000 varied designs, and a per-design scipy.optimize.root loop doing the
-same DC and midband work, side by side in one run.
+same DC and midband work, side by side in one run.  Then the batch again as
+the best of three runs, split into operating point and midband, and the single analysis split into its parts,
+each part timed as ``analyse`` calls it.  Written against the engine's public
+module functions only, so it runs unchanged on an older tree; a part an older
+tree does not have is reported as such.
 """
 
 from __future__ import annotations
@@ -21,6 +25,9 @@ from model.design import default_design  # noqa: E402
 from model.device import T_NOMINAL, thermal_voltage  # noqa: E402
 
 from timing import median_ms  # noqa: E402
+
+import math  # noqa: E402
+from dataclasses import replace  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 
@@ -96,6 +103,103 @@ def main() -> None:
     ref_rate = m / (time.perf_counter() - t)
     print(f"scipy_root_loop_throughput: {ref_rate:,.0f} designs/s")
     print(f"batch_over_scipy_ratio: {rate / ref_rate:,.0f} x")
+
+    batch_parts(values)
+    single_parts(design)
+    compiled(design, values)
+
+
+def compiled(design, values: dict) -> None:
+    """The same figures with the optional numba kernel loaded (where the tree
+    has one and numba imports); the lines above are the numpy path."""
+    try:
+        from model import kernel
+    except ImportError:
+        print("compiled_kernel: not in this tree")
+        return
+    t = time.perf_counter()
+    if kernel.load() is None:
+        print("compiled_kernel: numba not importable, numpy path only")
+        return
+    print(f"compiled_kernel_load: {time.perf_counter() - t:.2f} s (numba import + compile or cache read)")
+    from model.solve import operating_point
+    from model.topologies import build
+
+    n = len(values["supply.vcc"])
+    stage = build("common-emitter", values)
+    print(f"compiled_single_design_analysis_median: {median_ms(lambda: analyse(design), 50):.2f} ms")
+    print(f"compiled_batch_dc_midband_throughput: {n / _best_s(lambda: analyse_batch('common-emitter', values)):,.0f} designs/s")
+    print(f"compiled_batch_operating_point_throughput: {n / _best_s(lambda: operating_point(stage.net)):,.0f} designs/s")
+
+
+def _best_s(fn, repeats: int = 3) -> float:
+    """Shortest wall time of ``fn()`` over ``repeats`` calls (s): the least
+    disturbed run on a shared machine."""
+    best = math.inf
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - t)
+    return best
+
+
+def batch_parts(values: dict) -> None:
+    """Operating point alone and midband alone over the same 100,000 designs
+    (one shape, so one group)."""
+    from model.midband import midband
+    from model.solve import operating_point
+    from model.topologies import build
+
+    n = len(values["supply.vcc"])
+    best = _best_s(lambda: analyse_batch("common-emitter", values))
+    print(f"batch_dc_midband_throughput_best_of_3: {n / best:,.0f} designs/s")
+    stage = build("common-emitter", values)
+    op = operating_point(stage.net)
+    t_op = _best_s(lambda: operating_point(stage.net))
+    t_mid = _best_s(lambda: midband(stage, op, values["source.rs"]))
+    print(f"batch_operating_point_throughput: {n / t_op:,.0f} designs/s")
+    print(f"batch_midband_throughput: {n / t_mid:,.0f} designs/s")
+
+
+def single_parts(design) -> None:
+    """The single analysis of the demo design split into its parts (median ms)."""
+    from model.analysis import _with_beta
+    from model.checks import stage_warnings
+    from model.midband import device_small_signal, midband
+    from model.response import device_capacitance, response
+    from model.solve import operating_point
+    from model.topologies import build
+    from model.transfer import large_signal
+
+    t = design.transistor
+    variants = [design, _with_beta(design, t.beta / 2.0), _with_beta(design, t.beta * 2.0)]
+    stage = build(design.topology, design_values(variants))
+    op3 = operating_point(stage.net)
+    nominal = replace(stage, net=stage.net.take(np.array([0])))
+    op = op3.take(np.array([0]))
+    rs = np.array([design.source.rs])
+    mid = midband(nominal, op, rs)
+    dev = device_small_signal(op)
+    caps = device_capacitance(float(dev.gm[0]), t.ft, t.cmu)
+    av = float(mid.av_source[0])
+    span = 3.0 * design.supply.vcc / max(abs(av), 1e-6) + 1.0 * (1.0 + design.source.rs / float(mid.rin[0]))
+    f = analyse(design)
+    parts = {
+        "operating_point": lambda: operating_point(build(design.topology, design_values(variants)).net),
+        "midband": lambda: midband(nominal, op, rs),
+        "swing_distortion": lambda: large_signal(nominal, op, design.supply.vcc, design.source.vpk, span),
+        "response": lambda: response(nominal, op, caps, av, design.source.freq),
+        "warnings": lambda: stage_warnings(
+            design, region=f.region, ic=f.ic, vce=f.vce, vbc=f.vbe - f.vce,
+            swing_up=f.swing_up, swing_down=f.swing_down, wanted_out=f.vout_wanted,
+            p_transistor=f.p_transistor, tj=f.tj, p_resistors=f.p_resistors,
+            ic_beta_half=f.ic_beta_half, ic_beta_double=f.ic_beta_double, device=caps, ft=t.ft,
+            band=(f.f_low, f.f_high, f.gain_at_freq / max(abs(f.av_source), 1e-300))),
+    }
+    for name, fn in parts.items():
+        fn()
+        print(f"single_{name}_median: {median_ms(fn, 30):.3f} ms")
+    print(f"single_quick_analysis_median: {median_ms(lambda: analyse(design, large_signal=False), 30):.2f} ms")
 
 
 if __name__ == "__main__":
