@@ -14,7 +14,7 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import assume, given
+from hypothesis import assume, example, given, settings
 from hypothesis import strategies as st
 
 from model import analyse
@@ -257,13 +257,24 @@ def _at(d, freq):
     return sweep(with_device_capacitance(stage, caps), op, np.asarray(freq, dtype=float))
 
 
-@pytest.mark.parametrize("topology,phase", [("common-emitter", 180.0), ("emitter-follower", 0.0)])
-@given(data=st.data())
-@SETTINGS
-def test_midband_centre_matches_midband_analysis(topology, phase, data):
+#: The case that failed on a fresh randomized run (93.880 against 93.974,
+#: 0.1 % below midband): with rs = 0 the base is fed through cin alone, and
+#: the Miller capacitance Cμ(1 + gm·rc) ≈ 1 nF against cin = 1 µF is a
+#: capacitive divider, a loss of C/cin ≈ 0.1 % at every frequency in the band.
+MILLER_DIVIDER_CASE = _design(**{
+    "supply.vcc": 6.0, "bias.r1": 10e3, "bias.r2": 5e3, "stage.rc": 10**4.25, "stage.re1": 0.0,
+    "stage.re2": 10e3, "stage.ce": 1e-3, "stage.cin": 1e-6, "stage.cout": 1e-4, "source.rs": 0.0,
+    "load.rl": "open", "load.cl": 0.0, "transistor.ft": 1e8, "transistor.cmu": 10e-12,
+    "transistor.polarity": "npn"})
+
+
+@given(d=st.sampled_from(("common-emitter", "emitter-follower")).flatmap(band_designs))
+@example(d=MILLER_DIVIDER_CASE)
+@settings(SETTINGS, max_examples=100)  # 50 a topology, as before the two were drawn together
+def test_midband_centre_matches_midband_analysis(d):
     """At the geometric centre of a wide band the swept gain is the midband
     av_source to 0.1 %, and its phase is 180° (inverting) or 0° (follower)."""
-    d = data.draw(band_designs(topology))
+    phase = 180.0 if d.topology == "common-emitter" else 0.0
     fig = _response(d)
     centre = math.sqrt(fig.f_low * fig.f_high)
     # The feed-forward zero gm/(2πCμ) bounds "midband" too: a barely-on
