@@ -242,13 +242,14 @@ def test_mutated_files_load_or_fail_cleanly(tmp_path_factory, edits):
             del data[at:at + len(chunk)]
     path = tmp_path_factory.mktemp("fuzz") / "amp.toml"
     path.write_bytes(bytes(data))
-    start = time.perf_counter()
+    # CPU time, not wall time: a runaway parse fails, a busy machine does not.
+    start = time.process_time()
     try:
         read_design(path)
     except StageledgerError as err:
         assert isinstance(err, (DesignError, DesignFileError))
         assert str(path) in str(err)
-    assert time.perf_counter() - start < 1.0
+    assert time.process_time() - start < 1.0
 
 
 def test_there_are_demo_designs():

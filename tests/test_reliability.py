@@ -476,13 +476,20 @@ def test_read_only_folder_for_real_exits_2_with_not_saved(unprivileged, capsys):
 
 # -- 3. locking ------------------------------------------------------------------------------
 
+#: How long the holder keeps the lock (s).  A refusal that waited for the lock
+#: instead of refusing at once would take all of it, so "did not wait" is
+#: judged against half of it: a margin no scheduling delay on a loaded machine
+#: comes near, where a bound of a second or so could fail by chance.
+HOLD = 120.0
+NO_WAIT = HOLD / 2
+
 HOLDER = r'''
 import sys, time
 from model.session import DesignSession
 session = DesignSession(sys.argv[1])
 print("locked", flush=True)
-time.sleep(120)
-'''
+time.sleep(%r)
+''' % HOLD
 
 
 def test_a_second_writer_is_refused_and_readers_still_work(tmp_path, capsys):
@@ -500,14 +507,14 @@ def test_a_second_writer_is_refused_and_readers_still_work(tmp_path, capsys):
         started = time.monotonic()
         with pytest.raises(LockHeld) as info:
             DesignSession(path)
-        assert time.monotonic() - started < 1.0
+        assert time.monotonic() - started < NO_WAIT
         assert info.value.holder["pid"] == holder.pid
         assert info.value.holder["host"] == socket.gethostname()
         assert f"pid {holder.pid}" in str(info.value) and socket.gethostname() in str(info.value)
 
         started = time.monotonic()
         code, out, err = cli(capsys, "set", path, "stage.rc=12k")
-        assert time.monotonic() - started < 1.0
+        assert time.monotonic() - started < NO_WAIT
         assert_one_line_refusal(code, err)
         assert f"pid {holder.pid}" in err and socket.gethostname() in err
         assert path.read_bytes() == before
@@ -526,8 +533,8 @@ def test_a_second_writer_is_refused_and_readers_still_work(tmp_path, capsys):
         holder.kill()  # SIGKILL: no chance to release anything itself
         holder.wait(timeout=10)
         started = time.monotonic()
-        with DesignSession(path) as s:
-            assert time.monotonic() - started < 1.0
+        with DesignSession(path) as s:  # the kernel dropped the dead holder's lock: no wait either
+            assert time.monotonic() - started < NO_WAIT
             s.commit({"stage.rc": "12k"})
         assert math.isclose(read_document(path).design.stage.rc, 12e3, rel_tol=RTOL)
     finally:
@@ -795,15 +802,19 @@ def test_generated_designs_and_histories_round_trip(plan):
 
 
 def load_or_refuse(path: pathlib.Path) -> None:
-    """read_document either loads or raises our own error, within 1 s, touching nothing."""
+    """read_document either loads or raises our own error, within 1 s of CPU, touching nothing.
+
+    CPU time, not wall time: it counts the work the reading did (a runaway
+    parse), not the time other processes on the machine took.
+    """
     before, info = path.read_bytes(), os.stat(path)
     listing = sorted(os.listdir(path.parent))
-    started = time.monotonic()
+    started = time.process_time()
     try:
         read_document(path)
     except StageledgerError as err:
         assert str(err)  # a refusal always says something; anything but our own errors fails the test
-    assert time.monotonic() - started < 1.0
+    assert time.process_time() - started < 1.0
     assert path.read_bytes() == before and os.stat(path).st_mtime_ns == info.st_mtime_ns
     assert sorted(os.listdir(path.parent)) == listing
 

@@ -14,7 +14,7 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import assume, given
+from hypothesis import assume, example, given, settings
 from hypothesis import strategies as st
 
 from model import analyse
@@ -232,16 +232,22 @@ def band_designs(draw, topology, bypassed=False):
     return d
 
 
+def _wide_band(d):
+    """The full analysis of a design whose corners lie four decades apart or more."""
+    fig = analyse(d)
+    assume(math.isfinite(fig.f_low) and math.isfinite(fig.f_high) and fig.f_high > 1e4 * fig.f_low)
+    return fig
+
+
 def _response(d):
     """The full analysis of a design with a wide band.
 
     Also skipped: a Cπ within 1e-4 of a coupling or bypass capacitor.  The two
     then form a divider whose ratio Cπ/C does not depend on frequency (a fast
     transistor at tens of mA has nanofarads of Cπ), so no frequency is
-    "midband" to 0.1 %; the sweep is right, the comparison is not meaningful.
+    "midband"; the sweep is right, the comparison is not meaningful.
     """
-    fig = analyse(d)
-    assume(math.isfinite(fig.f_low) and math.isfinite(fig.f_high) and fig.f_high > 1e4 * fig.f_low)
+    fig = _wide_band(d)
     s = d.stage
     coupling = [s.cin, s.cout] + ([s.ce] if d.topology == "common-emitter" and s.re2 > 0 else [])
     assume(fig.c_pi < 1e-4 * min(coupling))
@@ -257,30 +263,111 @@ def _at(d, freq):
     return sweep(with_device_capacitance(stage, caps), op, np.asarray(freq, dtype=float))
 
 
-@pytest.mark.parametrize("topology,phase", [("common-emitter", 180.0), ("emitter-follower", 0.0)])
-@given(data=st.data())
-@SETTINGS
-def test_midband_centre_matches_midband_analysis(topology, phase, data):
+#: The case that failed on a fresh randomized run (93.880 against 93.974,
+#: 0.1 % below midband): with rs = 0 the base is fed through cin alone, and
+#: the Miller capacitance Cμ(1 + gm·rc) ≈ 1 nF against cin = 1 µF is a
+#: capacitive divider, a loss of C/cin ≈ 0.1 % at every frequency in the band.
+MILLER_DIVIDER_CASE = _design(**{
+    "supply.vcc": 6.0, "bias.r1": 10e3, "bias.r2": 5e3, "stage.rc": 10**4.25, "stage.re1": 0.0,
+    "stage.re2": 10e3, "stage.ce": 1e-3, "stage.cin": 1e-6, "stage.cout": 1e-4, "source.rs": 0.0,
+    "load.rl": "open", "load.cl": 0.0, "transistor.ft": 1e8, "transistor.cmu": 10e-12,
+    "transistor.polarity": "npn"})
+
+
+@given(d=st.sampled_from(("common-emitter", "emitter-follower")).flatmap(band_designs))
+@example(d=MILLER_DIVIDER_CASE)
+@settings(SETTINGS, max_examples=100)  # 50 a topology, as before the two were drawn together
+def test_midband_centre_matches_midband_analysis(d):
     """At the geometric centre of a wide band the swept gain is the midband
-    av_source to 0.1 %, and its phase is 180° (inverting) or 0° (follower)."""
-    d = data.draw(band_designs(topology))
-    fig = _response(d)
+    av_source, and its phase is 180° (inverting) or 0° (follower), each to the
+    bound that the poles, zeros and capacitive dividers around the band set
+    (``_centre_bounds``; typically 1e-4 and well under 1°)."""
+    phase = 180.0 if d.topology == "common-emitter" else 0.0
+    fig = _wide_band(d)
     centre = math.sqrt(fig.f_low * fig.f_high)
-    # The feed-forward zero gm/(2πCμ) bounds "midband" too: a barely-on
-    # transistor (µS of gm) passes as much through Cμ as it amplifies.
-    assume(fig.gm / (2 * math.pi * d.transistor.cmu) > 100 * centre)
-    # So does a pole–zero pair inside the band: a bypass capacitor whose
-    # emitter resistance barely exceeds 1/gm dips the gain by less than 3 dB,
-    # so the corner lies elsewhere, yet its pair near its own corner still
-    # moves the gain at the band centre.
-    r = fig.response
-    own = [p.freq for p in r.low_parts + r.high_parts if math.isfinite(p.freq) and p.freq > 0]
-    assume(all(not (centre / 30 < f < centre * 30) for f in own))
+    magnitude, _ = _centre_bounds(d, fig, centre)
+    # Past 1 % the first-order forms below stop being bounds: such a stage
+    # has no midband to compare with (the gain moves by 1 % at the centre).
+    assume(magnitude < 0.01)
     g = _at(d, [centre])[0]
-    assert abs(g) == pytest.approx(abs(fig.av_source), rel=0.001)
+    assert abs(g) == pytest.approx(abs(fig.av_source), rel=magnitude)
+    # The phase is read off the sweep between two grid points, each within
+    # its own bound, so the larger of those two bounds holds in between.
+    f = fig.response.freq
+    at = int(np.searchsorted(f, centre))
+    assert 0 < at < f.size
+    spread = max(_centre_bounds(d, fig, f[at - 1])[1], _centre_bounds(d, fig, f[at])[1])
     ph = fig.response.phase_deg()
-    at_centre = float(np.interp(math.log10(centre), np.log10(fig.response.freq), ph))
-    assert at_centre == pytest.approx(phase, abs=2.0)
+    at_centre = float(np.interp(math.log10(centre), np.log10(f), ph))
+    assert at_centre == pytest.approx(phase, abs=spread)
+
+
+def _centre_bounds(d, fig, f):
+    """How far |av| may lie from midband at f (relative) and its phase from
+    180° or 0° (degrees), from the poles and zeros around the band.
+
+    Built from the single-pole and single-zero forms (Sedra & Smith,
+    *Microelectronic Circuits*, the appendix on single-time-constant
+    circuits, with Bode's magnitude and phase of a real pole or zero):
+
+    * a low-frequency pole at fp:  |H| = 1/√(1 + (fp/f)²), phase atan(fp/f);
+    * a high-frequency pole at fp: |H| = 1/√(1 + (f/fp)²), phase atan(f/fp);
+    * a zero: the reciprocal of the magnitude (whether it lies in the left or
+      the right half-plane), the same size of phase.
+
+    Magnitude, low side.  The real poles pᵢ and the bypass zero fz (the only
+    zero off the origin: re2 ‖ ce is an open circuit at 1/(2π·re2·ce)) give
+    |L|² = (1 + (fz/f)²)/Π(1 + (pᵢ/f)²).  At the exact corner |L|² = ½, so
+    Π(1 + (pᵢ/f_low)²) = 2(1 + (fz/f_low)²), and as Π(1 + yᵢ) ≥ 1 + Σyᵢ,
+    Σ(pᵢ/f_low)² ≤ 1 + 2(fz/f_low)².  Hence, above f_low,
+    1 − |L| ≤ (1 + 2(fz/f_low)²)(f_low/f)², and |L| − 1 ≤ ½(fz/f)².  No
+    guess about where a pole–zero pair sits is needed: a pair near the
+    centre shows up through fz.  The high side is the mirror image, with
+    f_high and the feed-forward zeros Gm/(2πCμ) and Gm/(2πCπ) (Gm = gm
+    degenerated by re1) in place of f_low and fz.  For the follower, whose
+    upper pair can be complex (it peaks into a capacitive load), the second-
+    order low-pass at any Q gives at most x3²·(f/f_high)² with x3² ≤ 1 + √2
+    (x3 the −3 dB point over the pair's natural frequency).
+
+    Magnitude, flat terms.  Where a device or load capacitance hangs on a
+    node fed through a coupling capacitor, the two make a divider whose loss
+    C/C_coupling does not depend on frequency (circuit theory): the input
+    capacitance against cin, with Cμ multiplied by 1 + gm·rc at most (the
+    Miller theorem, Sedra & Smith) and, in the follower, the load's cl seen
+    through the transistor as at most cl/(β + 1); Cπ against ce; cl against
+    cout.  And a zero of a node gain at low frequency (a part's short-circuit
+    corner, the bypass zero, rl with cout) turns the Miller admittance
+    jωCμ(1 − A) partly real, a conductance that loads the base by the zero
+    over the Miller corner: fz/f_high_miller for each.  Products of the terms
+    add their product: (Σ)(1 + Σ).
+
+    Phase.  The sum of the low poles equals the sum of the short-circuit
+    corners and the sum of the high time constants the sum of the open-
+    circuit ones (Gray, Hurst, Lewis & Meyer, the time-constant methods),
+    and atan(x) ≤ x: the phase moves by at most (Σ short-circuit corners +
+    fz)/f + f·2πΣτ_oc + f/(each feed-forward zero), in radians.
+    """
+    s, t, r = d.stage, d.transistor, fig.response
+    follower = d.topology == "emitter-follower"
+    fz = 0.0 if follower or s.re2 == 0 else 1.0 / (2 * math.pi * s.re2 * s.ce)
+    low = (1 + 2 * (fz / fig.f_low) ** 2) * (fig.f_low / f) ** 2 + 0.5 * (fz / f) ** 2
+    g_m = fig.gm / (1 + fig.gm * (0.0 if follower else s.re1))
+    zeros = [g_m / (2 * math.pi * c) for c in (t.cmu, fig.c_pi) if c > 0]
+    at_corner = sum((fig.f_high / z) ** 2 for z in zeros)
+    high = ((1 + math.sqrt(2)) if follower else 1.0) * (1 + 2 * at_corner) * (f / fig.f_high) ** 2 \
+        + 0.5 * sum((f / z) ** 2 for z in zeros)
+    c_in = fig.c_pi + t.cmu * (1 + fig.gm * s.rc) + (d.load.cl / (fig.beta_ac + 1) if follower else 0.0)
+    flat = c_in / s.cin + d.load.cl / s.cout + (0.0 if follower else fig.c_pi / s.ce)
+    node_zeros = [p.freq for p in r.low_parts if math.isfinite(p.freq)] + [fz]
+    if math.isfinite(d.load.rl):
+        node_zeros.append(1.0 / (2 * math.pi * d.load.rl * s.cout))
+    if math.isfinite(r.f_high_miller):
+        flat += sum(node_zeros) / r.f_high_miller
+    total = low + high + flat
+    sc_sum = sum(p.freq for p in r.low_parts if math.isfinite(p.freq))
+    oc_sum = sum(p.tau for p in r.high_parts)
+    phase = (sc_sum + fz) / f + f * 2 * math.pi * oc_sum + sum(f / z for z in zeros)
+    return total * (1 + total), math.degrees(phase)
 
 
 @pytest.mark.parametrize("topology", ["common-emitter", "emitter-follower"])

@@ -9,12 +9,13 @@ previous run, so a wrong engine or a wrong wire-up both fail here.
 from __future__ import annotations
 
 import errno
-import io
+import html
 import math
 import pathlib
+import re
 
 import pytest
-from rich.console import Console
+from rich.cells import cell_len
 
 import tui.app
 from textual.worker import WorkerCancelled
@@ -37,14 +38,32 @@ LARGE = (120, 40)
 # -- helpers ------------------------------------------------------------------
 
 
+#: One run of text in Rich's SVG export (what ``App.export_screenshot``
+#: returns): its left edge, its width and the line it is clipped to.
+_SVG_TEXT = re.compile(r'<text class="[^"]*" x="([0-9.]+)" y="[0-9.]+" textLength="([0-9.]+)" '
+                       r'clip-path="url\(#[^)]*-line-([0-9]+)\)">([^<]*)</text>')
+
+
 def screen_text(app) -> str:
-    """The screen as plain text: the same render ``export_screenshot`` makes,
-    exported as text instead of SVG, so tests read what a person would see
-    (including anything cropped or hidden by the layout)."""
-    console = Console(width=app.size.width, height=app.size.height, file=io.StringIO(),
-                      record=True, force_terminal=True, color_system="truecolor", legacy_windows=False)
-    console.print(app.screen._compositor.render_update(full=True, screen_stack=app._background_screens))
-    return console.export_text()
+    """The screen as plain text, read back from ``App.export_screenshot``
+    (public Textual API), so tests read what a person would see, including
+    anything cropped or hidden by the layout and any dialog over the screen.
+
+    Rich writes each run of text at x = column · (cell width) on its own
+    clipped line; the cell width is a run's textLength over its length in cells.
+    """
+    width, height = app.size
+    rows = [[" "] * width for _ in range(height)]
+    runs = [(float(x), float(length), int(line), html.unescape(text).replace("\xa0", " "))
+            for x, length, line, text in _SVG_TEXT.findall(app.export_screenshot())]
+    runs = [run for run in runs if cell_len(run[3]) > 0]
+    cell = runs[0][1] / cell_len(runs[0][3])
+    for x, _, line, text in runs:
+        column = round(x / cell)
+        for offset, char in enumerate(text):
+            if column + offset < width:
+                rows[line][column + offset] = char
+    return "\n".join("".join(row).rstrip() for row in rows) + "\n"
 
 
 def region_text(app, selector: str) -> str:

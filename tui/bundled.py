@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import importlib.resources
 import pathlib
 
 #: The design `stageledger` opens when given no file.
@@ -13,13 +14,29 @@ _HERE = pathlib.Path(__file__).resolve().parent
 def demo_dir() -> pathlib.Path:
     """The folder holding the bundled demo designs.
 
-    Installed, they are the package data folder ``tui/demos`` (mapped from
-    saved_designs/ in pyproject.toml); in a source checkout that folder does
-    not exist, so fall back to the top-level saved_designs/.
+    pyproject.toml ships saved_designs/ as the package ``tui.demos``, and the
+    three ways of running find it differently:
+
+    * a regular install has the folder ``tui/demos`` beside this module;
+    * a source tree (and an editable install, which runs a source tree) has
+      saved_designs/ beside the ``tui`` package, and that copy is looked at
+      before the import system is asked, so a checkout run with
+      ``python -m tui`` shows its own demos even when another checkout is
+      installed editable (whose finder would map ``tui.demos`` to that one);
+    * otherwise the import system is asked for ``tui.demos``, which also
+      covers an editable install whose finder maps the package elsewhere.
     """
-    installed = _HERE / "demos"
-    if (installed / DEFAULT_DEMO).is_file():
-        return installed
+    for folder in (_HERE / "demos", _HERE.parent / "saved_designs"):
+        if (folder / DEFAULT_DEMO).is_file():
+            return folder
+    try:
+        demo = importlib.resources.files("tui.demos") / DEFAULT_DEMO
+    except ImportError:  # setuptools' editable finder cannot import a folder without __init__.py
+        demo = None
+    if demo is not None and demo.is_file():
+        return pathlib.Path(str(demo)).parent
+    # Nothing found: name the place a source tree keeps them, so the error
+    # that follows (opening the demo) points at a real, missing path.
     return _HERE.parent / "saved_designs"
 
 
