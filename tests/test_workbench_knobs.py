@@ -11,7 +11,7 @@ import pytest
 from textual import events
 
 from model.analysis import analyse
-from model.design import with_values
+from model.design import get_value, with_values
 from model.designfile import read_document
 from test_workbench import LARGE, SMALL, field, header_row, knobs, readout_row, saved, status, type_into
 from tui.launch import make_app
@@ -118,6 +118,35 @@ async def test_f9_abandons_this_row_as_escape_does(preamp):
         assert field(app, "bias.r2").value == field_text("bias.r2", committed.bias.r2)
         assert "still pending bias.r1 = 270k" in status(app)
         assert "candidate" in header_row(app)
+
+
+async def test_invalid_text_on_the_first_row_after_start_or_a_tab_in_gives_back_its_value(preamp):
+    """The editor's arrival is a checkpoint (tests/test_workstate.py) also
+    where no KnobMoved comes: on the row it starts on, and on the row a Tab
+    from outside the panel brings it to.  "5x" passes through a valid "5",
+    which must not stay pending."""
+    app = make_app(str(preamp))
+    async with app.run_test(size=SMALL) as pilot:
+        committed = app.design
+        panel = knobs(app)
+        assert panel.key == "supply.vcc"
+        await pilot.press("5", "x", "tab")
+        await pilot.pause()
+        assert app.candidate is None, app.candidate
+        assert "(committed)" in status(app)
+        assert panel.text("supply.vcc") == field_text("supply.vcc", committed.supply.vcc)
+
+        # Shift+Tab from the first row leaves the panel; the next comes back
+        # to the last row, a number (the estimate's vbe).
+        panel.select(panel.keys[0])
+        await pilot.press("shift+tab", "shift+tab")
+        await pilot.pause()
+        last = panel.keys[-1]
+        assert app.focused is panel.editor and panel.key == last
+        await pilot.press("1", "x", "shift+tab")
+        await pilot.pause()
+        assert app.candidate is None, app.candidate
+        assert panel.text(last) == field_text(last, get_value(committed, last))
 
 
 def _typed(app, *keys: str) -> None:

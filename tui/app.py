@@ -133,6 +133,9 @@ class Workbench(Editing, PicturesPane, App):
         # Start on the supply, the first value people tune; the name is above it.
         # At once, not queued: keys typed while the screen first draws must reach it.
         self._home.set_focus(self._knobs.editor)
+        # Arrivals are checkpoints (see WorkState.move); this one and a Tab
+        # into the panel (_entered_knobs) come with no KnobMoved.
+        self.state.checkpoint(self._knobs.key)
         self._say("Tab moves, type or Up/Down to try a value, Enter commits, Esc abandons, F1 help")
 
     @property
@@ -261,6 +264,7 @@ class Workbench(Editing, PicturesPane, App):
         knobs = self._knobs
         if self.screen is self._home and self.focused is knobs.editor:
             knobs.select(knobs.keys[0] if first else knobs.keys[-1])
+            self.state.checkpoint(knobs.key)
 
     def action_abandon(self) -> None:
         self.on_knob_abandoned(KnobAbandoned(self._knobs.key))
