@@ -1,7 +1,9 @@
 """The workbench: Knobs beside a live Readout, with Pictures and the Ledger.
 
 The app owns the open design (through a :class:`~model.session.DesignSession`)
-and routes messages; it does no physics.  Each keystroke in a field makes a
+and routes messages; it does no physics.  What is committed, pending, invalid
+or pinned is a plain object (:class:`~tui.workstate.WorkState`): the app hands
+it each message and shows what it returns.  Each keystroke in a field makes a
 candidate design whose quick figures (operating point, midband, dissipation)
 are computed at once; the slower sweeps (swing, distortion, frequency
 response) run in a thread worker, debounced, and post their result back.
@@ -27,10 +29,10 @@ from model.savefile import atomic_write
 from model.session import DesignSession
 
 from .editing import Editing
+from .messages import LargeSignalReady
 from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
 from .screens import HelpScreen, NotePrompt
-from .messages import LargeSignalReady
 from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
