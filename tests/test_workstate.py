@@ -13,7 +13,12 @@ stays in the Pilot tests (tests/test_workbench*.py) and tests/test_terminal.py.
 
 from __future__ import annotations
 
+import functools
+import pathlib
+
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from model.analysis import analyse
 from model.design import get_value, with_values
@@ -405,3 +410,47 @@ def test_the_sweeps_figures_are_kept_only_for_the_design_on_show(state):
     # The committed design's own figures are kept for when the candidate goes.
     again = analyse(committed)
     assert state.take_figures(committed, again) and state.figures is again
+
+
+# -- any sequence of messages ------------------------------------------------------
+
+DEMO = pathlib.Path(__file__).resolve().parent.parent / "saved_designs" / "geophone_preamp.toml"
+ROWS = ("supply.vcc", "bias.r1", "bias.r2", "stage.rc", "stage.re1", "load.rl")
+#: Valid and invalid texts alike: prefixes ("1e", "-"), words, zero, an open load.
+TEXTS = ("10k", "4k7", "270k", "47", "0", "open", "abc", "-", "1e", "", " 12 ", "-3")
+MESSAGES = st.one_of(
+    st.tuples(st.just("edit"), st.sampled_from(ROWS), st.sampled_from(TEXTS)),
+    st.tuples(st.just("step"), st.sampled_from(ROWS), st.sampled_from((1, -1)), st.booleans()),
+    st.tuples(st.just("move"), st.sampled_from(ROWS), st.sampled_from(ROWS)),
+    st.tuples(st.just("abandon"), st.sampled_from(ROWS)),
+)
+
+
+@functools.cache
+def _demo() -> tuple:
+    design = read_document(DEMO).design
+    return design, analyse(design)
+
+
+# derandomize: the same examples on every run, so the suite cannot fail by chance.
+@settings(max_examples=40, derandomize=True, database=None, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(MESSAGES, max_size=12))
+def test_whatever_arrives_the_candidate_is_the_committed_design_with_its_texts(messages):
+    """Without a commit the committed design never moves, the candidate is
+    always the committed design with its pending texts applied (never an
+    invalid design), each pending row shows its candidate value, and
+    abandoning every row leaves nothing pending or invalid."""
+    committed, figures = _demo()
+    state = WorkState(committed, figures)
+    for message in messages:
+        getattr(state, message[0])(*message[1:])
+        assert state.design is committed
+        if state.candidate is not None:
+            assert state.candidate.changes, message
+            assert state.candidate.design == with_values(committed, dict(state.candidate.changes)), message
+            for key in state.candidate.changes:
+                assert state.row_text(key) == field_text(key, get_value(state.candidate.design, key))
+    for key in ROWS:
+        state.abandon(key)
+    assert state.candidate is None and state.broken == {}
