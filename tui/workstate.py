@@ -130,6 +130,8 @@ class WorkState:
         return self.design, self.figures
 
     def comparison(self) -> Comparison:
+        """The readout's columns: the baseline if one is pinned, else the
+        committed design beside a candidate."""
         shown = self.candidate.figures if self.candidate else self.figures
         if self.baseline:
             reference, ref_label = self.baseline.figures, self.baseline.label
