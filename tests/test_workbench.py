@@ -22,12 +22,13 @@ from textual.worker import WorkerCancelled
 from model.analysis import analyse
 from model.design import with_values
 from model.designfile import read_document
+from model.stepping import step, step_decade
 from model.savefile import LockHeld
 from model.session import DesignSession
 from tui.bundled import default_demo, demo_dir
 from tui.launch import make_app
 from tui.screens import HelpScreen, NotePrompt
-from tui.widgets.knobs import Knobs
+from tui.widgets.knobs import Knobs, field_text
 from tui.widgets.ledger_pane import LedgerPane
 
 DEMOS = pathlib.Path(__file__).resolve().parent.parent / "saved_designs"
@@ -255,103 +256,57 @@ async def test_escape_abandons_the_candidate(preamp):
 
 
 # -- stepping ---------------------------------------------------------------------
+# The stepping rules (the series, decades, a pending value's start, F5) are
+# tested on the plain state in tests/test_workstate.py; this is the wiring.
 
 
-async def test_stepping_along_the_series_across_a_decade(preamp):
+async def test_the_stepping_keys_step_the_row_the_editor_is_on(preamp):
+    """PgUp/PgDn by a decade, Up/Down along the series; the editor shows the
+    stepped value, marked as a candidate."""
     app = make_app(str(preamp))
     async with app.run_test(size=SMALL) as pilot:
-        assert app.design.parts.series == "E24"
-        await type_into(pilot, "stage.rc", "9.1k")
-        await pilot.press("enter")
-        await pilot.pause()
-        assert app.design.stage.rc == 9.1e3
+        committed = app.design
         rc = field(app, "stage.rc")
-        committed_text = rc.value
-
-        # 9.1k is the last E24 value of its decade: the next one is 10k.
-        await pilot.press("up")
         await pilot.pause()
-        assert app.candidate.design.stage.rc == 10e3
-        assert rc.value.startswith("10 k")
-
-        # Back down lands on the committed value, which is no candidate at all.
-        await pilot.press("down")
-        await pilot.pause()
-        assert app.candidate is None
-        assert rc.value == committed_text
-
-        await pilot.press("pageup")
-        await pilot.pause()
-        assert app.candidate.design.stage.rc == pytest.approx(91e3)
-        await pilot.press("pagedown", "pagedown")
-        await pilot.pause()
-        assert app.candidate.design.stage.rc == pytest.approx(910.0)
-
-        # Stepping previews; only Enter saves.
-        assert [e.action for e in app.session.history] == ["start", "set"]
-        assert read_document(preamp).design.stage.rc == 9.1e3
-
-        # F5 moves to E96, as a logged change, and Up then follows E96:
-        # 9.1k steps to a value below 10k.
-        await pilot.press("escape", "f5")
-        await pilot.pause()
-        assert app.design.parts.series == "E96"
-        entry = app.session.history[-1]
-        assert [(c.key, c.old, c.new) for c in entry.changes] == [("parts.series", "E24", "E96")]
-        assert read_document(preamp).design.parts.series == "E96"
-        await pilot.press("up")
-        await pilot.pause()
-        assert 9.1e3 < app.candidate.design.stage.rc < 10e3
+        value = committed.stage.rc
+        for key, moved in (("pageup", lambda v: step_decade("stage.rc", v, 1)),
+                           ("down", lambda v: step("stage.rc", v, -1, committed.parts.series)),
+                           ("pagedown", lambda v: step_decade("stage.rc", v, -1))):
+            await pilot.press(key)
+            await pilot.pause()
+            value = moved(value)
+            assert app.candidate.design == with_values(committed, {"stage.rc": value}), key
+            assert rc.value == field_text("stage.rc", value) and rc.has_class("-candidate"), key
+        assert read_document(preamp).design == committed  # stepping previews; only Enter saves
 
 
 # -- invalid input ----------------------------------------------------------------
+# The rules are tested on the plain state in tests/test_workstate.py; this is
+# the wiring: the editor's mark, the ✗ status line, and the mark cleared on Tab.
 
 
-async def test_invalid_input_is_refused_and_the_last_candidate_stays(preamp):
+async def test_invalid_text_is_marked_and_refused_on_screen(preamp):
     before = saved(preamp)
     app = make_app(str(preamp))
     async with app.run_test(size=SMALL) as pilot:
         rc = field(app, "stage.rc")
-        committed = rc.value
-        # With no candidate at all, Enter on bad text is still an error, not
-        # "nothing to commit".
+        await type_into(pilot, "stage.rc", "10k")
         await type_into(pilot, "stage.rc", "abc")
-        assert app.candidate is None
+        assert rc.value == "abc" and rc.has_class("-invalid")
+        assert status(app).startswith("✗") and "not a number" in status(app)
+        # The readout still shows the last valid candidate, not the broken text.
+        gain = analyse(with_values(app.design, {"stage.rc": 10e3}), large_signal=False).av_loaded
+        assert f"{gain:+.4g}" in readout_row(app, "av_loaded")
+        assert "candidate" in header_row(app)
+
         await pilot.press("enter")
         await pilot.pause()
         assert status(app).startswith("✗ not committed") and "not a number" in status(app)
-        # Moving away does not keep the broken text, and says so.
         await pilot.press("tab")
         await pilot.pause()
         assert knobs(app).key == "stage.re1" and not rc.has_class("-invalid")
-        assert "'abc' is not valid and was dropped" in status(app) and committed in status(app)
-        assert knobs(app).text("stage.rc") == committed
-        await pilot.press("shift+tab")
-        await pilot.pause()
-        assert knobs(app).key == "stage.rc" and rc.value == committed and app.candidate is None
-
-        # (typed text, the rule the status names, the last valid candidate's rc):
-        # "1e" passes through "1", a valid 1 Ω, on the way.
-        for bad, rule, last_valid in (("abc", "not a number", 10e3),
-                                      ("-", "not a number", 10e3),
-                                      ("1e", "exponent has no digits", 1.0)):
-            await type_into(pilot, "stage.rc", "10k")
-            await type_into(pilot, "stage.rc", bad)
-            assert rc.value == bad
-            assert rc.has_class("-invalid")
-            assert status(app).startswith("✗") and rule in status(app), bad
-
-            # The readout still shows the last valid candidate, not the broken text.
-            expected = with_values(app.design, {"stage.rc": last_valid})
-            assert app.candidate.design == expected
-            gain = analyse(expected, large_signal=False).av_loaded
-            assert f"{gain:+.4g}" in readout_row(app, "av_loaded")
-            assert "candidate" in header_row(app)
-
-            await pilot.press("enter")
-            await pilot.pause()
-            assert status(app).startswith("✗ not committed") and rule in status(app), bad
-            assert app.session.history == []
+        assert status(app).startswith("✗") and "'abc' is not valid and was dropped" in status(app)
+        assert app.session.history == []
     assert saved(preamp) == before
 
 

@@ -1,7 +1,9 @@
 """The workbench: Knobs beside a live Readout, with Pictures and the Ledger.
 
 The app owns the open design (through a :class:`~model.session.DesignSession`)
-and routes messages; it does no physics.  Each keystroke in a field makes a
+and routes messages; it does no physics.  What is committed, pending, invalid
+or pinned is a plain object (:class:`~tui.workstate.WorkState`): the app hands
+it each message and shows what it returns.  Each keystroke in a field makes a
 candidate design whose quick figures (operating point, midband, dissipation)
 are computed at once; the slower sweeps (swing, distortion, frequency
 response) run in a thread worker, debounced, and post their result back.
@@ -10,7 +12,6 @@ The pictures are built and drawn in a second worker once those are in.
 
 from __future__ import annotations
 
-import dataclasses
 import os
 import pathlib
 
@@ -21,21 +22,22 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import Footer, Header, OptionList, Static
 
 from model import ledger
-from model.analysis import analyse
-from model.design import Design, SERIES
+from model.analysis import Figures, analyse
+from model.design import Design
 from model.errors import StageledgerError
 from model.savefile import atomic_write
 from model.session import DesignSession
 
 from .editing import Editing
+from .messages import LargeSignalReady
 from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
 from .safe_text import visible
 from .screens import HelpScreen, NotePrompt
-from .state import Baseline, Candidate, LargeSignalReady
 from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
+from .workstate import Baseline, Candidate, Save, WorkState
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.
 DEBOUNCE = 0.15
@@ -73,13 +75,35 @@ class Workbench(Editing, PicturesPane, App):
         self.session = session
         self.source = source
         self.demo_copy_dir = demo_copy_dir
-        self.design = design
-        self.figures = session.figures if session else analyse(design)
-        self.candidate: Candidate | None = None
-        self._broken = {}
-        self.baseline: Baseline | None = None
-        self.note = ""
+        #: The editing state: the committed design, the candidate, the
+        #: baseline and the note; the handlers show what its methods return.
+        self.state = WorkState(design, session.figures if session else analyse(design))
         self._sweep_timer = None
+
+    # What the state holds, by the names the app has always used.
+    @property
+    def design(self) -> Design:
+        return self.state.design
+
+    @property
+    def figures(self) -> Figures:
+        return self.state.figures
+
+    @property
+    def candidate(self) -> Candidate | None:
+        return self.state.candidate
+
+    @property
+    def baseline(self) -> Baseline | None:
+        return self.state.baseline
+
+    @property
+    def note(self) -> str:
+        return self.state.note
+
+    @note.setter
+    def note(self, text: str) -> None:
+        self.state.note = text
 
     # -- layout ---------------------------------------------------------------
 
@@ -112,6 +136,9 @@ class Workbench(Editing, PicturesPane, App):
         # Start on the supply, the first value people tune; the name is above it.
         # At once, not queued: keys typed while the screen first draws must reach it.
         self._home.set_focus(self._knobs.editor)
+        # Arrivals are checkpoints (see WorkState.move); this one and a Tab
+        # into the panel (_entered_knobs) come with no KnobMoved.
+        self.state.checkpoint(self._knobs.key)
         self._say("Tab moves, type or Up/Down to try a value, Enter commits, Esc abandons, F1 help")
 
     @property
@@ -136,14 +163,7 @@ class Workbench(Editing, PicturesPane, App):
     # -- the readout --------------------------------------------------------------
 
     def _refresh_readout(self) -> None:
-        shown = self.candidate.figures if self.candidate else self.figures
-        if self.baseline:
-            reference, ref_label = self.baseline.figures, self.baseline.label
-        elif self.candidate:
-            reference, ref_label = self.figures, "committed"
-        else:
-            reference, ref_label = None, ""
-        shown_label = "candidate" if self.candidate else ("now" if self.baseline else "committed")
+        shown, reference, shown_label, ref_label = self.state.comparison()
         table = readout_table(shown, reference, shown_label=shown_label, reference_label=ref_label,
                               tj_max=self.design.transistor.tj_max)
         # The readout keeps its size from one keystroke to the next, so skip the
@@ -153,7 +173,7 @@ class Workbench(Editing, PicturesPane, App):
         box = self._home.query_one("#warnings", Static)
         if warnings.plain != str(box.content):
             box.update(warnings)
-        design = self.candidate.design if self.candidate else self.design
+        design = self.state.on_show()[0]
         if not shown.large_signal:
             self._schedule_sweep(design)
         else:
@@ -173,15 +193,8 @@ class Workbench(Editing, PicturesPane, App):
         self.post_message(LargeSignalReady(design, figures))
 
     def on_large_signal_ready(self, message: LargeSignalReady) -> None:
-        if not self._in_service():
-            return
-        if self.candidate and self.candidate.design == message.design:
-            self.candidate = dataclasses.replace(self.candidate, figures=message.figures)
-        elif message.design == self.design:
-            self.figures = message.figures
-        else:
-            return
-        self._refresh_readout()
+        if self._in_service() and self.state.take_figures(message.design, message.figures):
+            self._refresh_readout()
 
     def _in_service(self) -> bool:
         """False while the app shuts down: a worker's late result is then dropped."""
@@ -192,35 +205,20 @@ class Workbench(Editing, PicturesPane, App):
         status.update(("✗ " if error else "") + text, layout=False)  # always one line
         status.set_class(error, "-error")
 
-    def _commit(self, act, keep: bool = False) -> None:
-        """Run ``act(session)`` (a commit, undo or redo); report saved or not saved.
-
-        ``keep``: the act is not the candidate's own commit (an undo, redo or
-        series switch), so the candidate's values stay pending on the new
-        committed design, where they still make sense.
-        """
-        pending = self._pending if keep else {}
+    def _commit(self, save: Save) -> None:
+        """Run ``save`` (a commit, undo or redo) through the session; report
+        saved or not saved.  The state moves on only once the file is saved."""
         try:
             session = self._writable_session()
-            entry = act(session)
+            entry = save.run(session)
         except StageledgerError as err:
             self._say(f"not saved: {err}", error=True)
             self.notify(visible(str(err)), title="not saved", severity="error", timeout=8, markup=False)
             return
-        # What happened to pending values comes before the path: at 80
-        # columns the end of the line is cut off.
-        said = f"saved entry #{entry.number} ({entry.action})"
-        if self._broken:
-            said += f"; the invalid text in {', '.join(self._broken)} was dropped"
-        self.design, self.figures = session.design, session.figures
-        self.candidate, self.note = None, ""
-        self._broken.clear()
-        said += self._reapply(pending) + f" to {session.path}"
-        self._checkpoint(self._knobs.key)
-        self._show_knobs()
+        outcome = self.state.saved(save, entry, session.design, session.figures, session.path, self._knobs.key)
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
-        self._say(said)
+        self._apply(outcome)
 
     def _writable_session(self) -> DesignSession:
         if self.session is not None:
@@ -272,6 +270,7 @@ class Workbench(Editing, PicturesPane, App):
         knobs = self._knobs
         if self.screen is self._home and self.focused is knobs.editor:
             knobs.select(knobs.keys[0] if first else knobs.keys[-1])
+            self.state.checkpoint(knobs.key)
 
     def action_abandon(self) -> None:
         self.on_knob_abandoned(KnobAbandoned(self._knobs.key))
@@ -295,32 +294,20 @@ class Workbench(Editing, PicturesPane, App):
         self._home.toggle_class("-show-ledger")
 
     def action_baseline(self) -> None:
-        if self.baseline is not None:
-            self.baseline = None
-            self._say("baseline unpinned: changes are shown against the committed design")
-        else:
-            self.baseline = Baseline("baseline", self.design, self.figures)
-            self._say("baseline pinned: the committed design as it is now")
-        self._refresh_readout()
+        self._apply(self.state.toggle_baseline())
 
     def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
         number = int(event.option.id.split("-")[1])
-        design = ledger.replay(self.history, number)
-        self.baseline = Baseline(f"#{number}", design, analyse(design))
-        self._say(f"baseline pinned: the design after entry #{number} (F4 unpins)")
-        self._refresh_readout()
+        self._apply(self.state.pin(number, ledger.replay(self.history, number)))
 
     def action_cycle_series(self) -> None:
-        current = self.design.parts.series
-        wanted = next((s for s in ("E12", "E24", "E96") if SERIES.index(s) > SERIES.index(current)), "E12")
-        self._commit(lambda s: s.commit({"parts.series": wanted}, self.note or f"step along {wanted}"),
-                     keep=True)
+        self._commit(self.state.next_series())
 
     def action_undo(self) -> None:
-        self._commit(lambda s: s.undo(self.note), keep=True)
+        self._commit(self.state.undo())
 
     def action_redo(self) -> None:
-        self._commit(lambda s: s.redo(self.note), keep=True)
+        self._commit(self.state.redo())
 
     def on_unmount(self) -> None:
         if self.session is not None:

@@ -1,6 +1,6 @@
 """The workbench's Pictures: which picture is on show, and the worker that
-builds and draws it (a mixin of :class:`~tui.app.Workbench`, which owns the
-state it reads: the design, the candidate and the figures on show)."""
+builds and draws it (a mixin of :class:`~tui.app.Workbench`; which design
+and figures are on show is the editing state's ``on_show``)."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ from model.design import Design
 
 from .chart import render_stack
 from .pictures import PICTURES, charts_for
-from .state import PictureReady
+from .messages import PictureReady
 from .widgets.picture import Picture
 
 
@@ -52,8 +52,7 @@ class PicturesPane:
     def on_picture_ready(self, message: PictureReady) -> None:
         if not self._in_service():
             return
-        shown = self.candidate.design if self.candidate else self.design
-        if message.design != shown or message.kind != self.picture_kind:
+        if message.design != self.state.on_show()[0] or message.kind != self.picture_kind:
             return
         self._home.query_one(Picture).show(message.charts, message.rendered)
 
@@ -63,9 +62,9 @@ class PicturesPane:
     def _refresh_picture(self) -> None:
         if not self._in_service():
             return
-        shown = self.candidate.figures if self.candidate else self.figures
-        if shown.large_signal:
-            self._schedule_picture(self.candidate.design if self.candidate else self.design, shown)
+        design, figures = self.state.on_show()
+        if figures.large_signal:
+            self._schedule_picture(design, figures)
 
     def action_picture(self) -> None:
         """Show the pictures (on a narrow screen), or step to the next one."""

@@ -21,8 +21,9 @@ from textual.message import Message
 from textual.widgets import Input, Static
 from textual.widgets.input import Selection
 
-from model.design import FIELDS, Design, file_word, get_value, keys_for
-from model.units import format_si, parse_value
+from model.design import Design, get_value, keys_for
+
+from ..fieldtext import field_text
 
 from ..safe_text import visible
 
@@ -35,35 +36,6 @@ GROUPS = (
 
 #: Columns of the label in front of each value.
 LABEL_WIDTH = 13
-
-
-def field_text(key: str, value) -> str:
-    """A value as the field shows it: SI prefix and unit, with as many figures
-    as it takes to read back exactly (so an untouched field never changes)."""
-    if isinstance(value, str):
-        return value
-    unit = FIELDS[key].unit if key in FIELDS else ""
-    word = file_word(key, value)
-    if word is not None:
-        return word
-    if unit == "°C":
-        return f"{value:g}"
-    for digits in range(3, 13):
-        text = format_si(value, unit, digits)
-        try:
-            if parse_value(text, unit) == value:
-                return _trim(text)
-        except ValueError:
-            break
-    return repr(value)
-
-
-def _trim(text: str) -> str:
-    """ "4.70 kΩ" → "4.7 kΩ": trailing zeros carry no information here."""
-    number, _, rest = text.partition(" ")
-    if "." in number and "e" not in number:
-        number = number.rstrip("0").rstrip(".")
-    return f"{number} {rest}".strip()
 
 
 def layout(design: Design) -> list[tuple[str, str | None]]:

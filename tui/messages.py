@@ -1,0 +1,25 @@
+"""The messages the workbench's workers post back (the editing state itself
+is plain, in tui/workstate.py)."""
+
+from __future__ import annotations
+
+from textual.message import Message
+
+from model.analysis import Figures
+from model.design import Design
+
+
+class LargeSignalReady(Message):
+    """The worker's full analysis of ``design``."""
+
+    def __init__(self, design: Design, figures: Figures):
+        super().__init__()
+        self.design, self.figures = design, figures
+
+
+class PictureReady(Message):
+    """The picture worker's charts of ``design``, and their lines drawn at a size."""
+
+    def __init__(self, design: Design, kind: str, charts: tuple, rendered: tuple):
+        super().__init__()
+        self.design, self.kind, self.charts, self.rendered = design, kind, charts, rendered
