@@ -191,7 +191,10 @@ def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
     volts = node_dict(red.plan, x, red.v)
     per = [_params_of(red.dev, k) for k in range(len(red.bjts))]
     states = {q.name: device.evaluate(p, *junction_voltages(q, volts, p.sign)) for q, p in zip(red.bjts, per)}
-    residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
+    # A part at the edge of float range (a 5e-324 Ω resistor is "valid") gives
+    # inf·0 here; such a row's residual comes out NaN and it is flagged, not raised.
+    with np.errstate(over="ignore", invalid="ignore"):
+        residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
     junctions = np.stack([np.stack(junction_voltages(q, volts, p.sign), axis=-1) for q, p in zip(red.bjts, per)], axis=1)
     return OperatingPoint(volts, states, converged, iterations, residual, junctions)

@@ -279,3 +279,18 @@ def test_small_signal_distortion_is_small(d):
     assume(f.region == "active")
     assume(f.vout_wanted < 0.25 * min(f.swing_up, f.swing_down))
     assert f.thd < 0.01
+
+
+@pytest.mark.parametrize("ohms", [5e-324, 1e-300])
+def test_a_resistor_at_the_edge_of_float_range_is_a_solve_error_not_a_warning(ohms):
+    # 1/5e-324 overflows to inf, and inf·0 in the KCL check is NaN: the row
+    # must come out flagged (SolveError, exit 2 at the CLI), since pytest turns
+    # a stray RuntimeWarning into a failure.
+    from model.errors import SolveError
+
+    design = with_values(default_design("common-emitter"), {"stage.re1": ohms})
+    try:
+        figures = analyse(design)
+    except SolveError:
+        return
+    assert math.isfinite(figures.ic)
