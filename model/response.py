@@ -210,7 +210,9 @@ def _search(stage, op, midband_gain, low, high):
     whose crossing is not inside yet.  Returns (freq, gain, lo, hi, brackets)."""
     est_low = low_estimate(low) or 10.0 ** _LOWEST_DECADE
     est_high = min(high_estimate(high), 10.0 ** _HIGHEST_DECADE)
-    lo = max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE)
+    # A valid but tiny coupling capacitor (1e-20 F) puts its estimate past the
+    # highest decade: start the search one decade below it, never above.
+    lo = min(max(math.floor(math.log10(est_low)) - 1, _LOWEST_DECADE), _HIGHEST_DECADE - 1)
     hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
     while True:
         freq = _grid(lo, hi, POINTS_PER_DECADE, None)

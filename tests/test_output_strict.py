@@ -41,7 +41,9 @@ README = (ROOT / "README.md").read_text(encoding="utf-8")
 LOG_SPANS = {
     "supply.vcc": (0.5, 200.0), "bias.r1": (100.0, 10e6), "bias.r2": (100.0, 10e6),
     "stage.rc": (10.0, 1e6), "stage.re1": (1.0, 1e5), "stage.re2": (1.0, 1e5), "stage.re": (10.0, 1e6),
-    "stage.ce": (1e-9, 1e-2), "stage.cin": (1e-9, 1e-2), "stage.cout": (1e-9, 1e-2),
+    # Down to 1e-24 F: a valid but absurdly small coupling capacitor once put
+    # the response's search grid past its highest decade (exit 3).
+    "stage.ce": (1e-24, 1.0), "stage.cin": (1e-24, 1.0), "stage.cout": (1e-24, 1.0),
     "source.rs": (1.0, 1e6), "source.vpk": (1e-6, 2.0), "source.freq": (0.1, 1e8),
     "load.rl": (10.0, 1e7), "load.cl": (1e-15, 1e-6),
     "transistor.beta": (5.0, 1000.0), "transistor.beta_r": (0.1, 20.0), "transistor.va": (5.0, 1000.0),
@@ -252,3 +254,12 @@ def test_a_zero_gain_point_leaves_its_csv_cell_empty(tmp_path):
     assert all(r[1] is not None for i, r in enumerate(rows) if i != 3)
     table = render_response(design, fig, "x.toml", as_csv=False)
     assert not NOT_IN_WORDS.search(table)
+
+
+@pytest.mark.parametrize("key", ["stage.ce", "stage.cin", "stage.cout"])
+def test_a_valid_tiny_coupling_capacitor_is_reported_not_an_internal_error(tmp_path, key):
+    # 1e-20 F is valid (any capacitance above 0 is) and its short-circuit
+    # corner lies far above 10 THz, the top of the search grid.
+    path = tmp_path / "tiny.toml"
+    path.write_text(dumps_design(with_values(default_design("common-emitter"), {key: 1e-20})), encoding="utf-8")
+    check_outputs(path)
