@@ -41,19 +41,29 @@ def admittance_values(net: Netlist, plan: Plan, omega=None, excite=None, split=F
 def assemble_linear(plan: Plan, g, v):
     """The linear network's A (batch, n, n) and b (batch, n)."""
     batch, n = g.shape[0], plan.n
-    gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
     if batch < SPARSE_FROM:
+        gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
         return (g @ plan.adm_stamp).reshape(batch, n, n), gv @ plan.adm_rhs
-    return (_sparse_product(g, plan.adm_terms, n * n).reshape(batch, n, n),
-            _sparse_product(gv, plan.rhs_terms, n))
+    # b's terms are products g[a]·V[s] for a few (admittance, source) pairs:
+    # formed as needed rather than all of them.
+    pairs = v.shape[1]
+    b = np.zeros((n, batch), dtype=np.result_type(g, v))
+    for col, entries in plan.rhs_terms:
+        for row, c in entries:
+            b[col] += c * (g[:, row // pairs] * v[:, row % pairs])
+    return _sparse_product(g, plan.adm_terms, n * n).reshape(batch, n, n), b.T
 
 
 def _sparse_product(values, terms, width):
-    """values @ M for a sparse M given as (column, ((row, coef), ...)) terms."""
-    out = np.zeros((values.shape[0], width), dtype=values.dtype)
+    """values @ M for a sparse M given as (column, ((row, coef), ...)) terms.
+
+    Built column by column in a (width, batch) array, so each write is
+    contiguous, and returned as its (batch, width) transpose: a view whose
+    columns stay contiguous for the entry-major elimination that reads them."""
+    out = np.zeros((width, values.shape[0]), dtype=values.dtype)
     for col, acc in _sparse_columns(values, terms):
-        out[:, col] = acc
-    return out
+        out[col] = acc
+    return out.T
 
 
 def index_dot(x, c):

@@ -99,7 +99,11 @@ def _eliminate(a, rhs, pivot=True):
     n = a.shape[-1]
     dtype = np.result_type(a, rhs)
     # Entry-major layout makes every step below a contiguous whole-batch operation.
-    m = np.concatenate([a, rhs], axis=-1).astype(dtype, copy=False).transpose(1, 2, 0).copy()
+    # One copy straight into that layout (a matrix assembled entry-major is
+    # then read contiguously).
+    m = np.empty((n, n + rhs.shape[-1], a.shape[0]), dtype=dtype)
+    m[:, :n] = a.transpose(1, 2, 0)
+    m[:, n:] = rhs.transpose(1, 2, 0)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for k in range(n):
             if pivot and k < n - 1:

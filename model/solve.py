@@ -102,14 +102,47 @@ def operating_sweep(net: Netlist, source: str, volts, start=None, max_iter: int 
     is found at 0 V and 1 V and every point is a weighted sum of the two.
     ``start`` is as for :func:`operating_point`, one row per point.
     """
-    volts = np.asarray(volts, dtype=float).reshape(net.batch, -1)
+    return sweep_reduction(net, source).solve(volts, start, max_iter)
+
+
+def sweep_reduction(net: Netlist, source: str) -> "SweepReduction":
+    """``net`` reduced once for sweeps of voltage source ``source``: several
+    :meth:`SweepReduction.solve` calls (a coarse grid, then a finer one) share
+    the assembly and elimination."""
     plan = plan_for(net, DC)
     g, v = admittance_values(net, plan)
     v = np.repeat(v, 2, axis=0)
     v[:, plan.constraints.index(source)] = np.tile([0.0, 1.0], net.batch)
     dev = _stack_params([q.params for q in net.of_type(Bjt)])
     dev = device.DeviceParams(*(np.repeat(getattr(dev, f), 2, axis=0) for f in _PARAM_FIELDS))
-    return _solve(_reduce(net, np.repeat(g, 2, axis=0), v, dev).along(volts), start, max_iter)
+    return SweepReduction(net.batch, _reduce(net, np.repeat(g, 2, axis=0), v, dev))
+
+
+@dataclass(frozen=True)
+class SweepReduction:
+    """A batch's DC network reduced with one source at 0 V (even rows of
+    ``pair``) and 1 V (odd rows): every source voltage is a weighted sum."""
+
+    batch: int
+    pair: "_Reduced"
+
+    def solve(self, volts, start=None, max_iter: int = _MAX_ITER) -> OperatingPoint:
+        """As :func:`operating_sweep` with the source at ``volts`` (V)."""
+        volts = np.asarray(volts, dtype=float).reshape(self.batch, -1)
+        return _solve(self.pair.along(volts), start, max_iter)
+
+    def slope(self, op: OperatingPoint) -> np.ndarray:
+        """∂u/∂(source voltage) (batch, k, 2) of the network linearised at
+        ``op`` (one row per design): (I + R·G)⁻¹ ∂u₀/∂v, the small-signal
+        junction voltages per volt of the source."""
+        red = self.pair
+        du0 = (red.u0[1::2] - red.u0[0::2]).T
+        r = _entry_major(red.r[0::2])
+        count = len(red.bjts)
+        dev = _entry_major_params(device.DeviceParams(*(getattr(red.dev, f)[0::2] for f in _PARAM_FIELDS)))
+        st = device.evaluate(dev, *_entry_major(op.junctions).transpose(1, 0, 2))
+        jac = _jacobian(r, st, count)
+        return _solve_entries(jac, du0).T.reshape(self.batch, count, 2)
 
 
 @dataclass(frozen=True)
@@ -322,19 +355,31 @@ def _step(r, u0, dev, u):
     st = device.evaluate(dev, u[:, 0], u[:, 1])
     i = np.stack([st.ic, st.ib], axis=1).reshape(2 * count, -1)
     f = u.reshape(2 * count, -1) - u0 + _matvec(r, i)
-    # G is block-diagonal: each transistor's 2 × 2 ∂(IC, IB)/∂(VBE, VBC).
-    g = ((st.dic_dvbe, st.dic_dvbc), (st.dib_dvbe, st.dib_dvbc))
-    jac = np.empty_like(r)
-    for t in range(count):
-        for c in range(2):
-            jac[:, 2 * t + c] = r[:, 2 * t] * g[0][c][t] + r[:, 2 * t + 1] * g[1][c][t]
-    jac[np.arange(2 * count), np.arange(2 * count)] += 1.0
+    jac = _jacobian(r, st, count)
+    g = _conductances(st)
     step = -_solve_entries(jac, f)
     di = np.empty_like(step)
     for t in range(count):
         for a in range(2):
             di[2 * t + a] = g[a][0][t] * step[2 * t] + g[a][1][t] * step[2 * t + 1]
     return step.reshape(count, 2, -1), i + di
+
+
+def _conductances(st: device.JunctionState):
+    """G's 2 × 2 blocks: g[a][c][t] = ∂(IC, IB)[a]/∂(VBE, VBC)[c] of transistor t."""
+    return ((st.dic_dvbe, st.dic_dvbc), (st.dib_dvbe, st.dib_dvbc))
+
+
+def _jacobian(r, st: device.JunctionState, count: int):
+    """I + R·G (2k, 2k, b) on entry-major arrays; G is block-diagonal: each
+    transistor's 2 × 2 ∂(IC, IB)/∂(VBE, VBC)."""
+    g = _conductances(st)
+    jac = np.empty_like(r)
+    for t in range(count):
+        for c in range(2):
+            jac[:, 2 * t + c] = r[:, 2 * t] * g[0][c][t] + r[:, 2 * t + 1] * g[1][c][t]
+    jac[np.arange(2 * count), np.arange(2 * count)] += 1.0
+    return jac
 
 
 def _matvec(m, x):
@@ -354,8 +399,9 @@ def _solve_entries(m, f):
 
 
 def _entry_major(a):
-    """(batch, …) → (…, batch), contiguous."""
-    return np.ascontiguousarray(np.moveaxis(a, 0, -1))
+    """(batch, …) → (…, batch), contiguous.  (A plain transpose: np.moveaxis
+    costs several times the copy on the small arrays of one design.)"""
+    return np.ascontiguousarray(a.transpose(*range(1, a.ndim), 0))
 
 
 def _entry_major_params(p: device.DeviceParams) -> device.DeviceParams:
