@@ -79,7 +79,9 @@ def _cofactor(a, rhs):
             det = p * s - q * r
             b0, b1 = rhs[:, 0], rhs[:, 1]
             return np.stack([(s * b0 - q * b1) / det, (p * b1 - r * b0) / det], axis=1)
-        m = [[a[:, i, j, None] for j in range(3)] for i in range(3)]
+        # Entry-major copies: every product below then runs over contiguous rows.
+        at = np.ascontiguousarray(a.transpose(1, 2, 0))
+        m = [[at[i, j, None] for j in range(3)] for i in range(3)]
         c00 = m[1][1] * m[2][2] - m[1][2] * m[2][1]
         c01 = m[1][2] * m[2][0] - m[1][0] * m[2][2]
         c02 = m[1][0] * m[2][1] - m[1][1] * m[2][0]
@@ -89,8 +91,9 @@ def _cofactor(a, rhs):
             [c01, m[0][0] * m[2][2] - m[0][2] * m[2][0], m[0][2] * m[1][0] - m[0][0] * m[1][2]],
             [c02, m[0][1] * m[2][0] - m[0][0] * m[2][1], m[0][0] * m[1][1] - m[0][1] * m[1][0]],
         ]
-        b = [rhs[:, 0], rhs[:, 1], rhs[:, 2]]
-        return np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)], axis=1)
+        b = np.ascontiguousarray(rhs.transpose(1, 2, 0))
+        x = np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)])
+        return x.transpose(2, 0, 1)
 
 
 def _eliminate(a, rhs, pivot=True):
