@@ -65,7 +65,7 @@ class OperatingPoint:
     junctions: np.ndarray
 
     def take(self, rows) -> "OperatingPoint":
-        """The solution restricted to some batch rows (an index array)."""
+        """The solution restricted to some batch rows (an index array or a slice)."""
         return OperatingPoint(
             {n: v[rows] for n, v in self.voltages.items()},
             {k: device.JunctionState(*(getattr(st, f)[rows] for f in _STATE_FIELDS)) for k, st in self.states.items()},
@@ -342,9 +342,9 @@ def _active_start(r, u0, dev: device.DeviceParams):
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
-    batch, count = u.shape[0], u.shape[1]
-    step, i = _step(_entry_major(r), _entry_major(u0), _entry_major_params(dev),
-                    _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch))
+    # Entry-major views rather than copies: one step reads each entry once.
+    step, i = _step(r.transpose(1, 2, 0), u0.T, device.DeviceParams(*(getattr(dev, f).T for f in _PARAM_FIELDS)),
+                    u.transpose(1, 2, 0))
     return step.transpose(2, 0, 1), i.T
 
 

@@ -100,7 +100,7 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
 
     if region_of(op.states[TRANSISTOR].ic, op.junctions[:, 0, 1])[0] != ACTIVE:
         return LargeSignal(0.0, 0.0, thd, hd2, hd3, (0.0, 0.0), grid, curve_out)
-    coarse = sol.take(np.arange(grid.size))
+    coarse = sol.take(slice(0, grid.size))
     brackets = _brackets(coarse, grid)
     if span < full and any(i == j for i, j in brackets):
         grid = _sweep(full)
