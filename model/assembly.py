@@ -73,10 +73,11 @@ def index_dot(x, c):
     batches, where numpy's fixed cost per call dominates and one product wins."""
     if x.shape[0] < SPARSE_FROM:
         return x @ c
-    out = np.zeros((x.shape[0], c.shape[1]), dtype=np.result_type(x, c))
+    # Summed entry-major (each column one contiguous row), returned transposed.
+    out = np.zeros((c.shape[1], x.shape[0]), dtype=np.result_type(x, c))
     for i, j in zip(*np.nonzero(c)):
-        out[:, j] += c[i, j] * x[:, i]
-    return out
+        out[j] += c[i, j] * x[:, i]
+    return out.T
 
 
 def node_dict(plan: Plan, x, v):

@@ -41,17 +41,20 @@ def solve_batched(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return x[..., 0] if vector else x
 
 
-def solve_dominant(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def solve_dominant(a: np.ndarray, b: np.ndarray, pattern=None) -> np.ndarray:
     """:func:`solve_batched` for diagonally dominant matrices (the nodal
     matrix of a network of positive resistors to known nodes): elimination
     without pivoting is stable there (Golub & Van Loan, *Matrix
     Computations*, on diagonally dominant systems, from memory; the nodal
     matrix is symmetric, so dominant by rows and by columns alike), so big
-    batches skip the pivot search."""
+    batches skip the pivot search.  ``pattern`` (n, n) bool, where given,
+    marks the entries of ``a`` that may be non-zero (the rest are exactly 0
+    in every row): elimination then visits only those and their fill-in."""
     if a.shape[0] < _LAPACK_BELOW or a.shape[-1] <= 3:
         return solve_batched(a, b)
     vector = b.ndim == 2
-    x = _eliminate(a, b[..., None] if vector else b, pivot=False)
+    rhs = b[..., None] if vector else b
+    x = _eliminate(a, rhs, pivot=False) if pattern is None else _eliminate_sparse(a, rhs, pattern)
     return x[..., 0] if vector else x
 
 
@@ -120,6 +123,40 @@ def _eliminate(a, rhs, pivot=True):
             acc = m[k, n:].copy()
             for j in range(k + 1, n):
                 acc -= m[k, j] * x[j]
+            x[k] = acc / m[k, k]
+    return x.transpose(2, 0, 1)
+
+
+def _eliminate_sparse(a, rhs, pattern):
+    """Elimination without pivoting that skips the entries ``pattern`` says
+    are zero (tracking fill-in): the same arithmetic as :func:`_eliminate`
+    less its multiplications by exact zeros.  A DC network reduced onto its
+    junctions is nearly diagonal, so most of the dense work is such."""
+    n = a.shape[-1]
+    dtype = np.result_type(a, rhs)
+    m = np.empty((n, n + rhs.shape[-1], a.shape[0]), dtype=dtype)
+    m[:, :n] = a.transpose(1, 2, 0)
+    m[:, n:] = rhs.transpose(1, 2, 0)
+    nz = np.array(pattern, dtype=bool)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        for k in range(n):
+            below = [i for i in range(k + 1, n) if nz[i, k]]
+            if not below:
+                continue
+            inv = 1.0 / m[k, k]
+            cols = [j for j in range(k + 1, n) if nz[k, j]]
+            for i in below:
+                factor = m[i, k] * inv
+                for j in cols:
+                    m[i, j] -= factor * m[k, j]
+                    nz[i, j] = True
+                m[i, n:] -= factor * m[k, n:]
+        x = np.empty((n, m.shape[1] - n, m.shape[2]), dtype=dtype)
+        for k in range(n - 1, -1, -1):
+            acc = m[k, n:].copy()
+            for j in range(k + 1, n):
+                if nz[k, j]:
+                    acc -= m[k, j] * x[j]
             x[k] = acc / m[k, k]
     return x.transpose(2, 0, 1)
 

@@ -201,7 +201,7 @@ def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
         # junction: every Newton iteration then only multiplies 2k × 2k.
         # The linear part alone: diagonally dominant, no pivoting needed.
         drive = solve_dominant(a, np.concatenate([b[:, :, None], np.broadcast_to(
-            plan.unknown_drive, (g.shape[0], *plan.unknown_drive.shape))], axis=2))
+            plan.unknown_drive, (g.shape[0], *plan.unknown_drive.shape))], axis=2), plan.stamp_pattern)
         t_offset = index_dot(v, plan.term_coef)
         u0 = sign * (index_dot(drive[:, :, 0], plan.unknown_junction) + index_dot(t_offset, plan.term_junction))
         r = sign[:, :, None] * _left(plan.unknown_junction.T, drive[:, :, 1:]) * sign[:, None, :]
