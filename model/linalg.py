@@ -131,33 +131,37 @@ def _eliminate_sparse(a, rhs, pattern):
     """Elimination without pivoting that skips the entries ``pattern`` says
     are zero (tracking fill-in): the same arithmetic as :func:`_eliminate`
     less its multiplications by exact zeros.  A DC network reduced onto its
-    junctions is nearly diagonal, so most of the dense work is such."""
+    junctions is nearly diagonal, so most of the dense work is such.  The
+    matrix is read in place as (batch,) rows, only updated entries becoming
+    new arrays; the right-hand sides are copied once, entry-major, and
+    reduced in place into the solution."""
     n = a.shape[-1]
-    dtype = np.result_type(a, rhs)
-    m = np.empty((n, n + rhs.shape[-1], a.shape[0]), dtype=dtype)
-    m[:, :n] = a.transpose(1, 2, 0)
-    m[:, n:] = rhs.transpose(1, 2, 0)
+    at = a.transpose(1, 2, 0)
+    x = np.array(rhs.transpose(1, 2, 0), dtype=np.result_type(a, rhs))
     nz = np.array(pattern, dtype=bool)
+    changed = {}
+
+    def entry(i, j):
+        return changed[i, j] if (i, j) in changed else at[i, j]
+
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for k in range(n):
             below = [i for i in range(k + 1, n) if nz[i, k]]
             if not below:
                 continue
-            inv = 1.0 / m[k, k]
+            inv = 1.0 / entry(k, k)
             cols = [j for j in range(k + 1, n) if nz[k, j]]
             for i in below:
-                factor = m[i, k] * inv
+                factor = entry(i, k) * inv
                 for j in cols:
-                    m[i, j] -= factor * m[k, j]
+                    changed[i, j] = entry(i, j) - factor * entry(k, j)
                     nz[i, j] = True
-                m[i, n:] -= factor * m[k, n:]
-        x = np.empty((n, m.shape[1] - n, m.shape[2]), dtype=dtype)
+                x[i] -= factor * x[k]
         for k in range(n - 1, -1, -1):
-            acc = m[k, n:].copy()
             for j in range(k + 1, n):
                 if nz[k, j]:
-                    acc -= m[k, j] * x[j]
-            x[k] = acc / m[k, k]
+                    x[k] -= entry(k, j) * x[j]
+            x[k] /= entry(k, k)
     return x.transpose(2, 0, 1)
 
 

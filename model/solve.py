@@ -38,6 +38,8 @@ _V_TOL = 1e-9
 #: Where the start's fixed-point iteration on VBE begins: the junction at 1 mA.
 _START_CURRENT = 1e-3
 _MAX_ITER = 200
+#: From this batch size on, one Newton step copies its inputs entry-major.
+_COPY_FROM = 256
 
 
 def junction_voltages(q: Bjt, v: dict, sign=None):
@@ -200,8 +202,12 @@ def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
         # One solve for the network's own drive and for a unit current in each
         # junction: every Newton iteration then only multiplies 2k × 2k.
         # The linear part alone: diagonally dominant, no pivoting needed.
-        drive = solve_dominant(a, np.concatenate([b[:, :, None], np.broadcast_to(
-            plan.unknown_drive, (g.shape[0], *plan.unknown_drive.shape))], axis=2), plan.stamp_pattern)
+        # The right-hand sides built entry-major (n, 1 + 2k, batch) and passed
+        # as a view: the elimination's own copy then reads them contiguously.
+        rhs = np.empty((plan.n, 1 + plan.unknown_drive.shape[1], g.shape[0]), dtype=np.result_type(b, float))
+        rhs[:, 0] = b.T
+        rhs[:, 1:] = plan.unknown_drive[:, :, None]
+        drive = solve_dominant(a, rhs.transpose(2, 0, 1), plan.stamp_pattern)
         t_offset = index_dot(v, plan.term_coef)
         u0 = sign * (index_dot(drive[:, :, 0], plan.unknown_junction) + index_dot(t_offset, plan.term_junction))
         r = sign[:, :, None] * _left(plan.unknown_junction.T, drive[:, :, 1:]) * sign[:, None, :]
@@ -342,9 +348,10 @@ def _active_start(r, u0, dev: device.DeviceParams):
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
-    # Entry-major views rather than copies: one step reads each entry once.
-    step, i = _step(r.transpose(1, 2, 0), u0.T, device.DeviceParams(*(getattr(dev, f).T for f in _PARAM_FIELDS)),
-                    u.transpose(1, 2, 0))
+    # Entry-major views on a design's few rows (one step reads each entry
+    # once); contiguous copies on big batches, where strided reads cost more.
+    em = _entry_major if u.shape[0] >= _COPY_FROM else (lambda a: a.transpose(*range(1, a.ndim), 0))
+    step, i = _step(em(r), em(u0), device.DeviceParams(*(em(getattr(dev, f)) for f in _PARAM_FIELDS)), em(u))
     return step.transpose(2, 0, 1), i.T
 
 
@@ -438,8 +445,9 @@ def _bmv(m, x):
 
 
 def _left(c, x):
-    """A constant c (n, p) times x (b, p, q) for every batch row b."""
-    out = np.zeros((x.shape[0], c.shape[0], x.shape[2]))
+    """A constant c (n, p) times x (b, p, q) for every batch row b; summed
+    entry-major (each x[:, j] of an entry-major x is then contiguous)."""
+    out = np.zeros((c.shape[0], x.shape[2], x.shape[0]))
     for i, j in zip(*np.nonzero(c)):
-        out[:, i] += c[i, j] * x[:, j]
-    return out
+        out[i] += c[i, j] * x[:, j].T
+    return out.transpose(2, 0, 1)
