@@ -297,7 +297,7 @@ def newton_numpy(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         vt_j, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
         for iterations in range(1, max_iter + 1):
-            step, _ = _step(r, u0, dev, u)
+            step, _ = _step(r, u0, dev, u, currents=False)
             u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
             moved = np.abs(u_new - u).max(axis=(0, 1))
             size = np.abs(u_new).max(axis=(0, 1))
@@ -355,16 +355,19 @@ def newton_step(r, u0, dev: device.DeviceParams, u):
     return step.transpose(2, 0, 1), i.T
 
 
-def _step(r, u0, dev, u):
+def _step(r, u0, dev, u, currents: bool = True):
     """:func:`newton_step` on entry-major arrays: r (2k, 2k, b), u0 (2k, b),
-    dev (k, b), u (k, 2, b).  Returns the step (k, 2, b) and currents (2k, b)."""
+    dev (k, b), u (k, 2, b).  Returns the step (k, 2, b) and currents (2k, b),
+    or None for the currents unless ``currents`` (the loop needs only the step)."""
     count = u.shape[0]
     st = device.evaluate(dev, u[:, 0], u[:, 1])
     i = np.stack([st.ic, st.ib], axis=1).reshape(2 * count, -1)
-    f = u.reshape(2 * count, -1) - u0 + _matvec(r, i)
-    jac = _jacobian(r, st, count)
+    # −F(u) = (u₀ − u) − R·i: the same rounding as negating F afterwards.
+    minus_f = (u0 - u.reshape(2 * count, -1)) - _matvec(r, i)
+    step = _solve_entries(_jacobian(r, st, count), minus_f)
+    if not currents:
+        return step.reshape(count, 2, -1), None
     g = _conductances(st)
-    step = -_solve_entries(jac, f)
     di = np.empty_like(step)
     for t in range(count):
         for a in range(2):
