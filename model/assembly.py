@@ -25,17 +25,23 @@ def admittance_values(net: Netlist, plan: Plan, omega=None, excite=None, split=F
     A capacitor's entry is jωC, or with ``split`` its capacitance C (F) alone.
     """
     real = omega is None
-    g = np.empty((net.batch, len(plan.admittances)), dtype=float if real else complex)
+    # Filled entry-major (each entry one contiguous row) on big batches, and
+    # returned as the (batch, …) transposes: the sparse sums read by entry.
+    big = net.batch >= SPARSE_FROM
+    g = np.empty((len(plan.admittances), net.batch) if big else (net.batch, len(plan.admittances)),
+                 dtype=float if real else complex)
+    cols = g if big else g.T
     for k, name in enumerate(plan.admittances):
         e = net.element(name)
-        g[:, k] = 1.0 / e.r if isinstance(e, Resistor) else (e.c if split else 1j * omega * e.c)
-    v = np.zeros((net.batch, len(plan.constraints)))
+        cols[k] = 1.0 / e.r if isinstance(e, Resistor) else (e.c if split else 1j * omega * e.c)
+    v = np.zeros((len(plan.constraints), net.batch) if big else (net.batch, len(plan.constraints)))
+    rows = v if big else v.T
     for k, name in enumerate(plan.constraints):
         if excite is None:
-            v[:, k] = net.element(name).v
+            rows[k] = net.element(name).v
         elif name in excite:
-            v[:, k] = excite[name]
-    return g, v
+            rows[k] = excite[name]
+    return (g.T, v.T) if big else (g, v)
 
 
 def assemble_linear(plan: Plan, g, v):
