@@ -264,6 +264,8 @@ def analyse_batch(topology: str, values: dict) -> BatchFigures:
             av_source=mid.av_source, rin=mid.rin, rin_base=mid.rin_base, rout=mid.rout,
         ))
     out = {}
+    if len(parts) == 1:  # one shape for every row: the arrays are already in order
+        return BatchFigures(**next(iter(parts.values()))[1])
     for name in BatchFigures.__dataclass_fields__:
         sample = next(iter(parts.values()))[1][name]
         arr = np.empty(n, dtype=sample.dtype if sample.dtype.kind != "U" else object)

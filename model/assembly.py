@@ -25,35 +25,51 @@ def admittance_values(net: Netlist, plan: Plan, omega=None, excite=None, split=F
     A capacitor's entry is jωC, or with ``split`` its capacitance C (F) alone.
     """
     real = omega is None
-    g = np.empty((net.batch, len(plan.admittances)), dtype=float if real else complex)
+    # Filled entry-major (each entry one contiguous row) on big batches, and
+    # returned as the (batch, …) transposes: the sparse sums read by entry.
+    big = net.batch >= SPARSE_FROM
+    g = np.empty((len(plan.admittances), net.batch) if big else (net.batch, len(plan.admittances)),
+                 dtype=float if real else complex)
+    cols = g if big else g.T
     for k, name in enumerate(plan.admittances):
         e = net.element(name)
-        g[:, k] = 1.0 / e.r if isinstance(e, Resistor) else (e.c if split else 1j * omega * e.c)
-    v = np.zeros((net.batch, len(plan.constraints)))
+        cols[k] = 1.0 / e.r if isinstance(e, Resistor) else (e.c if split else 1j * omega * e.c)
+    v = np.zeros((len(plan.constraints), net.batch) if big else (net.batch, len(plan.constraints)))
+    rows = v if big else v.T
     for k, name in enumerate(plan.constraints):
         if excite is None:
-            v[:, k] = net.element(name).v
+            rows[k] = net.element(name).v
         elif name in excite:
-            v[:, k] = excite[name]
-    return g, v
+            rows[k] = excite[name]
+    return (g.T, v.T) if big else (g, v)
 
 
 def assemble_linear(plan: Plan, g, v):
     """The linear network's A (batch, n, n) and b (batch, n)."""
     batch, n = g.shape[0], plan.n
-    gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
     if batch < SPARSE_FROM:
+        gv = (g[:, :, None] * v[:, None, :]).reshape(batch, -1)
         return (g @ plan.adm_stamp).reshape(batch, n, n), gv @ plan.adm_rhs
-    return (_sparse_product(g, plan.adm_terms, n * n).reshape(batch, n, n),
-            _sparse_product(gv, plan.rhs_terms, n))
+    # b's terms are products g[a]·V[s] for a few (admittance, source) pairs:
+    # formed as needed rather than all of them.
+    pairs = v.shape[1]
+    b = np.zeros((n, batch), dtype=np.result_type(g, v))
+    for col, entries in plan.rhs_terms:
+        for row, c in entries:
+            b[col] += c * (g[:, row // pairs] * v[:, row % pairs])
+    return _sparse_product(g, plan.adm_terms, n * n).reshape(batch, n, n), b.T
 
 
 def _sparse_product(values, terms, width):
-    """values @ M for a sparse M given as (column, ((row, coef), ...)) terms."""
-    out = np.zeros((values.shape[0], width), dtype=values.dtype)
+    """values @ M for a sparse M given as (column, ((row, coef), ...)) terms.
+
+    Built column by column in a (width, batch) array, so each write is
+    contiguous, and returned as its (batch, width) transpose: a view whose
+    columns stay contiguous for the entry-major elimination that reads them."""
+    out = np.zeros((width, values.shape[0]), dtype=values.dtype)
     for col, acc in _sparse_columns(values, terms):
-        out[:, col] = acc
-    return out
+        out[col] = acc
+    return out.T
 
 
 def index_dot(x, c):
@@ -63,10 +79,11 @@ def index_dot(x, c):
     batches, where numpy's fixed cost per call dominates and one product wins."""
     if x.shape[0] < SPARSE_FROM:
         return x @ c
-    out = np.zeros((x.shape[0], c.shape[1]), dtype=np.result_type(x, c))
+    # Summed entry-major (each column one contiguous row), returned transposed.
+    out = np.zeros((c.shape[1], x.shape[0]), dtype=np.result_type(x, c))
     for i, j in zip(*np.nonzero(c)):
-        out[:, j] += c[i, j] * x[:, i]
-    return out
+        out[j] += c[i, j] * x[:, i]
+    return out.T
 
 
 def node_dict(plan: Plan, x, v):

@@ -122,22 +122,26 @@ def evaluate(p: DeviceParams, vbe, vbc) -> JunctionState:
     IF = IS(e^{VBE/VT} − 1), IR = IS(e^{VBC/VT} − 1),
     IC = (IF − IR)(1 − VBC/VA) − IR/βR,  IB = IF/βF + IR/βR.
     """
-    # Both junctions in one exp call: on small batches numpy's per-call cost dominates.
-    both = np.stack([vbe, vbc], axis=-1)
-    vt = p.vt[..., None]
+    # Both junctions in one exp call: on small batches numpy's per-call cost
+    # dominates.  Stacked on a new first axis, so each junction's half is
+    # contiguous; shared subexpressions are formed once (same rounding).
+    vt = p.vt
+    if np.shape(vbe) != np.shape(vt) or np.shape(vbc) != np.shape(vt):
+        vbe, vbc, _ = np.broadcast_arrays(vbe, vbc, vt)
+    both = np.stack([vbe, vbc])
     e, de = _exp_limited(both / vt)
-    i_j = p.i_s[..., None] * (e - 1.0)
-    g_j = p.i_s[..., None] * de / vt
-    i_f, i_r = i_j[..., 0], i_j[..., 1]
-    gf, gr = g_j[..., 0], g_j[..., 1]  # dIF/dVBE, dIR/dVBC
+    i_f, i_r = p.i_s * (e - 1.0)
+    gf, gr = p.i_s * de / vt  # dIF/dVBE, dIR/dVBC
     early = 1.0 - vbc / p.va
+    net = i_f - i_r
+    ir_r, gr_r = i_r / p.beta_r, gr / p.beta_r
     return JunctionState(
-        ic=(i_f - i_r) * early - i_r / p.beta_r,
-        ib=i_f / p.beta_f + i_r / p.beta_r,
+        ic=net * early - ir_r,
+        ib=i_f / p.beta_f + ir_r,
         dic_dvbe=gf * early,
-        dic_dvbc=-gr * early - (i_f - i_r) / p.va - gr / p.beta_r,
+        dic_dvbc=-gr * early - net / p.va - gr_r,
         dib_dvbe=gf / p.beta_f,
-        dib_dvbc=gr / p.beta_r,
+        dib_dvbc=gr_r,
     )
 
 

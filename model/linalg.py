@@ -41,17 +41,20 @@ def solve_batched(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return x[..., 0] if vector else x
 
 
-def solve_dominant(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def solve_dominant(a: np.ndarray, b: np.ndarray, pattern=None) -> np.ndarray:
     """:func:`solve_batched` for diagonally dominant matrices (the nodal
     matrix of a network of positive resistors to known nodes): elimination
     without pivoting is stable there (Golub & Van Loan, *Matrix
     Computations*, on diagonally dominant systems, from memory; the nodal
     matrix is symmetric, so dominant by rows and by columns alike), so big
-    batches skip the pivot search."""
+    batches skip the pivot search.  ``pattern`` (n, n) bool, where given,
+    marks the entries of ``a`` that may be non-zero (the rest are exactly 0
+    in every row): elimination then visits only those and their fill-in."""
     if a.shape[0] < _LAPACK_BELOW or a.shape[-1] <= 3:
         return solve_batched(a, b)
     vector = b.ndim == 2
-    x = _eliminate(a, b[..., None] if vector else b, pivot=False)
+    rhs = b[..., None] if vector else b
+    x = _eliminate(a, rhs, pivot=False) if pattern is None else _eliminate_sparse(a, rhs, pattern)
     return x[..., 0] if vector else x
 
 
@@ -79,7 +82,9 @@ def _cofactor(a, rhs):
             det = p * s - q * r
             b0, b1 = rhs[:, 0], rhs[:, 1]
             return np.stack([(s * b0 - q * b1) / det, (p * b1 - r * b0) / det], axis=1)
-        m = [[a[:, i, j, None] for j in range(3)] for i in range(3)]
+        # Entry-major copies: every product below then runs over contiguous rows.
+        at = np.ascontiguousarray(a.transpose(1, 2, 0))
+        m = [[at[i, j, None] for j in range(3)] for i in range(3)]
         c00 = m[1][1] * m[2][2] - m[1][2] * m[2][1]
         c01 = m[1][2] * m[2][0] - m[1][0] * m[2][2]
         c02 = m[1][0] * m[2][1] - m[1][1] * m[2][0]
@@ -89,8 +94,9 @@ def _cofactor(a, rhs):
             [c01, m[0][0] * m[2][2] - m[0][2] * m[2][0], m[0][2] * m[1][0] - m[0][0] * m[1][2]],
             [c02, m[0][1] * m[2][0] - m[0][0] * m[2][1], m[0][0] * m[1][1] - m[0][1] * m[1][0]],
         ]
-        b = [rhs[:, 0], rhs[:, 1], rhs[:, 2]]
-        return np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)], axis=1)
+        b = np.ascontiguousarray(rhs.transpose(1, 2, 0))
+        x = np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)])
+        return x.transpose(2, 0, 1)
 
 
 def _eliminate(a, rhs, pivot=True):
@@ -99,7 +105,11 @@ def _eliminate(a, rhs, pivot=True):
     n = a.shape[-1]
     dtype = np.result_type(a, rhs)
     # Entry-major layout makes every step below a contiguous whole-batch operation.
-    m = np.concatenate([a, rhs], axis=-1).astype(dtype, copy=False).transpose(1, 2, 0).copy()
+    # One copy straight into that layout (a matrix assembled entry-major is
+    # then read contiguously).
+    m = np.empty((n, n + rhs.shape[-1], a.shape[0]), dtype=dtype)
+    m[:, :n] = a.transpose(1, 2, 0)
+    m[:, n:] = rhs.transpose(1, 2, 0)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for k in range(n):
             if pivot and k < n - 1:
@@ -114,6 +124,44 @@ def _eliminate(a, rhs, pivot=True):
             for j in range(k + 1, n):
                 acc -= m[k, j] * x[j]
             x[k] = acc / m[k, k]
+    return x.transpose(2, 0, 1)
+
+
+def _eliminate_sparse(a, rhs, pattern):
+    """Elimination without pivoting that skips the entries ``pattern`` says
+    are zero (tracking fill-in): the same arithmetic as :func:`_eliminate`
+    less its multiplications by exact zeros.  A DC network reduced onto its
+    junctions is nearly diagonal, so most of the dense work is such.  The
+    matrix is read in place as (batch,) rows, only updated entries becoming
+    new arrays; the right-hand sides are copied once, entry-major, and
+    reduced in place into the solution."""
+    n = a.shape[-1]
+    at = a.transpose(1, 2, 0)
+    x = np.array(rhs.transpose(1, 2, 0), dtype=np.result_type(a, rhs))
+    nz = np.array(pattern, dtype=bool)
+    changed = {}
+
+    def entry(i, j):
+        return changed[i, j] if (i, j) in changed else at[i, j]
+
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        for k in range(n):
+            below = [i for i in range(k + 1, n) if nz[i, k]]
+            if not below:
+                continue
+            inv = 1.0 / entry(k, k)
+            cols = [j for j in range(k + 1, n) if nz[k, j]]
+            for i in below:
+                factor = entry(i, k) * inv
+                for j in cols:
+                    changed[i, j] = entry(i, j) - factor * entry(k, j)
+                    nz[i, j] = True
+                x[i] -= factor * x[k]
+        for k in range(n - 1, -1, -1):
+            for j in range(k + 1, n):
+                if nz[k, j]:
+                    x[k] -= entry(k, j) * x[j]
+            x[k] /= entry(k, k)
     return x.transpose(2, 0, 1)
 
 

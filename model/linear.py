@@ -96,21 +96,45 @@ def frequency_sweep(
     batched complex solve rather than a loop over frequencies.  ``excite``
     and ``inject`` are as for :func:`small_signal`.
     """
-    plan = plan_for(net, AC)
-    omega = np.asarray(omega, dtype=float).reshape(-1)
-    g, v = admittance_values(net, plan, excite=excite or {}, split=True)
-    is_cap = np.array([isinstance(net.element(n), Capacitor) for n in plan.admittances], dtype=bool)
-    g_real, g_cap = np.where(is_cap, 0.0, g), np.where(is_cap, g, 0.0)
-    a_g, b_g = _linearised(net, op, plan, g_real, v)
-    with np.errstate(over="ignore", invalid="ignore"):
-        a_c, b_c = assemble_linear(plan, g_cap, v)
-    jw = 1j * omega[None, :, None]
-    a = a_g[:, None] + jw[..., None] * a_c[:, None]
-    b = _add_injections(plan, b_g[:, None] + jw * b_c[:, None], inject)
-    batch, count, n = net.batch, omega.size, plan.n
-    x = solve_batched(a.reshape(batch * count, n, n), b.reshape(batch * count, n))
-    nodes = node_dict(plan, x, np.repeat(v, count, axis=0))
-    return {node: volts.reshape(batch, count) for node, volts in nodes.items()}
+    return FrequencySweep(net, op, excite=excite, inject=inject).nodes(omega)
+
+
+class FrequencySweep:
+    """G and C of the linearised ``net`` at ``op`` assembled once, for several
+    sweeps of the same circuit (a corner search refines its grid in rounds)."""
+
+    def __init__(self, net: Netlist, op: OperatingPoint, *, excite: dict | None = None, inject: dict | None = None):
+        plan = plan_for(net, AC)
+        g, v = admittance_values(net, plan, excite=excite or {}, split=True)
+        is_cap = np.array([isinstance(net.element(n), Capacitor) for n in plan.admittances], dtype=bool)
+        g_real, g_cap = np.where(is_cap, 0.0, g), np.where(is_cap, g, 0.0)
+        a_g, b_g = _linearised(net, op, plan, g_real, v)
+        with np.errstate(over="ignore", invalid="ignore"):
+            a_c, b_c = assemble_linear(plan, g_cap, v)
+        self.plan, self.v, self.batch = plan, v, net.batch
+        self.a_g, self.a_c = a_g[:, None], a_c[:, None]
+        self.b_g, self.b_c = _add_injections(plan, b_g.astype(complex), inject)[:, None], b_c[:, None]
+
+    def _solve(self, omega):
+        omega = np.asarray(omega, dtype=float).reshape(-1)
+        jw = 1j * omega[None, :, None]
+        a = self.a_g + jw[..., None] * self.a_c
+        b = self.b_g + jw * self.b_c
+        n = self.plan.n
+        return solve_batched(a.reshape(-1, n, n), b.reshape(-1, n)), omega.size
+
+    def nodes(self, omega) -> dict:
+        """node → (batch, len(omega)) complex phasors at ``omega`` (rad/s)."""
+        x, count = self._solve(omega)
+        nodes = node_dict(self.plan, x, np.repeat(self.v, count, axis=0))
+        return {node: volts.reshape(self.batch, count) for node, volts in nodes.items()}
+
+    def node(self, name: str, omega) -> np.ndarray:
+        """The phasor (batch, len(omega)) at one node alone."""
+        x, count = self._solve(omega)
+        i = self.plan.nodes.index(name)
+        volts = x @ self.plan.node_pick[:, i] + np.repeat(self.v @ self.plan.node_coef[:, i], count)
+        return volts.reshape(self.batch, count)
 
 
 #: A row whose low-rank system keeps less than this fraction of a removed

@@ -7,6 +7,7 @@ shape.  Node ``"0"`` is ground.
 
 from __future__ import annotations
 
+import copy
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
@@ -166,13 +167,21 @@ _VALUE = {Resistor: "r", Capacitor: "c", VoltageSource: "v"}
 
 def _repeat_element(e, batch: int, n: int):
     if isinstance(e, Bjt):
-        return replace(e, params=e.params.repeat(n))
+        return _with(e, "params", e.params.repeat(n))
     attr = _VALUE[type(e)]
-    return replace(e, **{attr: np.repeat(_batch_array(getattr(e, attr), batch), n)})
+    return _with(e, attr, np.repeat(np.broadcast_to(np.asarray(getattr(e, attr), dtype=float), (batch,)), n))
 
 
 def _take_element(e, batch: int, rows):
     if isinstance(e, Bjt):
-        return replace(e, params=e.params.take(rows))
+        return _with(e, "params", e.params.take(rows))
     attr = _VALUE[type(e)]
-    return replace(e, **{attr: _batch_array(getattr(e, attr), batch)[rows]})
+    return _with(e, attr, np.broadcast_to(np.asarray(getattr(e, attr), dtype=float), (batch,))[rows])
+
+
+def _with(e, attr: str, value):
+    """``e`` with one field replaced: the elements have no checks to rerun,
+    and dataclasses.replace costs more than the copy on a design's netlist."""
+    out = copy.copy(e)
+    object.__setattr__(out, attr, value)
+    return out

@@ -63,6 +63,11 @@ class Plan:
     # The same products as sparse sums, for big batches where a dense matrix
     # product would mostly multiply zeros: each entry is (target, ((i, c), ...)).
     @cached_property
+    def stamp_pattern(self) -> np.ndarray:
+        """(n, n) bool: the entries of A any admittance can reach."""
+        return (self.adm_stamp != 0).any(axis=0).reshape(self.n, self.n)
+
+    @cached_property
     def adm_terms(self):
         return _sparse(self.adm_stamp)
 

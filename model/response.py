@@ -22,7 +22,7 @@ import numpy as np
 
 from .netlist import GROUND, Capacitor
 from .plan import MIDBAND, plan_for
-from .linear import frequency_sweep, small_signal, transfer_impedances
+from .linear import FrequencySweep, small_signal, transfer_impedances
 from .solve import OperatingPoint
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
@@ -34,6 +34,8 @@ POINTS_PER_DECADE = 20
 #: 1/20-decade bracket to about 5e-5 decade before the final interpolation.
 #: The search grid is always POINTS_PER_DECADE dense.
 _REFINE = 32
+#: Exponents 0 … 1 of a refining grid's geometric steps.
+_STEPS = np.linspace(0.0, 1.0, _REFINE)
 _HALF_POWER_DB = -10.0 * math.log10(2.0)
 #: Widest the search goes: the corners of any audio-to-RF stage lie inside.
 _LOWEST_DECADE, _HIGHEST_DECADE = -6, 13
@@ -183,8 +185,9 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     low, high = short_circuit_parts(stage, op), open_circuit_parts(stage, op, z)
     # The corners are searched on a grid of fixed density, so they do not
     # depend on how densely the caller wants the sweep it keeps.
-    freq, gain, lo, hi, (centre, below, above) = _search(stage, op, midband_gain, low, high)
-    f_low, f_high, at_signal = _corners(stage, op, freq, below, above, abs(midband_gain), signal_freq)
+    at = _sweeper(stage, op)
+    freq, gain, lo, hi, (centre, below, above) = _search(at, midband_gain, low, high)
+    f_low, f_high, at_signal = _corners(at, freq, below, above, abs(midband_gain), signal_freq)
     if centre is None:
         f_low = f_high = math.nan
     # The sweep kept spans whole decades from one below the exact f_low to one
@@ -199,13 +202,13 @@ def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance,
     want_hi = min(max(want_hi, math.ceil(math.log10(signal_freq)), want_lo + 1), _HIGHEST_DECADE)
     if (want_lo, want_hi, per_decade, points) != (lo, hi, POINTS_PER_DECADE, None):
         freq = _grid(want_lo, want_hi, per_decade, points)
-        gain = sweep(stage, op, freq)
+        gain = at(freq)
     return Response(freq=freq, gain=gain, midband=midband_gain, f_low=f_low, f_high=f_high,
                     low_parts=low, high_parts=high, f_high_miller=miller_estimate(stage, op, device, z),
                     signal_freq=signal_freq, gain_at_freq=at_signal, device=device)
 
 
-def _search(stage, op, midband_gain, low, high):
+def _search(at, midband_gain, low, high):
     """Sweep whole decades around the estimated corners, widening a side
     whose crossing is not inside yet.  Returns (freq, gain, lo, hi, brackets)."""
     est_low = low_estimate(low) or 10.0 ** _LOWEST_DECADE
@@ -216,7 +219,7 @@ def _search(stage, op, midband_gain, low, high):
     hi = min(max(math.ceil(math.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
     while True:
         freq = _grid(lo, hi, POINTS_PER_DECADE, None)
-        gain = sweep(stage, op, freq)
+        gain = at(freq)
         centre, below, above = _brackets(gain, midband_gain)
         wider_lo = below is None and centre is not None and lo > _LOWEST_DECADE
         wider_hi = above is None and centre is not None and hi < _HIGHEST_DECADE
@@ -236,8 +239,14 @@ def _grid(lo: int, hi: int, per_decade: int, points: int | None) -> np.ndarray:
 def sweep(stage: StageCircuit, op: OperatingPoint, freq: np.ndarray) -> np.ndarray:
     """av_source (complex V/V) at each frequency (Hz) of a single-design stage:
     the load voltage for a 1 V EMF, with every capacitor the netlist holds."""
-    volts = frequency_sweep(stage.net, op, 2.0 * np.pi * freq, excite={EMF: 1.0})
-    return volts[stage.output][0]
+    return _sweeper(stage, op)(freq)
+
+
+def _sweeper(stage: StageCircuit, op: OperatingPoint):
+    """:func:`sweep` as a function of the frequencies alone (Hz), the
+    network assembled once for every call."""
+    solver = FrequencySweep(stage.net, op, excite={EMF: 1.0})
+    return lambda freq: solver.node(stage.output, 2.0 * np.pi * np.asarray(freq, dtype=float))[0]
 
 
 def _brackets(gain: np.ndarray, midband_gain: float):
@@ -262,17 +271,17 @@ def _brackets(gain: np.ndarray, midband_gain: float):
     return centre, below, above
 
 
-def _corners(stage, op, freq, below, above, reference, signal_freq):
+def _corners(at, freq, below, above, reference, signal_freq):
     """Refine both crossings on finer grids, all in one solve per round; the
     first round also evaluates the signal frequency."""
     spans = [(freq[b[0]], freq[b[1]]) for b in (below, above) if b is not None]
     at_signal = None
     for round_ in range(2):
-        grids = [np.geomspace(span[0], span[1], _REFINE) if math.isfinite(span[0]) else np.full(_REFINE, 1.0)
+        grids = [_geometric(span[0], span[1]) if math.isfinite(span[0]) else np.full(_REFINE, 1.0)
                  for span in spans]
         extra = [np.array([signal_freq])] if round_ == 0 else []
         f = np.concatenate(grids + extra) if grids or extra else np.zeros(0)
-        g = sweep(stage, op, f)
+        g = at(f)
         if round_ == 0:
             at_signal = complex(g[-1])
         mags = [np.abs(g[k * _REFINE:(k + 1) * _REFINE]) for k in range(len(grids))]
@@ -281,6 +290,14 @@ def _corners(stage, op, freq, below, above, reference, signal_freq):
     f_low = next(found) if below is not None else 0.0
     f_high = next(found) if above is not None else math.inf
     return f_low, f_high, at_signal
+
+
+def _geometric(a: float, b: float) -> np.ndarray:
+    """_REFINE frequencies (Hz) in geometric progression from a to b, ends
+    exact (np.geomspace's checks cost more than the arithmetic here)."""
+    out = a * (b / a) ** _STEPS
+    out[0], out[-1] = a, b
+    return out
 
 
 def _narrow(grid, magnitude, reference):

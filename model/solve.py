@@ -38,6 +38,8 @@ _V_TOL = 1e-9
 #: Where the start's fixed-point iteration on VBE begins: the junction at 1 mA.
 _START_CURRENT = 1e-3
 _MAX_ITER = 200
+#: From this batch size on, one Newton step copies its inputs entry-major.
+_COPY_FROM = 256
 
 
 def junction_voltages(q: Bjt, v: dict, sign=None):
@@ -65,7 +67,7 @@ class OperatingPoint:
     junctions: np.ndarray
 
     def take(self, rows) -> "OperatingPoint":
-        """The solution restricted to some batch rows (an index array)."""
+        """The solution restricted to some batch rows (an index array or a slice)."""
         return OperatingPoint(
             {n: v[rows] for n, v in self.voltages.items()},
             {k: device.JunctionState(*(getattr(st, f)[rows] for f in _STATE_FIELDS)) for k, st in self.states.items()},
@@ -102,14 +104,47 @@ def operating_sweep(net: Netlist, source: str, volts, start=None, max_iter: int 
     is found at 0 V and 1 V and every point is a weighted sum of the two.
     ``start`` is as for :func:`operating_point`, one row per point.
     """
-    volts = np.asarray(volts, dtype=float).reshape(net.batch, -1)
+    return sweep_reduction(net, source).solve(volts, start, max_iter)
+
+
+def sweep_reduction(net: Netlist, source: str) -> "SweepReduction":
+    """``net`` reduced once for sweeps of voltage source ``source``: several
+    :meth:`SweepReduction.solve` calls (a coarse grid, then a finer one) share
+    the assembly and elimination."""
     plan = plan_for(net, DC)
     g, v = admittance_values(net, plan)
     v = np.repeat(v, 2, axis=0)
     v[:, plan.constraints.index(source)] = np.tile([0.0, 1.0], net.batch)
     dev = _stack_params([q.params for q in net.of_type(Bjt)])
     dev = device.DeviceParams(*(np.repeat(getattr(dev, f), 2, axis=0) for f in _PARAM_FIELDS))
-    return _solve(_reduce(net, np.repeat(g, 2, axis=0), v, dev).along(volts), start, max_iter)
+    return SweepReduction(net.batch, _reduce(net, np.repeat(g, 2, axis=0), v, dev))
+
+
+@dataclass(frozen=True)
+class SweepReduction:
+    """A batch's DC network reduced with one source at 0 V (even rows of
+    ``pair``) and 1 V (odd rows): every source voltage is a weighted sum."""
+
+    batch: int
+    pair: "_Reduced"
+
+    def solve(self, volts, start=None, max_iter: int = _MAX_ITER) -> OperatingPoint:
+        """As :func:`operating_sweep` with the source at ``volts`` (V)."""
+        volts = np.asarray(volts, dtype=float).reshape(self.batch, -1)
+        return _solve(self.pair.along(volts), start, max_iter)
+
+    def slope(self, op: OperatingPoint) -> np.ndarray:
+        """∂u/∂(source voltage) (batch, k, 2) of the network linearised at
+        ``op`` (one row per design): (I + R·G)⁻¹ ∂u₀/∂v, the small-signal
+        junction voltages per volt of the source."""
+        red = self.pair
+        du0 = (red.u0[1::2] - red.u0[0::2]).T
+        r = _entry_major(red.r[0::2])
+        count = len(red.bjts)
+        dev = _entry_major_params(device.DeviceParams(*(getattr(red.dev, f)[0::2] for f in _PARAM_FIELDS)))
+        st = device.evaluate(dev, *_entry_major(op.junctions).transpose(1, 0, 2))
+        jac = _jacobian(r, st, count)
+        return _solve_entries(jac, du0).T.reshape(self.batch, count, 2)
 
 
 @dataclass(frozen=True)
@@ -167,8 +202,12 @@ def _reduce(net: Netlist, g=None, v=None, dev=None) -> _Reduced:
         # One solve for the network's own drive and for a unit current in each
         # junction: every Newton iteration then only multiplies 2k × 2k.
         # The linear part alone: diagonally dominant, no pivoting needed.
-        drive = solve_dominant(a, np.concatenate([b[:, :, None], np.broadcast_to(
-            plan.unknown_drive, (g.shape[0], *plan.unknown_drive.shape))], axis=2))
+        # The right-hand sides built entry-major (n, 1 + 2k, batch) and passed
+        # as a view: the elimination's own copy then reads them contiguously.
+        rhs = np.empty((plan.n, 1 + plan.unknown_drive.shape[1], g.shape[0]), dtype=np.result_type(b, float))
+        rhs[:, 0] = b.T
+        rhs[:, 1:] = plan.unknown_drive[:, :, None]
+        drive = solve_dominant(a, rhs.transpose(2, 0, 1), plan.stamp_pattern)
         t_offset = index_dot(v, plan.term_coef)
         u0 = sign * (index_dot(drive[:, :, 0], plan.unknown_junction) + index_dot(t_offset, plan.term_junction))
         r = sign[:, :, None] * _left(plan.unknown_junction.T, drive[:, :, 1:]) * sign[:, None, :]
@@ -261,7 +300,7 @@ def newton_numpy(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         vt_j, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
         for iterations in range(1, max_iter + 1):
-            step, _ = _step(r, u0, dev, u)
+            step, _ = _step(r, u0, dev, u, currents=False)
             u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
             moved = np.abs(u_new - u).max(axis=(0, 1))
             size = np.abs(u_new).max(axis=(0, 1))
@@ -312,32 +351,48 @@ def _active_start(r, u0, dev: device.DeviceParams):
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
-    batch, count = u.shape[0], u.shape[1]
-    step, i = _step(_entry_major(r), _entry_major(u0), _entry_major_params(dev),
-                    _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch))
+    # Entry-major views on a design's few rows (one step reads each entry
+    # once); contiguous copies on big batches, where strided reads cost more.
+    em = _entry_major if u.shape[0] >= _COPY_FROM else (lambda a: a.transpose(*range(1, a.ndim), 0))
+    step, i = _step(em(r), em(u0), device.DeviceParams(*(em(getattr(dev, f)) for f in _PARAM_FIELDS)), em(u))
     return step.transpose(2, 0, 1), i.T
 
 
-def _step(r, u0, dev, u):
+def _step(r, u0, dev, u, currents: bool = True):
     """:func:`newton_step` on entry-major arrays: r (2k, 2k, b), u0 (2k, b),
-    dev (k, b), u (k, 2, b).  Returns the step (k, 2, b) and currents (2k, b)."""
+    dev (k, b), u (k, 2, b).  Returns the step (k, 2, b) and currents (2k, b),
+    or None for the currents unless ``currents`` (the loop needs only the step)."""
     count = u.shape[0]
     st = device.evaluate(dev, u[:, 0], u[:, 1])
     i = np.stack([st.ic, st.ib], axis=1).reshape(2 * count, -1)
-    f = u.reshape(2 * count, -1) - u0 + _matvec(r, i)
-    # G is block-diagonal: each transistor's 2 × 2 ∂(IC, IB)/∂(VBE, VBC).
-    g = ((st.dic_dvbe, st.dic_dvbc), (st.dib_dvbe, st.dib_dvbc))
-    jac = np.empty_like(r)
-    for t in range(count):
-        for c in range(2):
-            jac[:, 2 * t + c] = r[:, 2 * t] * g[0][c][t] + r[:, 2 * t + 1] * g[1][c][t]
-    jac[np.arange(2 * count), np.arange(2 * count)] += 1.0
-    step = -_solve_entries(jac, f)
+    # −F(u) = (u₀ − u) − R·i: the same rounding as negating F afterwards.
+    minus_f = (u0 - u.reshape(2 * count, -1)) - _matvec(r, i)
+    step = _solve_entries(_jacobian(r, st, count), minus_f)
+    if not currents:
+        return step.reshape(count, 2, -1), None
+    g = _conductances(st)
     di = np.empty_like(step)
     for t in range(count):
         for a in range(2):
             di[2 * t + a] = g[a][0][t] * step[2 * t] + g[a][1][t] * step[2 * t + 1]
     return step.reshape(count, 2, -1), i + di
+
+
+def _conductances(st: device.JunctionState):
+    """G's 2 × 2 blocks: g[a][c][t] = ∂(IC, IB)[a]/∂(VBE, VBC)[c] of transistor t."""
+    return ((st.dic_dvbe, st.dic_dvbc), (st.dib_dvbe, st.dib_dvbc))
+
+
+def _jacobian(r, st: device.JunctionState, count: int):
+    """I + R·G (2k, 2k, b) on entry-major arrays; G is block-diagonal: each
+    transistor's 2 × 2 ∂(IC, IB)/∂(VBE, VBC)."""
+    g = _conductances(st)
+    jac = np.empty_like(r)
+    for t in range(count):
+        for c in range(2):
+            jac[:, 2 * t + c] = r[:, 2 * t] * g[0][c][t] + r[:, 2 * t + 1] * g[1][c][t]
+    jac[np.arange(2 * count), np.arange(2 * count)] += 1.0
+    return jac
 
 
 def _matvec(m, x):
@@ -357,8 +412,9 @@ def _solve_entries(m, f):
 
 
 def _entry_major(a):
-    """(batch, …) → (…, batch), contiguous."""
-    return np.ascontiguousarray(np.moveaxis(a, 0, -1))
+    """(batch, …) → (…, batch), contiguous.  (A plain transpose: np.moveaxis
+    costs several times the copy on the small arrays of one design.)"""
+    return np.ascontiguousarray(a.transpose(*range(1, a.ndim), 0))
 
 
 def _entry_major_params(p: device.DeviceParams) -> device.DeviceParams:
@@ -395,8 +451,9 @@ def _bmv(m, x):
 
 
 def _left(c, x):
-    """A constant c (n, p) times x (b, p, q) for every batch row b."""
-    out = np.zeros((x.shape[0], c.shape[0], x.shape[2]))
+    """A constant c (n, p) times x (b, p, q) for every batch row b; summed
+    entry-major (each x[:, j] of an entry-major x is then contiguous)."""
+    out = np.zeros((c.shape[0], x.shape[2], x.shape[0]))
     for i, j in zip(*np.nonzero(c)):
-        out[:, i] += c[i, j] * x[:, j]
-    return out
+        out[i] += c[i, j] * x[:, j].T
+    return out.transpose(2, 0, 1)

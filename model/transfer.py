@@ -20,8 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .device import critical_voltage
-from .linear import small_signal
-from .solve import OperatingPoint, junction_voltages, operating_sweep
+from .solve import OperatingPoint, sweep_reduction
 from .topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
@@ -82,25 +81,26 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     ``span`` (V) is how far either side of zero the EMF sweep first looks for
     the edges; a side whose edge lies beyond it is searched again out to the
     full ±4·vcc.  A good guess (a few times vcc/|av_source|) saves most of the
-    Newton work, since points far past an edge converge slowly.
+    Newton work, since points far past an edge converge slowly.  The held
+    circuit is reduced once; the coarse grid and the distortion period are one
+    Newton call, the fine grids inside both edge brackets one more.
     """
     held = _held(stage, op)
+    predict = _predictor(stage, op, held)
     out_q = float(op.voltages[stage.output][0])
     full = _SPAN_PER_VOLT * vcc
     span = full if span is None else min(span, full)
     grid = _sweep(span)
-    phase = 2.0 * np.pi * np.arange(FFT_POINTS) / FFT_POINTS
-    wave = vpk * np.sin(phase)
-    predict = _predictor(stage, op)
+    wave, period = _period(vpk)
     points = np.concatenate([grid, wave])
     sol = _solve_at(held, points, predict(points))
     out = sol.voltages[stage.output] - out_q
-    curve_out, wave_out = out[: grid.size], out[grid.size :]
-    thd, hd2, hd3 = _harmonics(wave_out) if vpk > 0 else (0.0, 0.0, 0.0)
+    curve_out = out[: grid.size]
+    thd, hd2, hd3 = _harmonics(out[grid.size :][period]) if vpk > 0 else (0.0, 0.0, 0.0)
 
     if region_of(op.states[TRANSISTOR].ic, op.junctions[:, 0, 1])[0] != ACTIVE:
         return LargeSignal(0.0, 0.0, thd, hd2, hd3, (0.0, 0.0), grid, curve_out)
-    coarse = sol.take(np.arange(grid.size))
+    coarse = sol.take(slice(0, grid.size))
     brackets = _brackets(coarse, grid)
     if span < full and any(i == j for i, j in brackets):
         grid = _sweep(full)
@@ -111,6 +111,18 @@ def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float
     up = max(max(outs), 0.0)
     down = max(-min(outs), 0.0)
     return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
+
+
+def _period(vpk: float):
+    """One period of vpk·sin at FFT_POINTS phases as (distinct EMFs, index of
+    each sample into them): sin(π − x) = sin x, so samples k and N/2 − k are
+    the same point and only N/2 + 1 need solving."""
+    quarter = FFT_POINTS // 4
+    k = np.arange(-quarter, quarter + 1)
+    wave = vpk * np.sin(2.0 * np.pi * k / FFT_POINTS)
+    n = np.arange(FFT_POINTS)
+    folded = np.where(n <= quarter, n, np.where(n < 3 * quarter, FFT_POINTS // 2 - n, n - FFT_POINTS))
+    return wave, folded + quarter
 
 
 @dataclass(frozen=True)
@@ -132,16 +144,17 @@ class TransferCurve:
 
 def _held(stage: StageCircuit, op: OperatingPoint):
     """The stage with each coupling and bypass capacitor replaced by a source
-    at its quiescent voltage (V): the circuit of the large-signal transfer."""
-    return stage.net.coupling_as_sources({
+    at its quiescent voltage (V): the circuit of the large-signal transfer,
+    reduced once for sweeps of the source EMF."""
+    return sweep_reduction(stage.net.coupling_as_sources({
         e.name: op.voltages[e.a] - op.voltages[e.b] for e in stage.net.elements if getattr(e, "coupling", False)
-    })
+    }), EMF)
 
 
 def transfer_curve(stage: StageCircuit, op: OperatingPoint, emf: np.ndarray) -> TransferCurve:
     """The large-signal transfer of a single-design stage at the EMFs ``emf``."""
     held = _held(stage, op)
-    sol = _solve_at(held, emf, _predictor(stage, op)(emf))
+    sol = _solve_at(held, emf, _predictor(stage, op, held)(emf))
     vbe, vbc = sol.junctions[:, 0, 0], sol.junctions[:, 0, 1]
     out = sol.voltages[stage.output] - float(op.voltages[stage.output][0])
     return TransferCurve(emf, out, sol.states[TRANSISTOR].ic, vbe - vbc, vbc)
@@ -178,12 +191,12 @@ def _edges(held, stage, grid, brackets, curve_out, out_q, predict):
 _FINE = 48
 
 
-def _predictor(stage: StageCircuit, op: OperatingPoint):
+def _predictor(stage: StageCircuit, op: OperatingPoint, held):
     """Newton starts for the sweep: the junction voltages the linearised stage
     predicts at each EMF, kept below the critical voltage so a point far past
     an edge does not start with a wildly forward-biased junction."""
     q = stage.net.element(TRANSISTOR)
-    slope = np.stack(junction_voltages(q, small_signal(stage.net, op, excite={EMF: 1.0})), axis=-1)
+    slope = held.slope(op)[0]
     # A saturating collector junction ends below the conducting emitter
     # junction's voltage, so it starts no higher than the quiescent VBE.
     crit = critical_voltage(q.params)[0]
@@ -214,11 +227,11 @@ def _between(grid, coarse: OperatingPoint, predict):
 
 
 def _solve_at(held, emf: np.ndarray, junctions) -> OperatingPoint:
-    """The held circuit solved at each EMF (V); ``junctions`` is one start for
+    """The held circuit (reduced) solved at each EMF (V); ``junctions`` is one start for
     all points (transistor, 2) or one per point (point, transistor, 2)."""
     if junctions.ndim == 2:
         junctions = np.repeat(junctions[None], emf.size, axis=0)
-    return operating_sweep(held, EMF, emf, start=junctions)
+    return held.solve(emf, start=junctions)
 
 
 def _bracket(active, centre, step):
