@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .netlist import GROUND, Bjt, Resistor
+from .netlist import GROUND, Bjt, Netlist, Resistor
 from .solve import OperatingPoint
 from .topologies import TRANSISTOR, StageCircuit
 

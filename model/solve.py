@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import device, kernel
+from . import device
 from .assembly import admittance_values, assemble_linear, index_dot, node_dict
 from .linalg import solve_batched, solve_dominant
 from .netlist import Bjt, Netlist
@@ -263,22 +263,6 @@ def _terminal_currents(s, st: device.JunctionState):
 
 
 def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
-    """Newton on F(u) = u − u₀ + R·i(u) for every batch row: the compiled
-    kernel of :mod:`model.kernel` once it is loaded, else :func:`newton_numpy`.
-    Returns (u (batch, k, 2), converged, iterations)."""
-    fn = kernel.ready()
-    if fn is None:
-        return newton_numpy(r, u0, dev, u, max_iter)
-    u = np.array(u, dtype=float)
-    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-        v_crit = device.critical_voltage(dev)
-    done, iterations = fn(np.ascontiguousarray(r), np.ascontiguousarray(u0),
-                          *(np.ascontiguousarray(getattr(dev, f)) for f in ("i_s", "beta_f", "beta_r", "va", "vt")),
-                          np.ascontiguousarray(v_crit), u, _V_TOL, max_iter)
-    return u, done, int(iterations)
-
-
-def newton_numpy(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     """Newton on F(u) = u − u₀ + R·i(u) for every batch row, in numpy.
 
     r (batch, 2k, 2k), u0 (batch, 2k) in V and Ω; dev holds (batch, k)

@@ -7,15 +7,12 @@
   divider and source removed, rout with the load removed and the source's
   EMF at zero).
 * A source sweep reduced once per design equals each point solved cold.
-* The compiled Newton kernel (numba, optional) equals the numpy reference.
 
 Hypothesis runs derandomized here so the suite cannot fail by chance.
 """
 
-import math
 
 import numpy as np
-import pytest
 from hypothesis import HealthCheck, given, settings
 
 from model.analysis import design_values
@@ -24,7 +21,6 @@ from model.midband import midband
 from model.plan import MIDBAND, plan_for
 from model.solve import operating_point, operating_sweep
 from model.topologies import BIAS, EMF, LOAD, SOURCE, build
-from model import kernel
 
 from test_engine_properties import designs
 
@@ -111,56 +107,3 @@ def test_sweep_reduced_once_equals_cold_solves(d):
     for node, v in cold.voltages.items():
         np.testing.assert_allclose(warm.voltages[node][both], v[both], rtol=1e-9, atol=1e-9 * d.supply.vcc,
                                    err_msg=node)
-
-
-@pytest.fixture(scope="module")
-def compiled():
-    pytest.importorskip("numba")
-    fn = kernel.load()
-    if fn is None:
-        pytest.skip("numba is installed but the kernel did not compile here")
-    yield fn
-    # The rest of the suite runs on the numpy reference, whatever the order.
-    kernel._kernel = None
-
-
-@SETTINGS
-@given(d=designs())
-def test_compiled_kernel_equals_numpy(compiled, d):
-    stage = build(d.topology, design_values([d]))
-    with _kernel_off():
-        ref = operating_point(stage.net)
-    fast = operating_point(stage.net)
-    # A row whose residual sits at the 1e-9 acceptance line could be accepted
-    # by one and not the other after rounding; every other row must agree.
-    if ref.converged[0] and ref.residual[0] < 1e-10:
-        assert fast.converged[0]
-    if not (ref.converged[0] and fast.converged[0]):
-        return
-    # Both take the same Newton steps from the same start; the numpy loop may
-    # run a converged row a few more steps, each below 1e-9·(1 + |u|) V, and
-    # both finish with the same polishing step, so they agree to 1e-9.
-    np.testing.assert_allclose(fast.junctions, ref.junctions, rtol=1e-9, atol=1e-12)
-    for node, v in ref.voltages.items():
-        np.testing.assert_allclose(fast.voltages[node], v, rtol=1e-9, atol=1e-12, err_msg=node)
-
-
-class _kernel_off:
-    """Run the numpy Newton while the compiled kernel is loaded."""
-
-    def __enter__(self):
-        self.saved, kernel._kernel = kernel._kernel, None
-
-    def __exit__(self, *exc):
-        kernel._kernel = self.saved
-
-
-def test_numpy_path_runs_without_the_kernel():
-    # Where numba cannot be imported nothing is loaded and numpy solves alone.
-    from model.design import default_design
-
-    with _kernel_off():
-        assert kernel.ready() is None
-        stage, op = _stage(default_design("common-emitter"))
-    assert op.converged.all()
-    assert math.isfinite(float(op.junctions[0, 0, 0]))

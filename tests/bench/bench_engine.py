@@ -106,30 +106,6 @@ def main() -> None:
 
     batch_parts(values)
     single_parts(design)
-    compiled(design, values)
-
-
-def compiled(design, values: dict) -> None:
-    """The same figures with the optional numba kernel loaded (where the tree
-    has one and numba imports); the lines above are the numpy path."""
-    try:
-        from model import kernel
-    except ImportError:
-        print("compiled_kernel: not in this tree")
-        return
-    t = time.perf_counter()
-    if kernel.load() is None:
-        print("compiled_kernel: numba not importable, numpy path only")
-        return
-    print(f"compiled_kernel_load: {time.perf_counter() - t:.2f} s (numba import + compile or cache read)")
-    from model.solve import operating_point
-    from model.topologies import build
-
-    n = len(values["supply.vcc"])
-    stage = build("common-emitter", values)
-    print(f"compiled_single_design_analysis_median: {median_ms(lambda: analyse(design), 50):.2f} ms")
-    print(f"compiled_batch_dc_midband_throughput: {n / _best_s(lambda: analyse_batch('common-emitter', values)):,.0f} designs/s")
-    print(f"compiled_batch_operating_point_throughput: {n / _best_s(lambda: operating_point(stage.net)):,.0f} designs/s")
 
 
 def _best_s(fn, repeats: int = 3) -> float:
