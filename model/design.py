@@ -18,7 +18,7 @@ from .errors import DesignError
 # callers think of them as part of the design.
 from .fields import (  # noqa: F401
     CE, EF, FIELDS, FORMAT, NONE, OPEN, POLARITIES, SERIES, TOPOLOGIES, Field, Rule, _choice,
-    _shown, check_value, file_word, keys_for, rule_for,
+    _shown, check_value, file_word, keys_for, rule_for, with_article,
 )
 
 @dataclass(frozen=True)
@@ -207,7 +207,7 @@ def validate(design: Design) -> Design:
     for table, cls in TABLES.items():
         part = getattr(design, table)
         if type(part) is not cls:
-            raise DesignError(table, _shown(part), f"must be a {cls.__name__}")
+            raise DesignError(table, _shown(part), f"must be {with_article(cls.__name__)}")
         values = {}
         for f in dataclasses.fields(cls):
             key, value = f"{table}.{f.name}", getattr(part, f.name)
@@ -215,7 +215,7 @@ def validate(design: Design) -> Design:
                 values[f.name] = check_value(key, topology, value)
             elif value != f.default:
                 raise DesignError(key, _shown(value),
-                                  f"is not used by a {topology} design and must stay {f.default!r}")
+                                  f"is not used by {with_article(topology)} design and must stay {f.default!r}")
         top[table] = cls(**values)
     checked = dataclasses.replace(design, **top)
     _check_wiring(checked)

@@ -138,6 +138,12 @@ def keys_for(topology: str) -> tuple[str, ...]:
     return tuple(k for k, f in FIELDS.items() if topology in f.rules)
 
 
+def with_article(word: str) -> str:
+    """``word`` after "a" or "an" as it is spoken ("an emitter-follower");
+    every word it meets (topologies, table classes) starts as it is said."""
+    return ("an " if word[:1].lower() in "aeiou" else "a ") + word
+
+
 def rule_for(key: str, topology: str) -> Rule:
     """The rule ``key`` follows in a design of ``topology``; DesignError if it has none."""
     field = FIELDS.get(key)
@@ -148,7 +154,7 @@ def rule_for(key: str, topology: str) -> Rule:
     if topology not in field.rules:
         table = key.split(".")[0] + "."
         own = ", ".join(k.removeprefix(table) for k in keys_for(topology) if k.startswith(table))
-        raise DesignError(key, None, f"is not used by a {topology} design, whose {table[:-1]} keys are {own}")
+        raise DesignError(key, None, f"is not used by {with_article(topology)} design, whose {table[:-1]} keys are {own}")
     return field.rules[topology]
 
 

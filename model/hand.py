@@ -90,8 +90,10 @@ def hand_estimate(design: Design, *, vt: float | None = None, stiff: bool = Fals
         ie, ic = (beta + 1.0) * ib, beta * ib
     rth = _par(r1, r2)  # the signal sees the divider alone: the source is its driver
     if not ie > 0:
-        # The divider cannot forward-bias the junction: nothing conducts.
-        return HandEstimate(0.0, vcc, math.inf, 0.0, 0.0, rth)
+        # The divider cannot forward-bias the junction: nothing conducts, so
+        # no resistor drops a volt and VCE is what the two Thevenin circuits
+        # leave (without cout, rl divides the supply down at the collector).
+        return HandEstimate(0.0, vc_th - ve_th, math.inf, 0.0, 0.0, rth)
     if math.isinf(ie):
         # Nothing but the constant VBE limits the current: no estimate exists.
         return HandEstimate(math.inf, math.nan, 0.0, math.nan, math.nan, rth)

@@ -20,6 +20,9 @@ from .historyfile import entry_text
 from .ledger import Entry
 from .savefile import DesignLock, atomic_write
 
+#: Refused alike by a commit and by its dry run, so the two agree.
+NOTHING_TO_COMMIT = "nothing to commit: every value is already as given"
+
 
 class CommentsWouldBeLost(StageledgerError):
     """The file has hand-written comments that a rewrite would drop."""
@@ -122,7 +125,7 @@ class DesignSession:
         design = with_values(self.design, values)
         changes = ledger.changes_between(self.design, design)
         if not changes:
-            raise StageledgerError("nothing to commit: every value is already as given")
+            raise StageledgerError(NOTHING_TO_COMMIT)
         if known is not None and known[0] == design and known[1].large_signal:
             after = known[1]
         else:

@@ -54,6 +54,57 @@ def test_text_report_fits_80_columns_and_names_the_sections(capsys):
         assert heading in out
 
 
+
+def _report_of(tmp_path, capsys, values):
+    from model.design import default_design, with_values
+    from model.designfile import dumps_design
+
+    design = with_values(default_design("common-emitter"), values)
+    path = tmp_path / "d.toml"
+    path.write_text(dumps_design(design), encoding="utf-8")
+    assert main(["report", str(path)]) == 0
+    return design, capsys.readouterr().out.splitlines()
+
+
+def test_a_saturated_stage_marks_the_hand_estimate_as_out_of_its_region(tmp_path, capsys):
+    """r2 = 47 kΩ saturates the default stage.  The textbook method assumes
+    forward-active (Sedra & Smith; Boylestad & Nashelsky) and goes on to a
+    negative VCE: the report prints it as computed and says why it is off."""
+    import model
+    from model.hand import hand_estimate
+
+    design, lines = _report_of(tmp_path, capsys, {"bias.r2": 47e3})
+    assert model.analyse(design).region == "saturation" and hand_estimate(design).vce < 0
+    row = next(i for i, line in enumerate(lines) if line.split()[:1] == ["VCE"])
+    assert lines[row + 1].strip() == "(hand method assumes forward-active; the stage saturates)"
+    assert max(map(len, lines)) <= 80
+    # An active stage has no such line.
+    _, lines = _report_of(tmp_path, capsys, {})
+    assert not any("assumes forward-active" in line for line in lines)
+
+
+def test_numbers_that_show_as_zero_carry_no_sign():
+    """A sign on a figure that shows as zero (−0.0, or −0.00004 at one place)
+    points a way it does not go; a zero gain has no dB at all."""
+    from tui.consequences import show_figure
+    from tui.report import _db, _gain
+
+    assert _gain(-0.99999) == "-1 V/V (0.0 dB)"  # 20·log10(0.99999) = −8.7e-5 dB
+    assert _gain(0.0) == _gain(-0.0) == "0 V/V (zero gain, no dB)"
+    assert _db(-1.0) == "0.0 dB"
+    assert _gain(-10.0) == "-10 V/V (+20.0 dB)"
+    assert show_figure("av_loaded", -0.0) == show_figure("av_loaded", 0.0) == "0 V/V"
+    assert show_figure("av_loaded", 0.5) == "+0.5 V/V"
+
+
+def test_a_cut_off_stage_prints_its_zero_hand_gains_unsigned(tmp_path, capsys):
+    """No coupling capacitors: rs joins r2 and the stage is cut off, so the
+    hand estimate's gains are exactly 0 (no current, no gm)."""
+    _, lines = _report_of(tmp_path, capsys, {"stage.cin": "none", "stage.cout": "none"})
+    for label in ("av_open", "av_loaded"):
+        row = next(line for line in lines if line.split()[:1] == [label])
+        assert row.endswith(" 0 V/V") and "+0 " not in row and "-0 " not in row, row
+
 def test_no_arguments_opens_the_bundled_demo_without_writing_to_it():
     from tui.bundled import default_demo
     from tui.launch import make_app

@@ -217,7 +217,8 @@ def test_with_values_is_all_or_nothing():
 def test_validate_refuses_values_in_unused_stage_fields(topology, attr):
     design = default_design(topology)
     odd = dataclasses.replace(design, stage=dataclasses.replace(design.stage, **{attr: 1.0}))
-    with pytest.raises(DesignError, match=f"stage.{attr}.*not used by a {topology}"):
+    article = "an" if topology == EF else "a"  # English: "an" before a vowel sound
+    with pytest.raises(DesignError, match=f"stage.{attr}.*not used by {article} {topology} design"):
         dm.validate(odd)
 
 

@@ -19,7 +19,7 @@ import tomllib
 import pytest
 
 from model import analyse, read_design
-from model.design import TOPOLOGIES, default_design, rule_for
+from model.design import TOPOLOGIES, default_design, rule_for, with_values
 from model.designfile import dumps_design, read_document
 from model.ledger import HEADLINE
 from model.session import create
@@ -368,3 +368,82 @@ def test_exit_codes_in_a_real_process(tmp_path):
         assert proc.stdout == "" and len(proc.stderr.strip().splitlines()) == 1, args
         assert "Traceback" not in proc.stderr
     assert [e.action for e in read_document(path).history] == ["start", "set"]
+
+
+# -- wording and agreement -----------------------------------------------------
+
+def test_new_and_key_errors_use_the_spoken_article(tmp_path, capsys):
+    """English grammar: "an" before a vowel sound, "a" before a consonant."""
+    follower, stage = tmp_path / "f.toml", tmp_path / "c.toml"
+    assert main(["new", str(follower), "--topology", EF]) == 0
+    assert "an emitter-follower design from defaults" in capsys.readouterr().out
+    assert main(["new", str(stage)]) == 0
+    assert "a common-emitter design from defaults" in capsys.readouterr().out
+    assert main(["new", str(tmp_path / "x.toml"), "--topology", CE, "--from", str(follower)]) == 2
+    one_error_line(capsys, f"conflicts with {follower}, an emitter-follower design")
+    assert main(["set", str(follower), "stage.re1=100"]) == 2
+    one_error_line(capsys, "stage.re1", "is not used by an emitter-follower design")
+
+
+@pytest.mark.parametrize("assignment", ["stage.rc=6k8", "stage.cin=0"])
+def test_a_dry_run_of_no_change_is_refused_as_the_commit_is(logged, capsys, assignment):
+    """A dry run previews the commit it stands for; a commit of no change is
+    refused (exit 2), so its dry run is too, with the same words."""
+    if assignment == "stage.cin=0":
+        assert main(["set", str(logged), "stage.cin=none"]) == 0
+        capsys.readouterr()
+    before = logged.read_bytes()
+    assert main(["set", str(logged), assignment]) == 2
+    committed = one_error_line(capsys, "nothing to commit")
+    assert main(["set", str(logged), assignment, "--dry-run"]) == 2
+    assert one_error_line(capsys, "nothing to commit") == committed
+    assert logged.read_bytes() == before
+
+
+def test_a_gain_that_changes_sign_says_so_in_words(tmp_path, capsys):
+    """Unbypassed CE driven into saturation by a larger r2: the gain goes from
+    inverting to non-inverting, which a dB change (a magnitude) cannot show."""
+    path = plain_file(tmp_path)
+    assert main(["set", str(path), "stage.ce=none"]) == 0
+    capsys.readouterr()
+    before = analyse(read_design(path))
+    after = analyse(with_values(read_design(path), {"bias.r2": 47e3}))
+    assert before.av_loaded < 0 < after.av_loaded and before.av_source < 0 < after.av_source
+    assert main(["set", str(path), "bias.r2=47k", "--dry-run"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    for label in ("av_loaded", "av_source"):
+        row = next(i for i, line in enumerate(lines) if line.split()[:1] == [label])
+        assert lines[row + 1].strip() == "inverting → non-inverting", lines[row:row + 2]
+        assert max(map(len, lines)) <= 80
+    # A gain that keeps its sign gets no such line.
+    assert main(["set", str(path), "stage.rc=10k", "--dry-run"]) == 0
+    assert "inverting" not in capsys.readouterr().out
+
+
+def test_a_figure_that_stays_none_is_unchanged_not_zero_per_cent(tmp_path, capsys):
+    """A cut-off stage has no f_high below 10 THz before or after a bypass
+    change: "none → none" is no change, which "0 %" would misstate."""
+    path = plain_file(tmp_path)
+    assert main(["set", str(path), "stage.cin=none", "stage.cout=none"]) == 0
+    capsys.readouterr()
+    before = analyse(read_design(path))
+    after = analyse(with_values(read_design(path), {"stage.ce": 22e-6}))
+    assert not math.isfinite(before.f_high) and not math.isfinite(after.f_high)
+    assert main(["set", str(path), "stage.ce=22u", "--dry-run"]) == 0
+    rows = figure_rows(capsys.readouterr().out)
+    assert rows["f_high"] == ["none", "none", "unchanged"]
+
+
+def test_output_cut_short_by_its_reader_is_no_error(tmp_path):
+    """`history F | head -1`: the reader closes the pipe before the command
+    writes; the command stops quietly with status 0 (README, Exit status)."""
+    path = plain_file(tmp_path)
+    for value in ("10k", "12k", "15k"):
+        assert run("set", str(path), f"stage.rc={value}").returncode == 0
+    proc = subprocess.Popen([sys.executable, "-m", "tui", "history", str(path)], cwd=ROOT,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc.stdout.close()  # before the child has started: its first write meets a closed pipe
+    err = proc.stderr.read().decode()
+    proc.stderr.close()
+    assert proc.wait(timeout=120) == 0, err
+    assert err == ""

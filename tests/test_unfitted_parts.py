@@ -496,3 +496,21 @@ def test_report_says_flat_to_dc_when_no_coupling_or_bypass_capacitor_is_fitted(t
     out = capsys.readouterr().out
     assert "flat to DC, no coupling or bypass capacitor fitted" in out
     assert "below 1 µHz" not in out
+
+
+def test_hand_estimate_in_cut_off_keeps_the_dc_coupled_load_divider():
+    """cin and cout not fitted: rs joins r2 (VTH ≈ 0.14 V, below the assumed
+    VBE), so nothing conducts.  With no current no resistor drops a volt, and
+    VCE is Ohm's-law arithmetic: rc and the DC-coupled rl divide the supply at
+    the collector, VCE = VCC·RL/(RC + RL) = 8.43 V for the defaults, not VCC."""
+    d = _design(**{"stage.cin": "none", "stage.cout": "none"})
+    h = hand_estimate(d)
+    vcc, rc, rl = d.supply.vcc, d.stage.rc, d.load.rl
+    expected = vcc * rl / (rc + rl)
+    assert h.ic == 0.0
+    assert h.vce == pytest.approx(expected, rel=1e-12)
+    # The exact stage is in cut-off too, and its leakage (pA) moves VCE by far
+    # less than 0.1 %, so the two agree as a hand method should.
+    fig = analyse(d)
+    assert fig.region == "cutoff"
+    assert fig.vce == pytest.approx(expected, rel=1e-3)

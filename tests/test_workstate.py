@@ -454,3 +454,18 @@ def test_whatever_arrives_the_candidate_is_the_committed_design_with_its_texts(m
     for key in ROWS:
         state.abandon(key)
     assert state.candidate is None and state.broken == {}
+
+
+def test_a_step_the_rule_refuses_names_the_key_once_and_fits_the_status_line():
+    """Down on ce = none: the DesignError already opens with the key, so the
+    status line ("✗ " and the text) says it once and keeps the whole rule
+    inside 80 columns, the narrowest screen the README supports."""
+    from model.design import default_design
+
+    design = with_values(default_design("common-emitter"), {"stage.ce": "none"})
+    state = WorkState(design, analyse(design, large_signal=False))
+    outcome = state.step("stage.ce", -1, False)
+    assert outcome.error
+    assert outcome.status.count("stage.ce") == 1, outcome.status
+    assert outcome.status.endswith("there is nothing below none"), outcome.status
+    assert len("✗ " + outcome.status) <= 80

@@ -19,6 +19,7 @@ from textual import work
 from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.message import Message
 from textual.widgets import Footer, Header, OptionList, Static
 
 from model import ledger
@@ -41,6 +42,26 @@ from .workstate import Baseline, Candidate, Save, WorkState
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.
 DEBOUNCE = 0.15
+
+
+def internal_error(err: Exception) -> str:
+    """A fault of ours as one status line: the exception's type and message
+    (escaped: it may quote a value from the file)."""
+    return f"internal error ({type(err).__name__}: {visible(str(err))}); please report it"
+
+
+class SweepFailed(Message):
+    """The sweep worker's analysis of ``design`` raised ``error``, a fault of
+    ours rather than of the design (those are StageledgerErrors)."""
+
+    def __init__(self, design: Design, error: Exception):
+        super().__init__()
+        self.design, self.error = design, error
+
+
+class WorkbenchFault(RuntimeError):
+    """The workbench ended on an unhandled exception (Textual has shown its
+    traceback); raised from ``run`` so that the command line exits 3, not 0."""
 
 
 class Workbench(Editing, PicturesPane, App):
@@ -190,7 +211,15 @@ class Workbench(Editing, PicturesPane, App):
             figures = analyse(design)
         except StageledgerError:
             return  # the quick analysis already reported the problem
+        except Exception as err:  # noqa: BLE001 - else the figures wait for it forever
+            self.post_message(SweepFailed(design, err))
+            return
         self.post_message(LargeSignalReady(design, figures))
+
+    def on_sweep_failed(self, message: SweepFailed) -> None:
+        # Only for the design on show: a newer candidate has its own sweep coming.
+        if self._in_service() and self.state.on_show()[0] == message.design:
+            self._say(f"sweep failed: {internal_error(message.error)}", error=True)
 
     def on_large_signal_ready(self, message: LargeSignalReady) -> None:
         if self._in_service() and self.state.take_figures(message.design, message.figures):
@@ -214,6 +243,12 @@ class Workbench(Editing, PicturesPane, App):
         except StageledgerError as err:
             self._say(f"not saved: {err}", error=True)
             self.notify(visible(str(err)), title="not saved", severity="error", timeout=8, markup=False)
+            return
+        except Exception as err:  # noqa: BLE001 - a fault of ours: keep the candidate, say so
+            # The session writes the file last and moves on only after it is
+            # written, so a fault on the way leaves file and memory as they were.
+            self._say(f"not saved: {internal_error(err)}", error=True)
+            self.notify(internal_error(err), title="not saved", severity="error", timeout=8, markup=False)
             return
         outcome = self.state.saved(save, entry, session.design, session.figures, session.path, self._knobs.key)
         self._home.query_one(LedgerPane).show(session.history)
@@ -308,6 +343,14 @@ class Workbench(Editing, PicturesPane, App):
 
     def action_redo(self) -> None:
         self._commit(self.state.redo())
+
+    def run(self, *args, **kwargs):
+        result = super().run(*args, **kwargs)
+        if self.return_code:  # 1: Textual stopped on an unhandled exception
+            fault = getattr(self, "_exception", None)  # private: only to name it
+            raise WorkbenchFault("the workbench stopped" + (
+                f" on {type(fault).__name__}: {fault}" if fault is not None else "")) from fault
+        return result
 
     def on_unmount(self) -> None:
         if self.session is not None:

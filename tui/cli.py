@@ -1,12 +1,16 @@
 """The `stageledger` command: a thin layer over model/.
 
 Exit status: 0 on success, 2 for a bad file or argument (one line on
-stderr, never a traceback), 3 for an internal fault.
+stderr, never a traceback), 3 for an internal fault.  A reader that stops
+early (``stageledger history F | head -1``) is no fault: the rest of the
+output is dropped silently and the status is 0, as it would be had the
+reader taken it all (a save the command made is on disk either way).
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 
 from model.design import TOPOLOGIES
@@ -138,7 +142,12 @@ def main(argv: list[str] | None = None) -> int:
         args = _workbench_parser().parse_args(argv)
         args.command = None
     try:
-        return _dispatch(args)
+        status = _dispatch(args)
+        sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
+        return status
+    except BrokenPipeError:
+        _drop_stdout()
+        return 0
     except StageledgerError as exc:
         # A message may quote the file's path or its text: escaped, as everywhere.
         print(f"stageledger: {visible(str(exc))}", file=sys.stderr)
@@ -149,6 +158,17 @@ def main(argv: list[str] | None = None) -> int:
         print(f"stageledger: internal error ({type(exc).__name__}: {visible(str(exc))}); please report it",
               file=sys.stderr)
         return 3
+
+
+def _drop_stdout() -> None:
+    """Point stdout at the null device, so that the interpreter's last flush
+    of what is still buffered for a closed pipe cannot fail again (the
+    recipe of the Python docs, signal module, "Note on SIGPIPE")."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):  # stdout replaced by something with no descriptor
+        pass
 
 
 if __name__ == "__main__":

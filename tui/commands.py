@@ -9,9 +9,10 @@ from __future__ import annotations
 from model import analyse, plain_json
 from model.design import TOPOLOGIES, default_design
 from model.errors import StageledgerError
+from model.fields import with_article
 from model.historyfile import entry_to_dict
 from model.ledger import changes_between, headline, warning_codes
-from model.session import DesignSession, create, design_at
+from model.session import NOTHING_TO_COMMIT, DesignSession, create, design_at
 
 from .consequences import render_changes, render_consequences, render_entry
 from .safe_text import visible
@@ -32,11 +33,11 @@ def cmd_new(path: str, topology: str | None, origin: str | None) -> int:
     if origin:
         design, label = design_at(origin)
         if topology and topology != design.topology:
-            raise StageledgerError(f"--topology {topology} conflicts with {origin}, a {design.topology} design")
+            raise StageledgerError(f"--topology {topology} conflicts with {origin}, {with_article(design.topology)} design")
     else:
         design, label = default_design(topology or TOPOLOGIES[0]), None
     create(path, design, origin=label)
-    print(f"created {visible(path)}: a {design.topology} design"
+    print(f"created {visible(path)}: {with_article(design.topology)} design"
           + (f" from {visible(label)}" if label else " from defaults"))
     return 0
 
@@ -46,6 +47,8 @@ def cmd_set(path: str, items: list, note: str, dry_run: bool, drop_comments: boo
     if dry_run:
         with DesignSession(path, lock=False) as s:
             p = s.preview(values)
+            if not p.changes:
+                raise StageledgerError(NOTHING_TO_COMMIT)
             lines = ["preview (not saved):", *render_changes(p.changes)]
             before, after = headline(p.before), headline(p.after)
             old, new = set(warning_codes(p.before)), set(warning_codes(p.after))

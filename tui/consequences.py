@@ -8,6 +8,7 @@ from model.design import FIELDS
 from model.ledger import HEADLINE, Entry
 from model.units import format_si
 
+from .report import signed
 from .safe_text import visible
 
 #: How each headline figure is shown: (label, unit for format_si, or a special kind).
@@ -27,7 +28,7 @@ def show_figure(key: str, value) -> str:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return _not_finite(key, value)
     if unit == "gain":
-        return f"{value:+.4g} V/V"
+        return f"{signed(value, '+.4g')} V/V"
     if unit == "%":
         return f"{100 * value:.3g} %"
     if unit == "°C":
@@ -59,15 +60,30 @@ def relative_change(before, after, key: str = "") -> str:
     inverting gain reads as a gain, not a loss), else in per cent."""
     if not all(isinstance(v, (int, float)) for v in (before, after)):
         return "" if before == after else "changed"
+    if not (math.isfinite(before) and math.isfinite(after)):
+        # "none → none" is no change at all, not a 0 % one; NaN ≠ NaN, so
+        # compare what the table shows.
+        same = key in _SHOW and show_figure(key, before) == show_figure(key, after)
+        return "unchanged" if same or before == after else "—"
     if key in _SHOW and _SHOW[key][1] == "gain" and before and after:
-        return f"{20.0 * math.log10(abs(after) / abs(before)):+.2f} dB"
+        return f"{signed(20.0 * math.log10(abs(after) / abs(before)), '+.2f')} dB"
     if key == "tj":  # a per cent of a Celsius reading means nothing
-        return f"{after - before:+.3g} K"
+        return f"{signed(after - before, '+.3g')} K"
     if before == after:
         return "0 %"
-    if before == 0 or not (math.isfinite(before) and math.isfinite(after)):
+    if before == 0:
         return "—"
     return f"{100.0 * (after - before) / abs(before):+.3g} %"
+
+
+def sign_change(before, after) -> str:
+    """"inverting → non-inverting" (or back) when a gain changes sign; else ""."""
+    if not all(isinstance(v, (int, float)) and math.isfinite(v) and v != 0 for v in (before, after)):
+        return ""
+    if (before < 0) == (after < 0):
+        return ""
+    word = {True: "inverting", False: "non-inverting"}
+    return f"{word[before < 0]} → {word[after < 0]}"
 
 
 def render_changes(changes) -> list:
@@ -85,6 +101,9 @@ def render_consequences(before: dict, after: dict, raised, cleared) -> list:
         a = show_figure(key, after[key]) if key in after else "none"
         moved = relative_change(before[key], after[key], key) if key in before and key in after else ""
         rows.append(f"  {_SHOW[key][0]:<14}{b:>16}{a:>16}{moved:>12}")
+        flip = sign_change(before.get(key), after.get(key)) if _SHOW[key][1] == "gain" else ""
+        if flip:  # the dB column shows the size alone; a phase reversal needs words
+            rows.append(f"  {'':<14}{flip:>44}")
     rows.append(f"  warnings raised: {', '.join(raised) or 'none'}")
     rows.append(f"  warnings cleared: {', '.join(cleared) or 'none'}")
     return rows

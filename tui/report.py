@@ -19,20 +19,39 @@ from .safe_text import visible
 UNBOUNDED, NONE = "unbounded", "none"
 
 
+#: Under the hand VCE of a saturated stage.  The textbook method has no
+#: saturation: it assumes the forward-active region, so it carries on and
+#: its VCE (often negative) and gains only show how far the bias is from
+#: working; they are printed as computed, not clipped to a made-up VCE(sat).
+SATURATED_NOTE = "(hand method assumes forward-active; the stage saturates)"
+
+
 def _si(x: float, unit: str, infinite: str = UNBOUNDED) -> str:
     if math.isfinite(x):
         return format_si(x, unit)
     return NONE if math.isnan(x) else infinite
 
 
+def signed(x: float, spec: str) -> str:
+    """``format(x, spec)`` for a spec with a sign ("+.4g"), but a value that
+    shows as zero (0, −0.0, or −0.00004 at two places) shows as plain 0: a
+    sign on nothing reads as a direction that is not there."""
+    text = format(x, spec)
+    return text.lstrip("+-") if float(text) == 0 else text
+
+
 def _db(x: float) -> str:
     """A gain's magnitude in dB; a zero gain has none."""
     db = float(decibels(x))
-    return f"{db:+.1f} dB" if math.isfinite(db) else "no dB: zero"
+    return f"{signed(db, '+.1f')} dB" if math.isfinite(db) else "zero gain, no dB"
 
 
 def _gain(x: float) -> str:
-    return f"{x:+.4g} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
+    return f"{signed(x, '+.4g')} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
+
+
+def _hand_gain(x: float) -> str:
+    return f"{signed(x, '+.4g')} V/V" if math.isfinite(x) else _si(x, "V/V")
 
 
 def _pct(x: float) -> str:
@@ -55,6 +74,7 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
         f"  region                           {fig.region}",
         f"  IC                               {_si(fig.ic, 'A'):<14} {_si(h.ic, 'A')}",
         f"  VCE                              {_si(fig.vce, 'V'):<14} {_si(h.vce, 'V')}",
+        *([f"    {SATURATED_NOTE}"] if fig.region == "saturation" else []),
         f"  VBE                              {_si(fig.vbe, 'V'):<14} {_si(design.estimate.vbe, 'V')} (assumed)",
         f"  IB                               {_si(fig.ib, 'A')}",
         f"  nodes to ground                  vb {_si(fig.vb, 'V')}   ve {_si(fig.ve, 'V')}   vc {_si(fig.vc, 'V')}",
@@ -64,8 +84,8 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
         f"β_ac {fig.beta_ac:.4g}   re (hand) {_si(h.re, 'Ω')}",
         "",
         "Midband                            exact                      hand estimate",
-        f"  av_open                          {_gain(fig.av_open):<26} {h.av_open:+.4g} V/V",
-        f"  av_loaded                        {_gain(fig.av_loaded):<26} {h.av_loaded:+.4g} V/V",
+        f"  av_open                          {_gain(fig.av_open):<26} {_hand_gain(h.av_open)}",
+        f"  av_loaded                        {_gain(fig.av_loaded):<26} {_hand_gain(h.av_loaded)}",
         f"  av_source                        {_gain(fig.av_source)}",
         f"  rin                              {_si(fig.rin, 'Ω'):<26} {_si(h.rin, 'Ω')}",
         f"  rin_base                         {_si(fig.rin_base, 'Ω')}",

@@ -20,7 +20,7 @@ from typing import NamedTuple
 
 from model.analysis import Figures, analyse
 from model.design import SERIES, Design, get_value, with_values
-from model.errors import StageledgerError
+from model.errors import DesignError, StageledgerError
 from model.stepping import choices, step, step_decade
 
 from .fieldtext import field_text
@@ -201,7 +201,10 @@ class WorkState:
             else:
                 return Outcome(status=f"{key}: text has no steps; type it")
         except StageledgerError as err:
-            return Outcome(status=f"{key}: cannot step: {err}", error=True)
+            # A DesignError already opens with the key; said twice, the rule
+            # that follows would be cut off at 80 columns.
+            named = isinstance(err, DesignError) and err.field == key
+            return Outcome(status=f"cannot step: {err}" if named else f"{key}: cannot step: {err}", error=True)
         text = field_text(key, new)
         outcome = self.edit(key, text)
         self.checkpoint(key)
