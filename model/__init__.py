@@ -8,8 +8,8 @@ The two calls most callers need::
     figures = model.analyse(design)          # figures.to_dict() is `report --json`
 """
 
-from .analysis import Figures, analyse
-from .design import Design
-from .designfile import read_design
+from model.analyses.figures import Figures, analyse
+from model.design.stage import Design
+from model.files.designfile import read_design
 
 __all__ = ["Design", "Figures", "analyse", "read_design"]

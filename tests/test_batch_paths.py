@@ -9,10 +9,12 @@ import numpy as np
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parent / "bench"))
 
 from bench_engine import varied_values  # noqa: E402
-from model.analysis import analyse_batch  # noqa: E402
+
+from model.analyses.figures import analyse_batch  # noqa: E402
+from model.circuit.assembly import SPARSE_FROM as _SPARSE_FROM  # noqa: E402
+
 # The batch sizes where the paths switch over, imported so the test follows them.
-from model.linalg import _LAPACK_BELOW  # noqa: E402
-from model.assembly import SPARSE_FROM as _SPARSE_FROM  # noqa: E402
+from model.circuit.dense import _LAPACK_BELOW  # noqa: E402
 
 CHUNK = 50
 

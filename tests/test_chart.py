@@ -17,7 +17,7 @@ import pytest
 from rich.cells import cell_len
 from textual.app import App, ComposeResult
 
-from model.units import format_si, parse_value
+from model.design.units import format_si, parse_value
 from tui.chart import TOO_SMALL, Axis, Chart, Marker, Series, Spot, render, render_stack
 from tui.widgets.picture import EMPTY, Picture
 

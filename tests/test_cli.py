@@ -11,7 +11,7 @@ import sys
 
 import pytest
 
-from model.analysis import FIGURE_KEYS
+from model.analyses.figures import FIGURE_KEYS
 from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
@@ -56,8 +56,8 @@ def test_text_report_fits_80_columns_and_names_the_sections(capsys):
 
 
 def _report_of(tmp_path, capsys, values):
-    from model.design import default_design, with_values
-    from model.designfile import dumps_design
+    from model.design.stage import default_design, with_values
+    from model.files.designfile import dumps_design
 
     design = with_values(default_design("common-emitter"), values)
     path = tmp_path / "d.toml"
@@ -71,7 +71,7 @@ def test_a_saturated_stage_marks_the_hand_estimate_as_out_of_its_region(tmp_path
     forward-active (Sedra & Smith; Boylestad & Nashelsky) and goes on to a
     negative VCE: the report prints it as computed and says why it is off."""
     import model
-    from model.hand import hand_estimate
+    from model.analyses.hand import hand_estimate
 
     design, lines = _report_of(tmp_path, capsys, {"bias.r2": 47e3})
     assert model.analyse(design).region == "saturation" and hand_estimate(design).vce < 0

@@ -6,8 +6,8 @@ import math
 
 import pytest
 
-from model import design as dm
-from model.design import CE, EF, FIELDS, TOPOLOGIES, default_design, keys_for
+from model.design import stage as dm
+from model.design.stage import CE, EF, FIELDS, TOPOLOGIES, default_design, keys_for
 from model.errors import DesignError
 
 # (key, topology, rejected, accepted, words the rule must contain). The

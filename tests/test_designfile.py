@@ -10,10 +10,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from model import designfile as df
-from model.design import FIELDS, TABLES, TOPOLOGIES, default_design, keys_for, with_values
-from model.designfile import dumps_design, loads_design, read_design
+from model.design.stage import FIELDS, TABLES, TOPOLOGIES, default_design, keys_for, with_values
 from model.errors import DesignError, DesignFileError, StageledgerError
+from model.files import designfile as df
+from model.files.designfile import dumps_design, loads_design, read_design
 
 DEMOS = sorted((pathlib.Path(__file__).resolve().parents[1] / "saved_designs").glob("*.toml"))
 
@@ -45,7 +45,7 @@ def designs(draw, topology, open_load):
     values["load.rl"] = draw(rl)
     if topology == "common-emitter" and values["source.rs"] == values["stage.re1"] == values["stage.re2"] == 0:
         # The one rule across keys: with no resistance anywhere, a cin not
-        # fitted would wire the source across the junction (model.design).
+        # fitted would wire the source across the junction (model.design.stage).
         values["stage.cin"] = draw(_values_for(FIELDS["stage.cin"].rules[topology]).filter(lambda c: c > 0))
     return with_values(default_design(topology), values)
 

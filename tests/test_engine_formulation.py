@@ -14,15 +14,14 @@ Hypothesis runs derandomized here so the suite cannot fail by chance.
 
 import numpy as np
 from hypothesis import HealthCheck, given, settings
-
-from model.analysis import design_values
-from model.linear import small_signal
-from model.midband import midband
-from model.plan import MIDBAND, plan_for
-from model.solve import operating_point, operating_sweep
-from model.topologies import BIAS, EMF, LOAD, SOURCE, build
-
 from test_engine_properties import designs
+
+from model.analyses.figures import design_values
+from model.analyses.midband import midband_figures
+from model.circuit.linearised import small_signal
+from model.circuit.newton import operating_point, operating_sweep
+from model.circuit.plan import MIDBAND, plan_for
+from model.circuit.topologies import BIAS, EMF, LOAD, SOURCE, build
 
 SETTINGS = settings(max_examples=40, deadline=None, derandomize=True, database=None,
                     suppress_health_check=[HealthCheck.too_slow])
@@ -55,8 +54,8 @@ def _condition(stage, op):
     """Largest 2-norm condition number of the linearised midband matrices the
     figures are solved on (the full stage without its source, and the stage
     without its load), from numpy's SVD."""
-    from model.assembly import admittance_values
-    from model.linear import _linearised
+    from model.circuit.assembly import admittance_values
+    from model.circuit.linearised import _linearised
 
     worst = 1.0
     for net in (stage.net.without(SOURCE), stage.net.without(LOAD), stage.net.without(SOURCE).without(BIAS)):
@@ -73,7 +72,7 @@ def test_midband_equals_four_direct_solves(d):
     stage, op = _stage(d)
     if not op.converged[0]:
         return
-    mid = midband(stage, op, np.array([d.source.rs]))
+    mid = midband_figures(stage, op, np.array([d.source.rs]))
     ref = _four_solves(stage, op)
     # Two backward-stable solves of the same matrices differ by about
     # κ·ε relative (Higham, Accuracy and Stability of Numerical Algorithms,

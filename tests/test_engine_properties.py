@@ -21,15 +21,15 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from model import analyse
-from model.analysis import analyse_batch, design_values
-from model.design import TOPOLOGIES, default_design, with_values
-from model.netlist import GROUND, Resistor
-from model.solve import operating_point
-from model.topologies import EMF, SUPPLY, TRANSISTOR, build
+from model.analyses.figures import analyse_batch, design_values
+from model.circuit.netlist import GROUND, Resistor
+from model.circuit.newton import operating_point
+from model.circuit.topologies import EMF, SUPPLY, TRANSISTOR, build
+from model.design.stage import TOPOLOGIES, default_design, with_values
 
 SETTINGS = settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
-#: Region edges as documented in README "Regions" and model/transfer.py
+#: Region edges as documented in README "Regions" and model/analyses/transfer.py
 #: (common practice): saturation when VBC > 0.4 V, else cut-off below 10 nA.
 VBC_SATURATION = 0.4
 IC_CUTOFF = 10e-9

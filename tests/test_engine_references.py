@@ -34,11 +34,11 @@ from numpy.testing import assert_allclose
 from scipy import constants, optimize, special
 
 import model
-from model.analysis import analyse_batch, design_values
-from model.design import default_design, with_values
-from model.device import evaluate, params_at, thermal_voltage
-from model.solve import operating_point
-from model.topologies import build
+from model.analyses.figures import analyse_batch, design_values
+from model.circuit.device import evaluate, params_at, thermal_voltage
+from model.circuit.newton import operating_point
+from model.circuit.topologies import build
+from model.design.stage import default_design, with_values
 
 CE, EF = "common-emitter", "emitter-follower"
 SAVED = Path(__file__).resolve().parent.parent / "saved_designs"
@@ -97,7 +97,7 @@ def test_thermal_voltage_matches_si_2019(kelvin, millivolts):
 
 def test_si_constants_are_the_exact_2019_values():
     # SI Brochure 9th ed.: k = 1.380649e-23 J/K and e = 1.602176634e-19 C exactly.
-    from model import device
+    from model.circuit import device
 
     assert device.BOLTZMANN == constants.k == 1.380649e-23
     assert device.ELEMENTARY_CHARGE == constants.e == 1.602176634e-19

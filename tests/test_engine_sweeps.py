@@ -17,15 +17,14 @@ Hypothesis runs derandomized here so the suite cannot fail by chance.
 
 import numpy as np
 from hypothesis import HealthCheck, given, settings
-
-from model.analysis import design_values
-from model.linear import small_signal
-from model.response import sweep
-from model.solve import junction_voltages, operating_point
-from model.topologies import EMF, TRANSISTOR, build
-from model.transfer import FFT_POINTS, _harmonics, _held, _period, large_signal
-
 from test_engine_properties import designs
+
+from model.analyses.corner_search import sweep
+from model.analyses.figures import design_values
+from model.analyses.transfer import FFT_POINTS, _harmonics, _held, _period, swing_and_distortion
+from model.circuit.linearised import small_signal
+from model.circuit.newton import junction_voltages, operating_point
+from model.circuit.topologies import EMF, TRANSISTOR, build
 
 SETTINGS = settings(max_examples=15, deadline=None, derandomize=True, database=None,
                     suppress_health_check=[HealthCheck.too_slow])
@@ -71,7 +70,7 @@ def test_harmonics_equal_the_whole_period_solved_cold(d):
     stage, op = _stage(d)
     if not op.converged[0] or d.source.vpk <= 0:
         return
-    big = large_signal(stage, op, d.supply.vcc, d.source.vpk)
+    big = swing_and_distortion(stage, op, d.supply.vcc, d.source.vpk)
     held = stage.net.coupling_as_sources({
         e.name: op.voltages[e.a] - op.voltages[e.b] for e in stage.net.elements if getattr(e, "coupling", False)})
     emf = d.source.vpk * np.sin(2.0 * np.pi * np.arange(FFT_POINTS) / FFT_POINTS)
@@ -106,7 +105,7 @@ def test_response_sweep_equals_one_solve_per_frequency(d):
 
 
 def test_pattern_elimination_equals_lapack():
-    from model.linalg import solve_dominant
+    from model.circuit.dense import solve_dominant
 
     # Random diagonally dominant systems with a fixed sparsity pattern (a
     # seeded generator: deterministic), against numpy's LAPACK solve: both

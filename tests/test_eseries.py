@@ -1,4 +1,4 @@
-"""model.eseries: the IEC 60063 preferred-number series and stepping along them.
+"""model.design.eseries: the IEC 60063 preferred-number series and stepping along them.
 
 Sources: the series tables are IEC 60063 (E6 to E96). The tolerance paired
 with each series is common practice, not part of the standard's tables.
@@ -8,10 +8,11 @@ import math
 from decimal import Decimal
 
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given
+from hypothesis import strategies as st
 
+from model.design.eseries import SERIES, TOLERANCE, nearest, series_names, step, step_decade
 from model.errors import UnitError
-from model.eseries import SERIES, TOLERANCE, nearest, series_names, step, step_decade
 
 # IEC 60063: one decade of each series, as the standard prints it.
 IEC_60063 = {

@@ -21,14 +21,14 @@ import pytest
 import tomli_w
 
 from model import analyse, read_design
-from model.analysis import Figures
-from model.design import TOPOLOGIES, default_design, design_to_dict
-from model.designfile import dumps_design, read_document
+from model.analyses.figures import Figures
+from model.design.stage import TOPOLOGIES, default_design, design_to_dict
 from model.errors import DesignError, StageledgerError
-from model.historyfile import _ENTRY_KEYS
-from model.ledger import HEADLINE, headline, replay
-from model.savefile import DesignLock
-from model.session import DesignSession, create, design_at
+from model.files.designfile import dumps_design, read_document
+from model.files.historyfile import _ENTRY_KEYS
+from model.files.ledger import HEADLINE, headline, replay
+from model.files.savefile import DesignLock
+from model.files.session import DesignSession, create, design_at
 from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
@@ -285,7 +285,7 @@ def test_a_commit_reuses_figures_only_of_exactly_its_design(tmp_path, monkeypatc
     """The workbench hands over its background sweep's figures: they spare the
     analysis when they are of the committed design, and are ignored when they
     are of any other (a stale pair must never be logged)."""
-    import model.session
+    import model.files.session
 
     path = plain_file(tmp_path)
     with DesignSession(path) as s:
@@ -293,7 +293,7 @@ def test_a_commit_reuses_figures_only_of_exactly_its_design(tmp_path, monkeypatc
         design = dataclasses.replace(start, stage=dataclasses.replace(start.stage, rc=8.2e3))
         full = analyse(design)
         with monkeypatch.context() as m:
-            m.setattr(model.session, "analyse", lambda d: pytest.fail("analysed again"))
+            m.setattr(model.files.session, "analyse", lambda d: pytest.fail("analysed again"))
             entry = s.commit({"stage.rc": "8k2"}, known=(design, full))
         assert entry.after == headline(full)
 

@@ -19,11 +19,11 @@ import tomllib
 import pytest
 
 from model import analyse, read_design
-from model.design import TOPOLOGIES, default_design, rule_for, with_values
-from model.designfile import dumps_design, read_document
-from model.ledger import HEADLINE
-from model.session import create
-from model.units import parse_value
+from model.design.stage import TOPOLOGIES, default_design, rule_for, with_values
+from model.design.units import parse_value
+from model.files.designfile import dumps_design, read_document
+from model.files.ledger import HEADLINE
+from model.files.session import create
 from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]

@@ -13,15 +13,15 @@ import math
 
 import pytest
 from hypothesis import given
+from test_engine_properties import SETTINGS, designs
 
 from model import analyse
-from model.analysis import design_values
-from model.curves import stage_curves
-from model.design import default_design, with_values
-from model.loadlines import load_lines
-from model.solve import operating_point
-from model.topologies import build
-from test_engine_properties import SETTINGS, designs
+from model.analyses.curves import stage_curves
+from model.analyses.figures import design_values
+from model.analyses.loadlines import load_lines
+from model.circuit.newton import operating_point
+from model.circuit.topologies import build
+from model.design.stage import default_design, with_values
 
 
 def _par(a, b):

@@ -3,7 +3,7 @@ is JSON with no NaN or Infinity (RFC 8259, section 6: "Numeric values that
 cannot be represented ... such as Infinity and NaN are not permitted"), and
 `response --csv` holds finite numbers only.
 
-The designs are drawn from the rules in model/fields.py, so a key added
+The designs are drawn from the rules in model/design/fields.py, so a key added
 there, or a value it starts to accept (0 or "none" for a capacitor that is
 not fitted, "open" for a load), is drawn here without editing this file.
 """
@@ -23,11 +23,11 @@ import pytest
 from hypothesis import HealthCheck, example, given, reject, settings
 from hypothesis import strategies as st
 
-from model.analysis import analyse
-from model.design import TOPOLOGIES, default_design, with_values
-from model.designfile import dumps_design
+from model.analyses.figures import analyse
+from model.design.fields import check_value, keys_for, rule_for
+from model.design.stage import TOPOLOGIES, default_design, with_values
 from model.errors import DesignError
-from model.fields import check_value, keys_for, rule_for
+from model.files.designfile import dumps_design
 from tui.cli import main
 from tui.report import render_response
 

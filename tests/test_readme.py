@@ -3,8 +3,8 @@
 import pathlib
 import re
 
-from model.analysis import FIGURE_KEYS
-from model.design import FIELDS
+from model.analyses.figures import FIGURE_KEYS
+from model.design.stage import FIELDS
 
 README = (pathlib.Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
 

@@ -30,13 +30,13 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from model import ledger, savefile
-from model.design import default_design
-from model.designfile import MAX_FILE_BYTES, comment_lines, dumps_document, read_document
+from model.design.stage import default_design
 from model.errors import StageledgerError
-from model.historyfile import entry_text
-from model.savefile import LockHeld, SaveError
-from model.session import DesignSession, create
+from model.files import ledger, savefile
+from model.files.designfile import MAX_FILE_BYTES, comment_lines, dumps_document, read_document
+from model.files.historyfile import entry_text
+from model.files.savefile import LockHeld, SaveError
+from model.files.session import DesignSession, create
 from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
@@ -135,7 +135,7 @@ def logged_design(tmp_path_factory) -> bytes:
 # and it is SIGKILLed exactly as a separate program would be.
 EDITOR_FORKER = r'''
 import os, sys
-from model.session import DesignSession
+from model.files.session import DesignSession
 
 def edit(path):
     session = DesignSession(path)
@@ -293,7 +293,7 @@ ERRNOS = {errno.ENOSPC: "full", errno.EIO: "input/output", errno.EACCES: "permis
 
 
 class FaultyOs:
-    """Stands in for the ``os`` module inside model.savefile only (the rest of the process,
+    """Stands in for the ``os`` module inside model.files.savefile only (the rest of the process,
     pytest included, keeps the real one).  Counts calls; makes the k-th call of one function
     fail; with ``chunk`` every write is short, as a signal or a full pipe can make it."""
 
@@ -485,7 +485,7 @@ NO_WAIT = HOLD / 2
 
 HOLDER = r'''
 import sys, time
-from model.session import DesignSession
+from model.files.session import DesignSession
 session = DesignSession(sys.argv[1])
 print("locked", flush=True)
 time.sleep(%r)

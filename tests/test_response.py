@@ -16,19 +16,19 @@ import numpy as np
 import pytest
 from hypothesis import assume, example, given, settings
 from hypothesis import strategies as st
+from test_engine_properties import SETTINGS, _decades
 
 from model import analyse
-from model.analysis import design_values
-from model.design import default_design, with_values
-from model.device import DeviceParams
-from model.midband import device_small_signal
-from model.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
-from model.response import device_capacitance, sweep, with_device_capacitance
-from model.linear import frequency_sweep
-from model.solve import operating_point
-from model.topologies import build
-
-from test_engine_properties import SETTINGS, _decades
+from model.analyses.capacitance import device_capacitance, with_device_capacitance
+from model.analyses.corner_search import sweep
+from model.analyses.figures import design_values
+from model.analyses.midband import device_small_signal
+from model.circuit.device import DeviceParams
+from model.circuit.linearised import frequency_sweep
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.newton import operating_point
+from model.circuit.topologies import build
+from model.design.stage import default_design, with_values
 
 #: Big enough that a coupling or bypass capacitor is a short at every
 #: frequency that matters (its corner lies below 1 mHz).
@@ -432,8 +432,8 @@ def test_no_passband_is_warned_and_the_ledger_shows_the_corners_gone(tmp_path):
     """A 1 fF coupling capacitor: the gain never comes within 3 dB of midband
     (its corner, 1/(2π(rs + rin)·1 fF), is far above every other), so both
     corners are NaN, NO-PASSBAND is raised, and a logged change says "none"."""
-    from model.designfile import dumps_design
-    from model.session import DesignSession
+    from model.files.designfile import dumps_design
+    from model.files.session import DesignSession
     from tui.consequences import render_consequences
 
     d = default_design("common-emitter")

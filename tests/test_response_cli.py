@@ -2,7 +2,7 @@
 of `stageledger report FILE --json`.
 
 Where each expected value comes from, named again beside its check:
-* the engine's own sweep of the same design (``model.response.sweep``,
+* the engine's own sweep of the same design (``model.analyses.corner_search.sweep``,
   rebuilt from scratch as tests/test_response.py's ``_at`` does): this checks
   the command's plumbing and formatting, not the engine, whose values are
   checked against closed forms and a textbook in tests/test_response.py;
@@ -29,12 +29,13 @@ import numpy as np
 import pytest
 
 from model import read_design
-from model.analysis import design_values
-from model.midband import device_small_signal
-from model.response import device_capacitance, sweep, with_device_capacitance
-from model.solve import operating_point
-from model.topologies import build
-from model.units import parse_value
+from model.analyses.capacitance import device_capacitance, with_device_capacitance
+from model.analyses.corner_search import sweep
+from model.analyses.figures import design_values
+from model.analyses.midband import device_small_signal
+from model.circuit.newton import operating_point
+from model.circuit.topologies import build
+from model.design.units import parse_value
 from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]

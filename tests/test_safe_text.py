@@ -17,8 +17,8 @@ import re
 
 import pytest
 
-from model.design import default_design, with_values
-from model.session import DesignSession, create
+from model.design.stage import default_design, with_values
+from model.files.session import DesignSession, create
 from tui.cli import main
 from tui.launch import make_app
 from tui.safe_text import visible

@@ -17,9 +17,9 @@ from pathlib import Path
 
 import pytest
 
-from model.analysis import analyse
-from model.design import with_values
-from model.designfile import read_document
+from model.analyses.figures import analyse
+from model.design.stage import with_values
+from model.files.designfile import read_document
 
 TMUX = shutil.which("tmux")
 COMMAND = shutil.which("stageledger")

@@ -22,23 +22,22 @@ from __future__ import annotations
 import math
 
 import pytest
+import test_engine_properties as engine_properties
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from scipy import constants
+from test_engine_properties import _decades, designs
 
 from model import analyse
-from model.analysis import analyse_batch, design_values
-from model.design import CE, EF, default_design, design_to_dict, get_value, with_values
-from model.designfile import dumps_design, loads_design, read_document
+from model.analyses.figures import analyse_batch, design_values
+from model.analyses.hand import hand_estimate
+from model.design.stage import CE, EF, default_design, design_to_dict, get_value, with_values
+from model.design.stepping import step, step_decade
 from model.errors import DesignError
-from model.hand import hand_estimate
-from model.ledger import replay
-from model.session import DesignSession, create
-from model.stepping import step, step_decade
+from model.files.designfile import dumps_design, loads_design, read_document
+from model.files.ledger import replay
+from model.files.session import DesignSession, create
 from tui.widgets.knobs import field_text
-
-import test_engine_properties as engine_properties
-from test_engine_properties import _decades, designs
 
 #: The capacitor keys that may be left off, with a topology that has each.
 UNFITTED = [("stage.ce", CE), ("stage.cin", CE), ("stage.cout", EF), ("load.cl", EF),
@@ -461,6 +460,7 @@ async def test_the_knobs_show_and_step_a_capacitor_not_fitted(tmp_path):
     a message and leaves no candidate."""
     from test_workbench import SMALL, knobs, status, type_into
     from test_workbench_knobs import _drain
+
     from tui.launch import make_app
 
     path = tmp_path / "bench.toml"

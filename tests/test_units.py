@@ -1,4 +1,4 @@
-"""model.units: reading and writing SI-prefixed values and the letter code.
+"""model.design.units: reading and writing SI-prefixed values and the letter code.
 
 Sources: SI prefixes (names, symbols, powers of ten) from the BIPM SI
 Brochure, 9th edition, table 7; the resistance and capacitance letter code
@@ -10,10 +10,11 @@ a standard it says "project rule".
 import math
 
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given
+from hypothesis import strategies as st
 
+from model.design.units import format_rkm, format_si, parse_value
 from model.errors import StageledgerError, UnitError
-from model.units import format_rkm, format_si, parse_value
 
 REL = 1e-12  # parsing goes through decimal text, so only float rounding remains
 

@@ -4,7 +4,7 @@ Every case starts from a default design whose operating point is worked out
 by hand below, then changes one thing whose effect can be argued without
 the engine.  The limits are the ones README "Warnings" documents.
 
-Default common emitter (model.design.default_design): VCC 9 V, R1 56 kΩ,
+Default common emitter (model.design.stage.default_design): VCC 9 V, R1 56 kΩ,
 R2 10 kΩ, RC 6.8 kΩ, RE1 220 Ω + RE2 1 kΩ, β 200, RL 100 kΩ, Rs 1 kΩ,
 vpk 10 mV.  VTH = 9·10/66 = 1.36 V, RTH = 8.5 kΩ, so with VBE ≈ 0.65 V
 IE ≈ 0.71 V / (1.22 kΩ + 8.5 kΩ/201) ≈ 0.57 mA; VE ≈ 0.69 V,
@@ -19,7 +19,7 @@ VCE ≈ 6.7 V, P ≈ 16 mW; it asks for ≈ 0.8 V peak against ≈ 4 V of swing.
 import pytest
 
 from model import analyse
-from model.design import TOPOLOGIES, default_design, with_values
+from model.design.stage import TOPOLOGIES, default_design, with_values
 
 CE, EF = "common-emitter", "emitter-follower"
 POLARITIES = ("npn", "pnp")

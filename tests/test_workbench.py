@@ -16,15 +16,15 @@ import re
 
 import pytest
 from rich.cells import cell_len
+from textual.worker import WorkerCancelled
 
 import tui.app
-from textual.worker import WorkerCancelled
-from model.analysis import analyse
-from model.design import with_values
-from model.designfile import read_document
-from model.stepping import step, step_decade
-from model.savefile import LockHeld
-from model.session import DesignSession
+from model.analyses.figures import analyse
+from model.design.stage import with_values
+from model.design.stepping import step, step_decade
+from model.files.designfile import read_document
+from model.files.savefile import LockHeld
+from model.files.session import DesignSession
 from tui.bundled import default_demo, demo_dir
 from tui.launch import make_app
 from tui.screens import HelpScreen, NotePrompt
@@ -450,7 +450,7 @@ async def test_a_failed_save_keeps_the_candidate_and_the_file(preamp, monkeypatc
         with monkeypatch.context() as m:
             def full(*args, **kwargs):
                 raise OSError(errno.ENOSPC, "No space left on device")
-            m.setattr("model.savefile.os.replace", full)
+            m.setattr("model.files.savefile.os.replace", full)
             await pilot.press("enter")
             await pilot.pause()
         assert "not saved" in status(app) and "disk is full" in status(app)

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from test_workbench import SMALL, settle, status, type_into
 
-import model.session
+import model.files.session
 import tui.app
 import tui.launch
 from model.errors import StageledgerError
@@ -53,7 +53,7 @@ async def test_a_fault_in_a_commit_is_reported_and_nothing_is_lost(preamp, monke
         # already refused), so no full figures spare the commit its analysis,
         # and no sweep report can race the commit's own.
         monkeypatch.setattr(tui.app, "analyse", _refuse)
-        monkeypatch.setattr(model.session, "analyse", _raise)
+        monkeypatch.setattr(model.files.session, "analyse", _raise)
         await type_into(pilot, "stage.rc", "12k")
         await pilot.press("enter")
         await pilot.pause()

@@ -13,12 +13,12 @@ from __future__ import annotations
 import shutil
 
 import pytest
-
-from model.design import get_value, with_values
-from model.designfile import read_document
-from model.stepping import step
 from test_workbench import SMALL, knobs, region_text, saved, status, type_into
 from test_workbench_knobs import _drain, _typed
+
+from model.design.stage import get_value, with_values
+from model.design.stepping import step
+from model.files.designfile import read_document
 from tui.launch import make_app
 from tui.widgets.knobs import field_text
 

@@ -8,12 +8,12 @@ Expected designs and figures come from ``model`` (``with_values``,
 from __future__ import annotations
 
 import pytest
+from test_workbench import LARGE, SMALL, field, header_row, knobs, readout_row, saved, status, type_into
 from textual import events
 
-from model.analysis import analyse
-from model.design import get_value, with_values
-from model.designfile import read_document
-from test_workbench import LARGE, SMALL, field, header_row, knobs, readout_row, saved, status, type_into
+from model.analyses.figures import analyse
+from model.design.stage import get_value, with_values
+from model.files.designfile import read_document
 from tui.launch import make_app
 from tui.widgets.knobs import field_text
 
@@ -226,12 +226,13 @@ async def test_editing_keys_and_the_apps_keys_in_a_burst_keep_their_order(preamp
 async def test_a_commit_after_the_sweep_logs_the_sweeps_figures_without_analysing_again(preamp, monkeypatch):
     """Enter after the background sweep is in: the commit takes its figures
     (a second full analysis is most of a commit's time) and logs them."""
-    import model.session
     from test_workbench import settle
 
+    import model.files.session
+
     calls = []
-    real = model.session.analyse
-    monkeypatch.setattr(model.session, "analyse", lambda d: calls.append(d) or real(d))
+    real = model.files.session.analyse
+    monkeypatch.setattr(model.files.session, "analyse", lambda d: calls.append(d) or real(d))
     app = make_app(str(preamp))
     async with app.run_test(size=SMALL) as pilot:
         await type_into(pilot, "stage.rc", "10k")

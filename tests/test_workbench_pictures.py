@@ -9,11 +9,11 @@ must read without colour.
 from __future__ import annotations
 
 import pytest
-
-from model.analysis import analyse
-from model.design import with_values
-from model.units import format_si
 from test_workbench import LARGE, SMALL, region_text, settle, type_into
+
+from model.analyses.figures import analyse
+from model.design.stage import with_values
+from model.design.units import format_si
 from tui.launch import make_app
 from tui.pictures import BODE, LOAD_LINES, PICTURES, TRANSFER
 

@@ -19,8 +19,9 @@ import pytest
 
 pytest.importorskip("pytest_textual_snapshot")
 
-from textual.widgets import Input  # noqa: E402
 from test_workbench import settle  # noqa: E402
+from textual.widgets import Input  # noqa: E402
+
 from tui.launch import make_app  # noqa: E402
 
 DEMO = Path(__file__).resolve().parent.parent / "saved_designs" / "geophone_preamp.toml"

@@ -25,9 +25,9 @@ import math
 import pytest
 
 from model import analyse
-from model.design import default_design, with_values
-from model.device import T_NOMINAL, thermal_voltage
-from model.hand import hand_estimate
+from model.analyses.hand import hand_estimate
+from model.circuit.device import T_NOMINAL, thermal_voltage
+from model.design.stage import default_design, with_values
 
 BOYLESTAD_VT = 0.026  # V, Boylestad & Nashelsky's re = 26 mV / IE
 MALVINO_VT = 0.025  # V, Malvino & Bates's r'e = 25 mV / IE

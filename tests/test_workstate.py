@@ -20,12 +20,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from model.analysis import analyse
-from model.design import get_value, with_values
-from model.designfile import read_document
+from model.analyses.figures import analyse
+from model.design.stage import get_value, with_values
+from model.design.stepping import step
 from model.errors import StageledgerError
-from model.session import DesignSession
-from model.stepping import step
+from model.files.designfile import read_document
+from model.files.session import DesignSession
 from tui.fieldtext import field_text
 from tui.workstate import Outcome, WorkState
 
@@ -460,7 +460,7 @@ def test_a_step_the_rule_refuses_names_the_key_once_and_fits_the_status_line():
     """Down on ce = none: the DesignError already opens with the key, so the
     status line ("✗ " and the text) says it once and keeps the whole rule
     inside 80 columns, the narrowest screen the README supports."""
-    from model.design import default_design
+    from model.design.stage import default_design
 
     design = with_values(default_design("common-emitter"), {"stage.ce": "none"})
     state = WorkState(design, analyse(design, large_signal=False))

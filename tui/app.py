@@ -1,6 +1,6 @@
 """The workbench: Knobs beside a live Readout, with Pictures and the Ledger.
 
-The app owns the open design (through a :class:`~model.session.DesignSession`)
+The app owns the open design (through a :class:`~model.files.session.DesignSession`)
 and routes messages; it does no physics.  What is committed, pending, invalid
 or pinned is a plain object (:class:`~tui.workstate.WorkState`): the app hands
 it each message and shows what it returns.  Each keystroke in a field makes a
@@ -22,12 +22,12 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.message import Message
 from textual.widgets import Footer, Header, OptionList, Static
 
-from model import ledger
-from model.analysis import Figures, analyse
-from model.design import Design
+from model.analyses.figures import Figures, analyse
+from model.design.stage import Design
 from model.errors import StageledgerError
-from model.savefile import atomic_write
-from model.session import DesignSession
+from model.files import ledger
+from model.files.savefile import atomic_write
+from model.files.session import DesignSession
 
 from .editing import Editing
 from .messages import LargeSignalReady

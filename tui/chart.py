@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from model.units import format_si
+from model.design.units import format_si
 
 from .chart_scale import axis_range, finite, scaled, tick_labels, ticks
 

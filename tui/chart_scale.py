@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from model.units import format_si
+from model.design.units import format_si
 
 #: Of the data span, left either side so extremes do not sit on the frame.
 MARGIN = 0.05

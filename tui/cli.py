@@ -13,7 +13,7 @@ import argparse
 import os
 import sys
 
-from model.design import TOPOLOGIES
+from model.design.stage import TOPOLOGIES
 from model.errors import StageledgerError
 
 from .safe_text import visible
@@ -77,22 +77,22 @@ def _per_decade(text: str) -> int:
 
 
 def _dispatch(args) -> int:
-    from . import commands
+    from . import subcommands
 
     if args.command == "report":
         return _report(args.file, args.json)
     if args.command == "response":
         return _response(args.file, args.csv, args.per_decade)
     if args.command == "new":
-        return commands.cmd_new(args.file, args.topology, args.origin)
+        return subcommands.cmd_new(args.file, args.topology, args.origin)
     if args.command == "set":
-        return commands.cmd_set(args.file, args.assignments, args.note, args.dry_run, args.drop_comments)
+        return subcommands.cmd_set(args.file, args.assignments, args.note, args.dry_run, args.drop_comments)
     if args.command in ("undo", "redo"):
-        return commands.cmd_reverse(args.file, args.command, args.note, args.drop_comments)
+        return subcommands.cmd_reverse(args.file, args.command, args.note, args.drop_comments)
     if args.command == "history":
-        return commands.cmd_history(args.file, args.json)
+        return subcommands.cmd_history(args.file, args.json)
     if args.command == "diff":
-        return commands.cmd_diff(args.a, args.b)
+        return subcommands.cmd_diff(args.a, args.b)
     from .launch import run
 
     return run(args.file, args.read_only)
@@ -100,7 +100,7 @@ def _dispatch(args) -> int:
 
 def _report(path: str, as_json: bool) -> int:
     import model
-    from model import plain_json
+    from model.files import plain_json
 
     from .report import render_report
 
@@ -115,6 +115,7 @@ def _report(path: str, as_json: bool) -> int:
 
 def _response(path: str, as_csv: bool, per_decade: int) -> int:
     import model
+
     from .report import render_response
 
     design = model.read_design(path)

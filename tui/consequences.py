@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import math
 
-from model.design import FIELDS
-from model.ledger import HEADLINE, Entry
-from model.units import format_si
+from model.design.stage import FIELDS
+from model.design.units import format_si
+from model.files.ledger import HEADLINE, Entry
 
 from .report import signed
 from .safe_text import visible

@@ -4,8 +4,8 @@ without Textual."""
 
 from __future__ import annotations
 
-from model.design import FIELDS, file_word
-from model.units import format_si, parse_value
+from model.design.stage import FIELDS, file_word
+from model.design.units import format_si, parse_value
 
 
 def field_text(key: str, value) -> str:

@@ -13,10 +13,10 @@ import sys
 # Textual (which reads it once); set TEXTUAL_FPS yourself to choose otherwise.
 os.environ.setdefault("TEXTUAL_FPS", "240")
 
-from model.design import default_design  # noqa: E402
-from model.designfile import read_design  # noqa: E402
-from model.savefile import LockHeld  # noqa: E402
-from model.session import DesignSession, create  # noqa: E402
+from model.design.stage import default_design  # noqa: E402
+from model.files.designfile import read_design  # noqa: E402
+from model.files.savefile import LockHeld  # noqa: E402
+from model.files.session import DesignSession, create  # noqa: E402
 
 from .bundled import default_demo  # noqa: E402
 

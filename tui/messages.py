@@ -5,8 +5,8 @@ from __future__ import annotations
 
 from textual.message import Message
 
-from model.analysis import Figures
-from model.design import Design
+from model.analyses.figures import Figures
+from model.design.stage import Design
 
 
 class LargeSignalReady(Message):

@@ -2,7 +2,7 @@
 
 Each builder turns the engine's results into :class:`~tui.chart.Chart`
 objects: the Bode plot from the figures' response, the load lines and the
-transfer from :func:`model.curves.stage_curves`, which the picture worker
+transfer from :func:`model.analyses.curves.stage_curves`, which the picture worker
 calls.  Marks are letters explained in the legend, so every picture reads
 without colour.
 """
@@ -13,9 +13,9 @@ import math
 
 import numpy as np
 
-from model.analysis import Figures
-from model.curves import StageCurves, stage_curves
-from model.design import Design
+from model.analyses.curves import StageCurves, stage_curves
+from model.analyses.figures import Figures
+from model.design.stage import Design
 
 from .chart import Axis, Chart, Marker, Series, Spot
 

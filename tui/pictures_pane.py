@@ -7,12 +7,12 @@ from __future__ import annotations
 from textual import work
 from textual.widgets import Static
 
-from model.analysis import Figures
-from model.design import Design
+from model.analyses.figures import Figures
+from model.design.stage import Design
 
 from .chart import render_stack
-from .pictures import PICTURES, charts_for
 from .messages import PictureReady
+from .pictures import PICTURES, charts_for
 from .widgets.picture import Picture
 
 

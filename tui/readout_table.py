@@ -8,9 +8,9 @@ import math
 
 from rich.text import Text
 
-from model.analysis import Figures
-from model.midband import decibels
-from model.units import format_si
+from model.analyses.figures import Figures
+from model.analyses.midband import decibels
+from model.design.units import format_si
 
 from .consequences import relative_change
 from .report import part_name

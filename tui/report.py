@@ -5,13 +5,12 @@ from __future__ import annotations
 import math
 import textwrap
 
-from model.analysis import Figures
-from model.design import Design
-from model.midband import decibels
-from model.units import format_si
+from model.analyses.figures import Figures
+from model.analyses.midband import decibels
+from model.design.stage import Design
+from model.design.units import format_si
 
 from .safe_text import visible
-
 
 #: The words for a figure that is not a finite number: an infinite one is
 #: unbounded (a resistance with no path, a band with no upper corner); a NaN

@@ -18,10 +18,10 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import NamedTuple
 
-from model.analysis import Figures, analyse
-from model.design import SERIES, Design, get_value, with_values
+from model.analyses.figures import Figures, analyse
+from model.design.stage import SERIES, Design, get_value, with_values
+from model.design.stepping import choices, step, step_decade
 from model.errors import DesignError, StageledgerError
-from model.stepping import choices, step, step_decade
 
 from .fieldtext import field_text
 

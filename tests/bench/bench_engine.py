@@ -19,15 +19,15 @@ import numpy as np
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
-from model import analyse, read_design  # noqa: E402
-from model.analysis import analyse_batch, design_values  # noqa: E402
-from model.design import default_design  # noqa: E402
-from model.device import T_NOMINAL, thermal_voltage  # noqa: E402
+import math  # noqa: E402
+from dataclasses import replace  # noqa: E402
 
 from timing import median_ms  # noqa: E402
 
-import math  # noqa: E402
-from dataclasses import replace  # noqa: E402
+from model import analyse, read_design  # noqa: E402
+from model.analyses.figures import analyse_batch, design_values  # noqa: E402
+from model.circuit.device import T_NOMINAL, thermal_voltage  # noqa: E402
+from model.design.stage import default_design  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 
@@ -122,9 +122,9 @@ def _best_s(fn, repeats: int = 3) -> float:
 def batch_parts(values: dict) -> None:
     """Operating point alone and midband alone over the same 100,000 designs
     (one shape, so one group)."""
-    from model.midband import midband
-    from model.solve import operating_point
-    from model.topologies import build
+    from model.analyses.midband import midband_figures
+    from model.circuit.newton import operating_point
+    from model.circuit.topologies import build
 
     n = len(values["supply.vcc"])
     best = _best_s(lambda: analyse_batch("common-emitter", values))
@@ -132,20 +132,21 @@ def batch_parts(values: dict) -> None:
     stage = build("common-emitter", values)
     op = operating_point(stage.net)
     t_op = _best_s(lambda: operating_point(stage.net))
-    t_mid = _best_s(lambda: midband(stage, op, values["source.rs"]))
+    t_mid = _best_s(lambda: midband_figures(stage, op, values["source.rs"]))
     print(f"batch_operating_point_throughput: {n / t_op:,.0f} designs/s")
     print(f"batch_midband_throughput: {n / t_mid:,.0f} designs/s")
 
 
 def single_parts(design) -> None:
     """The single analysis of the demo design split into its parts (median ms)."""
-    from model.analysis import _with_beta
-    from model.checks import stage_warnings
-    from model.midband import device_small_signal, midband
-    from model.response import device_capacitance, response
-    from model.solve import operating_point
-    from model.topologies import build
-    from model.transfer import large_signal
+    from model.analyses.capacitance import device_capacitance
+    from model.analyses.checks import stage_warnings
+    from model.analyses.corner_search import frequency_response
+    from model.analyses.figures import _with_beta
+    from model.analyses.midband import device_small_signal, midband_figures
+    from model.analyses.transfer import swing_and_distortion
+    from model.circuit.newton import operating_point
+    from model.circuit.topologies import build
 
     t = design.transistor
     variants = [design, _with_beta(design, t.beta / 2.0), _with_beta(design, t.beta * 2.0)]
@@ -154,7 +155,7 @@ def single_parts(design) -> None:
     nominal = replace(stage, net=stage.net.take(np.array([0])))
     op = op3.take(np.array([0]))
     rs = np.array([design.source.rs])
-    mid = midband(nominal, op, rs)
+    mid = midband_figures(nominal, op, rs)
     dev = device_small_signal(op)
     caps = device_capacitance(float(dev.gm[0]), t.ft, t.cmu)
     av = float(mid.av_source[0])
@@ -162,9 +163,9 @@ def single_parts(design) -> None:
     f = analyse(design)
     parts = {
         "operating_point": lambda: operating_point(build(design.topology, design_values(variants)).net),
-        "midband": lambda: midband(nominal, op, rs),
-        "swing_distortion": lambda: large_signal(nominal, op, design.supply.vcc, design.source.vpk, span),
-        "response": lambda: response(nominal, op, caps, av, design.source.freq),
+        "midband": lambda: midband_figures(nominal, op, rs),
+        "swing_distortion": lambda: swing_and_distortion(nominal, op, design.supply.vcc, design.source.vpk, span),
+        "response": lambda: frequency_response(nominal, op, caps, av, design.source.freq),
         "warnings": lambda: stage_warnings(
             design, region=f.region, ic=f.ic, vce=f.vce, vbc=f.vbe - f.vce,
             swing_up=f.swing_up, swing_down=f.swing_down, wanted_out=f.vout_wanted,

@@ -20,11 +20,11 @@ import time
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
 from model import ledger  # noqa: E402
-from model.analysis import analyse  # noqa: E402
-from model.design import with_values  # noqa: E402
-from model.designfile import dumps_document, read_document  # noqa: E402
-from model.historyfile import entry_text  # noqa: E402
-from model.session import DesignSession  # noqa: E402
+from model.analyses.figures import analyse  # noqa: E402
+from model.design.stage import with_values  # noqa: E402
+from model.files.designfile import dumps_document, read_document  # noqa: E402
+from model.files.historyfile import entry_text  # noqa: E402
+from model.files.session import DesignSession  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 VALUES = (8.2e3, 9.1e3, 10e3, 11e3)

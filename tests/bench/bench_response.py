@@ -17,16 +17,17 @@ import numpy as np
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
+from timing import median_ms  # noqa: E402
+
 from model import analyse, read_design  # noqa: E402
-from model.analysis import design_values  # noqa: E402
-from model.midband import device_small_signal, midband  # noqa: E402
-from model.response import device_capacitance, response, sweep, with_device_capacitance  # noqa: E402
-from model.solve import operating_point  # noqa: E402
-from model.topologies import build  # noqa: E402
+from model.analyses.capacitance import device_capacitance, with_device_capacitance  # noqa: E402
+from model.analyses.corner_search import frequency_response, sweep  # noqa: E402
+from model.analyses.figures import design_values  # noqa: E402
+from model.analyses.midband import device_small_signal, midband_figures  # noqa: E402
+from model.circuit.newton import operating_point  # noqa: E402
+from model.circuit.topologies import build  # noqa: E402
 from tui.chart import render_stack  # noqa: E402
 from tui.pictures import PICTURES, charts_for  # noqa: E402
-
-from timing import median_ms  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"
 POINTS = 400
@@ -36,13 +37,13 @@ def main() -> None:
     d = read_design(DEMO)
     stage = build(d.topology, design_values([d]))
     op = operating_point(stage.net)
-    mid = float(midband(stage, op, np.array([d.source.rs])).av_source[0])
+    mid = float(midband_figures(stage, op, np.array([d.source.rs])).av_source[0])
     caps = device_capacitance(float(device_small_signal(op).gm[0]), d.transistor.ft, d.transistor.cmu)
     ac = with_device_capacitance(stage, caps)
     freq = np.logspace(-1, 7, POINTS)
 
     def full():
-        return response(stage, op, caps, mid, d.source.freq, points=POINTS)
+        return frequency_response(stage, op, caps, mid, d.source.freq, points=POINTS)
 
     r = full()
     assert r.freq.size == POINTS and np.isfinite(r.f_low) and np.isfinite(r.f_high)

@@ -31,8 +31,9 @@ import time
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[2]))
 
 # tui first: it sets Textual's frame rate before Textual is imported.
-from tui.launch import make_app  # noqa: E402
 from textual import events  # noqa: E402
+
+from tui.launch import make_app  # noqa: E402
 from tui.widgets.knobs import Knobs  # noqa: E402
 
 DEMO = pathlib.Path(__file__).resolve().parents[2] / "saved_designs" / "geophone_preamp.toml"

@@ -21,10 +21,9 @@ from textual.message import Message
 from textual.widgets import Input, Static
 from textual.widgets.input import Selection
 
-from model.design import Design, get_value, keys_for
+from model.design.stage import Design, get_value, keys_for
 
 from ..fieldtext import field_text
-
 from ..safe_text import visible
 
 #: Table order on screen, with the heading shown for each.

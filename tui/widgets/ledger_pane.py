@@ -5,7 +5,7 @@ from __future__ import annotations
 from textual.widgets import OptionList
 from textual.widgets.option_list import Option
 
-from model.ledger import Entry
+from model.files.ledger import Entry
 
 from ..consequences import compact_deltas
 from ..safe_text import visible

@@ -13,11 +13,17 @@ import datetime as _dt
 import math
 from dataclasses import dataclass, field
 
-from .analysis import Figures
-from .design import (
-    Design, check_value, design_from_dict, design_to_dict, file_word, get_value, with_values,
+from model.analyses.figures import Figures
+from model.design.stage import (
+    Design,
+    check_value,
+    design_from_dict,
+    design_to_dict,
+    file_word,
+    get_value,
+    with_values,
 )
-from .errors import DesignError, StageledgerError
+from model.errors import DesignError, StageledgerError
 
 #: Entry kinds, in the words the file uses.
 START, SET, UNDO, REDO, HAND_EDIT = "start", "set", "undo", "redo", "hand-edit"

@@ -27,8 +27,8 @@ from functools import cached_property, lru_cache
 
 import numpy as np
 
-from .errors import SolveError
-from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.errors import SolveError
 
 DC, MIDBAND, AC = "dc", "midband", "ac"
 

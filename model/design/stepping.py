@@ -3,9 +3,9 @@ sensible increment for plain numbers."""
 
 from __future__ import annotations
 
-from . import eseries
-from .design import FIELDS, NONE, POLARITIES, SERIES, file_word
-from .errors import DesignError
+from model.design import eseries
+from model.design.stage import FIELDS, NONE, POLARITIES, SERIES, file_word
+from model.errors import DesignError
 
 #: Plain numbers step linearly by these amounts (in the key's unit).
 LINEAR_STEPS = {

@@ -1,7 +1,7 @@
 """One builder per topology: design values in, netlist out.
 
 A builder only places parts on nodes and names the terminals the analyses
-need; all solving happens in :mod:`model.solve`.  A PNP stage is the mirror
+need; all solving happens in :mod:`model.circuit.newton`.  A PNP stage is the mirror
 image of its NPN twin on the same positive supply: every part that goes to
 ground in the NPN stage goes to the supply instead, and the other way round.
 The source and the load stay referred to ground, as they are on the bench.
@@ -22,8 +22,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .device import params_at
-from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.device import params_at
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
 
 #: Element names the analyses look up.
 SUPPLY, EMF, TRANSISTOR = "vcc", "vs", "q1"

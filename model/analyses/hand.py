@@ -13,8 +13,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from .design import Design
-from .device import ZERO_CELSIUS, thermal_voltage
+from model.circuit.device import ZERO_CELSIUS, thermal_voltage
+from model.design.stage import Design
 
 
 @dataclass(frozen=True)

@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from .units import format_si
+from model.design.units import format_si
 
 #: Supplies above this are treated as hazardous (conservative common practice;
 #: IEC 62368-1 ES1 as commonly cited and IEC 60598-1 use 60 V DC).

@@ -11,14 +11,14 @@ from __future__ import annotations
 import os
 from dataclasses import dataclass
 
-from . import ledger
-from .analysis import Figures, analyse
-from .design import Design, with_values
-from .designfile import Document, dumps_document, read_document
-from .errors import StageledgerError
-from .historyfile import entry_text
-from .ledger import Entry
-from .savefile import DesignLock, atomic_write
+from model.analyses.figures import Figures, analyse
+from model.design.stage import Design, with_values
+from model.errors import StageledgerError
+from model.files import ledger
+from model.files.designfile import Document, dumps_document, read_document
+from model.files.historyfile import entry_text
+from model.files.ledger import Entry
+from model.files.savefile import DesignLock, atomic_write
 
 #: Refused alike by a commit and by its dry run, so the two agree.
 NOTHING_TO_COMMIT = "nothing to commit: every value is already as given"

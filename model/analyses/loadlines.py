@@ -14,10 +14,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .netlist import VoltageSource
-from .linear import small_signal
-from .solve import OperatingPoint
-from .topologies import TRANSISTOR, StageCircuit
+from model.circuit.linearised import small_signal
+from model.circuit.netlist import VoltageSource
+from model.circuit.newton import OperatingPoint
+from model.circuit.topologies import TRANSISTOR, StageCircuit
 
 
 @dataclass(frozen=True)

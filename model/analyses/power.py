@@ -6,9 +6,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .netlist import GROUND, Bjt, Netlist, Resistor
-from .solve import OperatingPoint
-from .topologies import TRANSISTOR, StageCircuit
+from model.circuit.netlist import GROUND, Bjt, Netlist, Resistor
+from model.circuit.newton import OperatingPoint
+from model.circuit.topologies import TRANSISTOR, StageCircuit
 
 
 @dataclass(frozen=True)

@@ -13,15 +13,14 @@ import os
 import re
 import stat
 import tomllib
+from dataclasses import dataclass
 
 import tomli_w
 
-from dataclasses import dataclass
-
-from .design import Design, design_from_dict, design_to_dict
-from .errors import DesignFileError
-from .historyfile import history_from_list
-from .savefile import Fingerprint
+from model.design.stage import Design, design_from_dict, design_to_dict
+from model.errors import DesignFileError
+from model.files.historyfile import history_from_list
+from model.files.savefile import Fingerprint
 
 # A design is a few kilobytes and each history entry under one; the caps keep
 # a wrong or hostile file from costing memory or time before the parser even

@@ -1,18 +1,18 @@
 """Linear solves of the circuit linearised at an operating point: midband
 and DC solves with test currents, transfer impedances, and frequency sweeps.
 They assemble their matrices with the same plan and stamps as the Newton
-solve in :mod:`model.solve`; nothing here knows which topology it solves.
+solve in :mod:`model.circuit.newton`; nothing here knows which topology it solves.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from .linalg import solve_batched
-from .netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
-from .plan import AC, DC, MIDBAND, Plan, plan_for
-from .assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
-from .solve import OperatingPoint
+from model.circuit.assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
+from model.circuit.dense import solve_batched
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.newton import OperatingPoint
+from model.circuit.plan import AC, DC, MIDBAND, Plan, plan_for
 
 
 def _linearised(net: Netlist, op: OperatingPoint, plan: Plan, g, v):

@@ -1,10 +1,10 @@
 """The DC operating point: Newton on the transistor junctions of the
 linear network reduced onto them.
 
-Every topology is a builder that produces a :class:`~model.netlist.Netlist`;
+Every topology is a builder that produces a :class:`~model.circuit.netlist.Netlist`;
 nothing here knows which topology it is solving.  The netlist's shape is
-compiled once into a :class:`~model.plan.Plan` and its equations assembled by
-:mod:`model.assembly`.  The linear network is then reduced, once per design,
+compiled once into a :class:`~model.circuit.plan.Plan` and its equations assembled by
+:mod:`model.circuit.assembly`.  The linear network is then reduced, once per design,
 onto the 2k junction voltages u (VBE, VBC of each of k transistors):
 
     u = u₀ − R·i(u)
@@ -25,11 +25,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import device
-from .assembly import admittance_values, assemble_linear, index_dot, node_dict
-from .linalg import solve_batched, solve_dominant
-from .netlist import Bjt, Netlist
-from .plan import DC, plan_for
+from model.circuit import device
+from model.circuit.assembly import admittance_values, assemble_linear, index_dot, node_dict
+from model.circuit.dense import solve_batched, solve_dominant
+from model.circuit.netlist import Bjt, Netlist
+from model.circuit.plan import DC, plan_for
 
 #: Newton stops when no node moves by more than this (V) and no junction was
 #: limited.  Convergence is quadratic, so the point after such a step is good to
@@ -151,7 +151,7 @@ class SweepReduction:
 class _Reduced:
     """A batch's DC network assembled and reduced onto its junctions.
 
-    g, v: admittances and constraint voltages (see :mod:`model.assembly`);
+    g, v: admittances and constraint voltages (see :mod:`model.circuit.assembly`);
     drive (batch, n, 1 + 2k): the unknowns for the network's own sources
     (column 0) and for a unit current into each junction (the rest);
     u0, r: the junction equations u = u0 − r·i(u), sign included.

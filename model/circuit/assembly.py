@@ -2,7 +2,7 @@
 
 Every linear solve and the DC Newton start here: element values become
 admittances g (batch, n_adm) and constraint voltages V (batch, n_src), and a
-plan (see :mod:`model.plan`) turns them into A (batch, n, n) and b (batch, n)
+plan (see :mod:`model.circuit.plan`) turns them into A (batch, n, n) and b (batch, n)
 by matrix products, or by sparse sums for big batches where a dense product
 would mostly multiply zeros.
 """
@@ -11,8 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .netlist import GROUND, Netlist, Resistor
-from .plan import Plan
+from model.circuit.netlist import GROUND, Netlist, Resistor
+from model.circuit.plan import Plan
 
 #: From this batch size on, matrices are assembled by sparse sums rather
 #: than dense products.

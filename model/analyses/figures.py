@@ -10,18 +10,18 @@ from typing import Sequence
 
 import numpy as np
 
-from .checks import stage_warnings
-from .design import Design
-from .errors import SolveError
-from .hand import HandEstimate, hand_estimate
-from .midband import decibels, device_small_signal, midband
-from .plain_json import plain
-from .power import dissipation
-from .response import POINTS_PER_DECADE, Response, device_capacitance, response as _response
-from .solve import operating_point
-from .topologies import TRANSISTOR, StageCircuit, build, shape_of
-from .transfer import LargeSignal, region_of
-from .transfer import large_signal as _large_signal
+from model.analyses.capacitance import device_capacitance
+from model.analyses.checks import stage_warnings
+from model.analyses.corner_search import POINTS_PER_DECADE, Response, frequency_response
+from model.analyses.hand import HandEstimate, hand_estimate
+from model.analyses.midband import decibels, device_small_signal, midband_figures
+from model.analyses.power import dissipation
+from model.analyses.transfer import LargeSignal, region_of, swing_and_distortion
+from model.circuit.newton import operating_point
+from model.circuit.topologies import TRANSISTOR, StageCircuit, build, shape_of
+from model.design.stage import Design
+from model.errors import SolveError
+from model.files.plain_json import plain
 
 #: Design keys fed to the builders, as "table.key"; transistor.sign is derived.
 _KEYS = (
@@ -163,10 +163,10 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     # plus room for the ~0.5 V base-emitter excursion that reaches cut-off.
     rs, rin = design.source.rs, float(mid.rin[0])
     span = 3.0 * design.supply.vcc / max(abs(float(mid.av_source[0])), 1e-6) + 1.0 * (1.0 + rs / rin)
-    big = (_large_signal(nominal, op, design.supply.vcc, design.source.vpk, span) if large_signal
+    big = (swing_and_distortion(nominal, op, design.supply.vcc, design.source.vpk, span) if large_signal
            else LargeSignal(*(math.nan,) * 5, (math.nan, math.nan), np.zeros(0), np.zeros(0)))
     caps = device_capacitance(float(dev.gm[0]), t.ft, t.cmu)
-    resp = (_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq, per_decade=per_decade)
+    resp = (frequency_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq, per_decade=per_decade)
             if large_signal else None)
     power = dissipation(nominal, op)
     p_q = float(power.p_transistor[0])
@@ -213,7 +213,7 @@ def dc_midband(stage: StageCircuit, rs: np.ndarray):
     op = operating_point(stage.net)
     # Rows that did not converge carry garbage; they are flagged, not warned about.
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        return op, device_small_signal(op), midband(stage, op, rs)
+        return op, device_small_signal(op), midband_figures(stage, op, rs)
 
 
 def _with_beta(design: Design, beta: float) -> Design:

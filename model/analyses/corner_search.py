@@ -1,96 +1,56 @@
 """Frequency response: the linearised stage swept over frequency with every
-capacitor in place, its exact −3 dB corners, and per-capacitor estimates
-that say which part sets each corner.
-
-Device capacitances (hybrid-π, at the bias point; Sedra & Smith, and Gray,
-Hurst, Lewis & Meyer, fT = gm / (2π(Cπ + Cμ))):
-  * Cμ, base–collector, is the ``transistor.cmu`` key;
-  * Cπ, base–emitter, is gm/(2π·fT) − Cμ, floored at 0 when the ``ft`` key
-    asks for more speed than gm and Cμ allow (the FT-INCONSISTENT warning).
+capacitor in place, and its exact −3 dB corners.
 
 The corners are where |av_source| falls to 1/√2 of its midband value, found
 on the computed response: a log grid brackets each crossing, two finer grids
-narrow it, and the last step interpolates dB against log frequency.
+narrow it, and the last step interpolates dB against log frequency.  The
+per-part estimates that start the search are in :mod:`corner_estimates`.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 
-from .netlist import GROUND, Capacitor
-from .plan import MIDBAND, plan_for
-from .linear import FrequencySweep, small_signal, transfer_impedances
-from .solve import OperatingPoint
-from .topologies import EMF, TRANSISTOR, StageCircuit
+from model.analyses.capacitance import (
+    DeviceCapacitance,
+    with_device_capacitance,
+)
+from model.analyses.corner_estimates import (
+    PartEstimate,
+    high_estimate,
+    low_estimate,
+    miller_estimate,
+    open_circuit_parts,
+    short_circuit_parts,
+)
+from model.circuit.linearised import FrequencySweep, transfer_impedances
+from model.circuit.newton import OperatingPoint
+from model.circuit.topologies import EMF, StageCircuit
 
-#: Tag of the device capacitances added to a built stage.
-DEVICE = "device"
-CPI, CMU = "cpi", "cmu"
 POINTS_PER_DECADE = 20
+
+
 #: Points of each refining grid inside a bracket; two rounds narrow a
 #: 1/20-decade bracket to about 5e-5 decade before the final interpolation.
 #: The search grid is always POINTS_PER_DECADE dense.
 _REFINE = 32
+
+
 #: Exponents 0 … 1 of a refining grid's geometric steps.
 _STEPS = np.linspace(0.0, 1.0, _REFINE)
+
+
 _HALF_POWER_DB = -10.0 * math.log10(2.0)
+
+
 #: Widest the search goes: the corners of any audio-to-RF stage lie inside.
 _LOWEST_DECADE, _HIGHEST_DECADE = -6, 13
+
+
 _WIDEN = 3
-
-
-@dataclass(frozen=True)
-class DeviceCapacitance:
-    """Cπ and Cμ (F) at the bias point; ``floored`` when Cπ was raised to 0."""
-
-    c_pi: float
-    c_mu: float
-    floored: bool
-
-
-def device_capacitance(gm: float, ft: float, cmu: float) -> DeviceCapacitance:
-    """Cπ from gm (S), fT (Hz) and Cμ (F), floored at 0."""
-    total = gm / (2.0 * math.pi * ft)
-    return DeviceCapacitance(max(total - cmu, 0.0), cmu, total < cmu)
-
-
-def with_device_capacitance(stage: StageCircuit, caps: DeviceCapacitance) -> StageCircuit:
-    """The stage with Cπ (b–e) and Cμ (b–c) across its transistor."""
-    q = stage.net.element(TRANSISTOR)
-    batch = stage.net.batch
-    extra = (
-        Capacitor(CPI, q.b, q.e, np.full(batch, caps.c_pi), coupling=False, tags=frozenset((DEVICE,))),
-        Capacitor(CMU, q.b, q.c, np.full(batch, caps.c_mu), coupling=False, tags=frozenset((DEVICE,))),
-    )
-    return replace(stage, net=stage.net.with_elements(*extra))
-
-
-@dataclass(frozen=True)
-class PartEstimate:
-    """One capacitor's time constant: the resistance it sees (Ω) times its C (F).
-
-    For a coupling or bypass capacitor the others are shorted and the device
-    and load capacitances open (short-circuit time constant); for a device or
-    load capacitance the others are open and the coupling capacitors shorted
-    (open-circuit time constant).  ``freq`` is 1/(2πτ), the corner that part
-    would set alone (Hz).
-    """
-
-    part: str
-    resistance: float
-    capacitance: float
-
-    @property
-    def tau(self) -> float:
-        """The time constant R·C (s)."""
-        return self.resistance * self.capacitance
-
-    @property
-    def freq(self) -> float:
-        return 1.0 / (2.0 * math.pi * self.tau) if self.tau > 0 else math.inf
 
 
 @dataclass(frozen=True)
@@ -159,18 +119,7 @@ class Response:
         return raw + 360.0 * round((curve - raw) / 360.0)
 
 
-def low_estimate(parts) -> float:
-    """f_low estimate (Hz): the sum of the short-circuit corners."""
-    return sum((p.freq for p in parts if math.isfinite(p.freq)), 0.0)
-
-
-def high_estimate(parts) -> float:
-    """f_high estimate (Hz): 1/(2π Σ τ) over the open-circuit time constants."""
-    total = sum(p.tau for p in parts)
-    return 1.0 / (2.0 * math.pi * total) if total > 0 else math.inf
-
-
-def response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, midband_gain: float,
+def frequency_response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, midband_gain: float,
              signal_freq: float, *, per_decade: int = POINTS_PER_DECADE, points: int | None = None) -> Response:
     """The response of a single-design stage with ``device`` capacitances
     across its transistor.
@@ -332,47 +281,3 @@ def _phase(gain, midband_gain) -> np.ndarray:
     ref = phase[int(np.argmin(np.abs(gain - midband_gain)))]
     target = 180.0 if midband_gain < 0 else 0.0
     return phase + 360.0 * round((target - ref) / 360.0)
-
-
-def _resistance_across(net, op, a: str, b: str, z=None) -> float:
-    """Midband resistance (Ω) between nodes a and b with every source at zero;
-    infinite when one of them has no conductive path at all (or, with the
-    part removed, is gone from the circuit).  ``z`` reuses transfer impedances
-    already solved for ``net``."""
-    present = {*net.nodes, GROUND}
-    if a not in present or b not in present or {a, b} & plan_for(net, MIDBAND).floating:
-        return math.inf
-    z = z or transfer_impedances(net, op)
-    return abs(float((z(a, a) - z(a, b) - z(b, a) + z(b, b))[0]))
-
-
-def short_circuit_parts(stage: StageCircuit, op: OperatingPoint) -> tuple:
-    """Short-circuit time constant of each coupling and bypass capacitor."""
-    out = []
-    for cap in stage.net.of_type(Capacitor):
-        if cap.coupling:
-            r = _resistance_across(stage.net.drop(cap.name), op, cap.a, cap.b)
-            out.append(PartEstimate(cap.name, r, float(cap.c[0])))
-    return tuple(out)
-
-
-def open_circuit_parts(stage: StageCircuit, op: OperatingPoint, z=None) -> tuple:
-    """Open-circuit time constant of each device and load capacitance."""
-    z = z or transfer_impedances(stage.net, op)
-    return tuple(
-        PartEstimate(cap.name, _resistance_across(stage.net, op, cap.a, cap.b, z), float(cap.c[0]))
-        for cap in stage.net.of_type(Capacitor) if not cap.coupling
-    )
-
-
-def miller_estimate(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, z=None) -> float:
-    """f_high (Hz) from the input pole alone, each device capacitance moved
-    to the base by the Miller theorem: C = Cπ(1 − ve/vb) + Cμ(1 − vc/vb), with
-    the midband node gains, against the resistance from base to ground."""
-    z = z or transfer_impedances(stage.net, op)
-    drive = small_signal(stage.net, op, excite={EMF: 1.0})
-    vb = drive[stage.base][0]
-    c = (device.c_pi * (1.0 - drive[stage.emitter][0] / vb)
-         + device.c_mu * (1.0 - drive[stage.collector][0] / vb)).real
-    r_base = float(z(stage.base, stage.base)[0])
-    return 1.0 / (2.0 * math.pi * r_base * c) if r_base * c > 0 else math.inf

@@ -19,9 +19,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .device import critical_voltage
-from .solve import OperatingPoint, sweep_reduction
-from .topologies import EMF, TRANSISTOR, StageCircuit
+from model.circuit.device import critical_voltage
+from model.circuit.newton import OperatingPoint, sweep_reduction
+from model.circuit.topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
 IC_CUTOFF = 10e-9  # A
@@ -74,7 +74,7 @@ class LargeSignal:
     curve_out: np.ndarray
 
 
-def large_signal(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float,
+def swing_and_distortion(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float,
                  span: float | None = None) -> LargeSignal:
     """Swing and distortion of a single-design stage at its operating point ``op``.
 

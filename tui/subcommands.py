@@ -6,13 +6,14 @@ becomes one line on stderr and exit status 2 in :mod:`tui.cli`.
 
 from __future__ import annotations
 
-from model import analyse, plain_json
-from model.design import TOPOLOGIES, default_design
+from model import analyse
+from model.design.fields import with_article
+from model.design.stage import TOPOLOGIES, default_design
 from model.errors import StageledgerError
-from model.fields import with_article
-from model.historyfile import entry_to_dict
-from model.ledger import changes_between, headline, warning_codes
-from model.session import NOTHING_TO_COMMIT, DesignSession, create, design_at
+from model.files import plain_json
+from model.files.historyfile import entry_to_dict
+from model.files.ledger import changes_between, headline, warning_codes
+from model.files.session import NOTHING_TO_COMMIT, DesignSession, create, design_at
 
 from .consequences import render_changes, render_consequences, render_entry
 from .safe_text import visible

@@ -13,7 +13,7 @@ from functools import cached_property
 
 import numpy as np
 
-from .device import DeviceParams
+from model.circuit.device import DeviceParams
 
 GROUND = "0"
 

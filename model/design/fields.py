@@ -12,8 +12,8 @@ import numbers
 import unicodedata
 from dataclasses import dataclass
 
-from .errors import DesignError, UnitError
-from .units import parse_value
+from model.design.units import parse_value
+from model.errors import DesignError, UnitError
 
 FORMAT = 1
 TOPOLOGIES = ("common-emitter", "emitter-follower")

@@ -5,7 +5,7 @@ capacitances are open.  Each figure is the whole linearised circuit's
 response to a test current, so no topology formula is assumed: the circuit
 without its source is factored once, and removing the load or the bias
 divider, or putting the source resistance back, are low-rank corrections
-(see :class:`model.linear.Factored`).
+(see :class:`model.circuit.linearised.Factored`).
 """
 
 from __future__ import annotations
@@ -14,9 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .linear import Factored
-from .solve import OperatingPoint
-from .topologies import BIAS, LOAD, SOURCE, TRANSISTOR, StageCircuit
+from model.circuit.linearised import Factored
+from model.circuit.newton import OperatingPoint
+from model.circuit.topologies import BIAS, LOAD, SOURCE, TRANSISTOR, StageCircuit
 
 
 @dataclass(frozen=True)
@@ -54,7 +54,7 @@ class Midband:
     rout: np.ndarray
 
 
-def midband(stage: StageCircuit, op: OperatingPoint, rs: np.ndarray) -> Midband:
+def midband_figures(stage: StageCircuit, op: OperatingPoint, rs: np.ndarray) -> Midband:
     """Midband figures of a built stage at its operating point.
 
     ``rs`` is the source resistance (Ω) used to divide the source EMF.

@@ -31,8 +31,8 @@ import socket
 import time
 from dataclasses import dataclass
 
-from . import plain_json
-from .errors import StageledgerError
+from model.errors import StageledgerError
+from model.files import plain_json
 
 
 class SaveError(StageledgerError):

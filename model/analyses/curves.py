@@ -8,13 +8,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .analysis import design_values
-from .design import Design
-from .errors import SolveError
-from .loadlines import LoadLines, load_lines
-from .solve import operating_point
-from .topologies import build
-from .transfer import ACTIVE, TransferCurve, transfer_curve
+from model.analyses.figures import design_values
+from model.analyses.loadlines import LoadLines, load_lines
+from model.analyses.transfer import ACTIVE, TransferCurve, transfer_curve
+from model.circuit.newton import operating_point
+from model.circuit.topologies import build
+from model.design.stage import Design
+from model.errors import SolveError
 
 #: Points of the sweep, and how far past the farther edge it runs.
 CURVE_POINTS = 161

@@ -29,9 +29,9 @@ import math
 
 import tomli_w
 
-from .design import CE, check_value, design_from_dict, rule_for
-from .errors import DesignError
-from .ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
+from model.design.stage import CE, check_value, design_from_dict, rule_for
+from model.errors import DesignError
+from model.files.ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
 _ENTRY_KEYS = ("entry", "time", "action", "from", "reverses", "note", "changes", "raised",
                "cleared", "before", "after", "design")

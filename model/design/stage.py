@@ -1,5 +1,5 @@
 """The design data model: one amplifier stage and its surroundings (the keys'
-units and rules are in :mod:`model.fields`).
+units and rules are in :mod:`model.design.fields`).
 
 Every quantity is an SI float (Ω, V, A, W, F, Hz, K/W, eV) except the two
 temperatures, ambient and tj_max, which are °C because that is how people
@@ -13,13 +13,30 @@ import dataclasses
 import difflib
 from dataclasses import dataclass
 
-from .errors import DesignError
 # The keys and their rules live in fields.py; they are re-exported here because
 # callers think of them as part of the design.
-from .fields import (  # noqa: F401
-    CE, EF, FIELDS, FORMAT, NONE, OPEN, POLARITIES, SERIES, TOPOLOGIES, Field, Rule, _choice,
-    _shown, check_value, file_word, keys_for, rule_for, with_article,
+from model.design.fields import (  # noqa: F401
+    CE,
+    EF,
+    FIELDS,
+    FORMAT,
+    NONE,
+    OPEN,
+    POLARITIES,
+    SERIES,
+    TOPOLOGIES,
+    Field,
+    Rule,
+    _choice,
+    _shown,
+    check_value,
+    file_word,
+    keys_for,
+    rule_for,
+    with_article,
 )
+from model.errors import DesignError
+
 
 @dataclass(frozen=True)
 class Supply:

@@ -1,0 +1,1 @@
+"""The nodal core: netlist, plan, assembly, Newton, dense batched solves, the device, the topology builders."""
