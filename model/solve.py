@@ -284,11 +284,15 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         vt_j, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
         for iterations in range(1, max_iter + 1):
-            step, _ = _step(r, u0, dev, u, currents=False)
-            u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
-            moved = np.abs(u_new - u).max(axis=(0, 1))
+            if count == 1:
+                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit)
+            else:
+                step, _ = _step(r, u0, dev, u, currents=False)
+                u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
+                moved = np.abs(u_new - u).max(axis=(0, 1))
+                limited = limited.any(axis=(0, 1))
             size = np.abs(u_new).max(axis=(0, 1))
-            done |= (moved <= _V_TOL * (1.0 + size)) & ~limited.any(axis=(0, 1))
+            done |= (moved <= _V_TOL * (1.0 + size)) & ~limited
             u = u_new
             if iterations == 1:
                 continue
@@ -304,6 +308,53 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
         else:
             u_out[..., rows] = u
     return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _one_transistor(r, u0, dev, u):
+    """:func:`_step` for one transistor in fewer whole-array operations (on a
+    design's few hundred sweep points numpy's per-call cost dominates): the
+    same device equations and 2 × 2 solve, term for term in the same order, so
+    the same rounding.  r (2, 2, b), u0 (2, b), dev (1, b), u (2, b) in the
+    forward sense.  Returns the step (2, b), the currents (IC, IB) and the
+    columns of ∂(IC, IB)/∂(VBE, VBC): ∂IC (2, b) and ∂IB (2, b)."""
+    x = u / dev.vt
+    if x.max() <= device._EXP_LIMIT:  # below the linear continuation, exp alone is exact
+        e = slope = np.exp(x)
+    else:
+        e, slope = device._exp_limited(x)
+    both = dev.i_s * (e - 1.0)  # IF, IR
+    g = dev.i_s * slope / dev.vt  # dIF/dVBE, dIR/dVBC
+    # (IF/βF, IR/βR) and (gF/βF, gR/βR) in one division each.
+    betas = np.concatenate([dev.beta_f, dev.beta_r])
+    per_beta, g_beta = both / betas, g / betas
+    early = 1.0 - u[1] / dev.va[0]
+    net = both[0] - both[1]
+    ic = net * early - per_beta[1]
+    ib = per_beta[0] + per_beta[1]
+    d_ic = g * early
+    d_ic[1] = -d_ic[1] - net / dev.va[0] - g_beta[1]
+    minus_f = (u0 - u) - (r[:, 0] * ic + r[:, 1] * ib)
+    jac = r[:, 0:1] * d_ic + r[:, 1:2] * g_beta
+    m00, m11, m01, m10 = jac[0, 0] + 1.0, jac[1, 1] + 1.0, jac[0, 1], jac[1, 0]
+    det = m00 * m11 - m01 * m10
+    step = np.empty_like(minus_f)
+    np.divide(m11 * minus_f[0] - m01 * minus_f[1], det, out=step[0])
+    np.divide(m00 * minus_f[1] - m10 * minus_f[0], det, out=step[1])
+    return step, (ic, ib), d_ic, g_beta
+
+
+def _one_iteration(r, u0, dev, u, vt, v_crit):
+    """One limited Newton iteration of a single transistor on entry-major
+    arrays (u (1, 2, b)): (new u, largest move per row, whether any of the
+    row's junctions was limited), as the general loop computes them."""
+    step = _one_transistor(r, u0, dev, u[0])[0]
+    u_new = u + step[None]
+    moved = np.abs(u_new - u)
+    big = (u_new > v_crit) & (moved > 2.0 * vt)
+    if big.any():
+        u_new, big = device.limit_junction(u_new, u, vt, v_crit)
+        moved = np.abs(u_new - u)
+    return u_new, np.maximum(moved[0, 0], moved[0, 1]), big[0, 0] | big[0, 1]
 
 
 def _active_start(r, u0, dev: device.DeviceParams):
@@ -335,6 +386,13 @@ def _active_start(r, u0, dev: device.DeviceParams):
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
+    if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
+        step, (ic, ib), d_ic, g_beta = _one_transistor(
+            r.transpose(1, 2, 0), u0.T, device.DeviceParams(*(getattr(dev, f).T for f in _PARAM_FIELDS)), u[:, 0].T)
+        i = np.empty((u.shape[0], 2))
+        i[:, 0] = ic + (d_ic[0] * step[0] + d_ic[1] * step[1])
+        i[:, 1] = ib + (g_beta[0] * step[0] + g_beta[1] * step[1])
+        return step.T[:, None], i
     # Entry-major views on a design's few rows (one step reads each entry
     # once); contiguous copies on big batches, where strided reads cost more.
     em = _entry_major if u.shape[0] >= _COPY_FROM else (lambda a: a.transpose(*range(1, a.ndim), 0))
