@@ -272,17 +272,25 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     iterations.  Returns (u, converged, iterations).
     """
     batch, count = u.shape[0], u.shape[1]
-    # Entry-major (…, batch) copies: every operation below then runs over
-    # one contiguous batch axis instead of strided (batch, 2, 2) slices.
-    r, u0, u = _entry_major(r), _entry_major(u0), _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch)
-    dev = _entry_major_params(dev)
+    # Every per-row input entry-major in one (rows, batch) array: each
+    # operation below then runs over one contiguous batch axis, and dropping
+    # the converged rows is one indexing instead of one per input.
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        v_crit = device.critical_voltage(dev)
+    inputs = [r.reshape(batch, -1), u0, *(getattr(dev, f) for f in _PARAM_FIELDS), v_crit]
+    pack = np.empty((sum(a.shape[1] for a in inputs), batch))
+    at = 0
+    for a in inputs:
+        pack[at : at + a.shape[1]] = a.T
+        at += a.shape[1]
+    u = _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch)
     u_out = np.full((count, 2, batch), np.nan)
     done_out = np.zeros(batch, dtype=bool)
     rows = np.arange(batch)
     done = np.zeros(batch, dtype=bool)
     iterations = 0
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-        vt_j, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
+        r, u0, dev, vt_j, v_crit = _unpack(pack, count)
         for iterations in range(1, max_iter + 1):
             if count == 1:
                 u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit)
@@ -296,18 +304,27 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
             u = u_new
             if iterations == 1:
                 continue
-            if done.all() or 4 * done.sum() >= rows.size:
+            n_done = np.count_nonzero(done)
+            if 4 * n_done >= rows.size:
                 u_out[..., rows[done]], done_out[rows[done]] = u[..., done], True
-                if done.all():
+                if n_done == rows.size:
                     break
                 keep = ~done
-                rows, u, r, u0 = rows[keep], u[..., keep], r[..., keep], u0[..., keep]
-                dev = device.DeviceParams(*(getattr(dev, f)[..., keep] for f in _PARAM_FIELDS))
-                vt_j, v_crit = vt_j[..., keep], v_crit[..., keep]
-                done = done[keep]
+                rows, u, pack, done = rows[keep], u[..., keep], pack[:, keep], done[keep]
+                r, u0, dev, vt_j, v_crit = _unpack(pack, count)
         else:
             u_out[..., rows] = u
     return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _unpack(pack, count: int):
+    """Views of :func:`newton`'s packed inputs: r (2k, 2k, b), u0 (2k, b), the
+    (k, b) device parameters, and VT and the critical voltage as (k, 1, b)."""
+    n = 2 * count
+    at = n * n + n
+    dev = device.DeviceParams(*(pack[at + j * count : at + (j + 1) * count] for j in range(len(_PARAM_FIELDS))))
+    v_crit = pack[at + len(_PARAM_FIELDS) * count :]
+    return pack[: n * n].reshape(n, n, -1), pack[n * n : at], dev, dev.vt[:, None], v_crit[:, None]
 
 
 def _one_transistor(r, u0, dev, u):
