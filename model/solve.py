@@ -229,13 +229,14 @@ def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
     x = np.where(np.isfinite(x), x, 0.0)
     volts = node_dict(red.plan, x, red.v)
     per = [_params_of(red.dev, k) for k in range(len(red.bjts))]
-    states = {q.name: device.evaluate(p, *junction_voltages(q, volts, p.sign)) for q, p in zip(red.bjts, per)}
+    jv = [junction_voltages(q, volts, p.sign) for q, p in zip(red.bjts, per)]
+    states = {q.name: device.evaluate(p, *j) for q, p, j in zip(red.bjts, per, jv)}
     # A part at the edge of float range (a 5e-324 Ω resistor is "valid") gives
     # inf·0 here; such a row's residual comes out NaN and it is flagged, not raised.
     with np.errstate(over="ignore", invalid="ignore"):
         residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
-    junctions = np.stack([np.stack(junction_voltages(q, volts, p.sign), axis=-1) for q, p in zip(red.bjts, per)], axis=1)
+    junctions = np.stack([np.stack(j, axis=-1) for j in jv], axis=1)
     return OperatingPoint(volts, states, converged, iterations, residual, junctions)
 
 
@@ -289,11 +290,13 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     rows = np.arange(batch)
     done = np.zeros(batch, dtype=bool)
     iterations = 0
+    # βF and βR of a single transistor: adjacent rows of the pack.
+    betas = slice(inputs[0].shape[1] + inputs[1].shape[1] + count, inputs[0].shape[1] + inputs[1].shape[1] + 3 * count)
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         r, u0, dev, vt_j, v_crit = _unpack(pack, count)
         for iterations in range(1, max_iter + 1):
             if count == 1:
-                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit)
+                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit, pack[betas])
             else:
                 step, _ = _step(r, u0, dev, u, currents=False)
                 u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
@@ -327,7 +330,7 @@ def _unpack(pack, count: int):
     return pack[: n * n].reshape(n, n, -1), pack[n * n : at], dev, dev.vt[:, None], v_crit[:, None]
 
 
-def _one_transistor(r, u0, dev, u):
+def _one_transistor(r, u0, dev, u, betas=None):
     """:func:`_step` for one transistor in fewer whole-array operations (on a
     design's few hundred sweep points numpy's per-call cost dominates): the
     same device equations and 2 × 2 solve, term for term in the same order, so
@@ -341,8 +344,9 @@ def _one_transistor(r, u0, dev, u):
         e, slope = device._exp_limited(x)
     both = dev.i_s * (e - 1.0)  # IF, IR
     g = dev.i_s * slope / dev.vt  # dIF/dVBE, dIR/dVBC
-    # (IF/βF, IR/βR) and (gF/βF, gR/βR) in one division each.
-    betas = np.concatenate([dev.beta_f, dev.beta_r])
+    # (IF/βF, IR/βR) and (gF/βF, gR/βR) in one division each; newton's
+    # packed inputs hold βF and βR in adjacent rows, a view.
+    betas = np.concatenate([dev.beta_f, dev.beta_r]) if betas is None else betas
     per_beta, g_beta = both / betas, g / betas
     early = 1.0 - u[1] / dev.va[0]
     net = both[0] - both[1]
@@ -360,11 +364,11 @@ def _one_transistor(r, u0, dev, u):
     return step, (ic, ib), d_ic, g_beta
 
 
-def _one_iteration(r, u0, dev, u, vt, v_crit):
+def _one_iteration(r, u0, dev, u, vt, v_crit, betas=None):
     """One limited Newton iteration of a single transistor on entry-major
     arrays (u (1, 2, b)): (new u, largest move per row, whether any of the
     row's junctions was limited), as the general loop computes them."""
-    step = _one_transistor(r, u0, dev, u[0])[0]
+    step = _one_transistor(r, u0, dev, u[0], betas)[0]
     u_new = u + step[None]
     moved = np.abs(u_new - u)
     big = (u_new > v_crit) & (moved > 2.0 * vt)
