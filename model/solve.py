@@ -295,7 +295,9 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         r, u0, dev, vt_j, v_crit = _unpack(pack, count)
         for iterations in range(1, max_iter + 1):
-            if count == 1:
+            # Written out for one transistor where numpy's per-call cost
+            # dominates; on big batches the general step's memory traffic is less.
+            if count == 1 and rows.size < _COPY_FROM:
                 u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit, pack[betas])
             else:
                 step, _ = _step(r, u0, dev, u, currents=False)
