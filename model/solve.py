@@ -236,7 +236,8 @@ def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
     with np.errstate(over="ignore", invalid="ignore"):
         residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
-    junctions = np.stack([np.stack(j, axis=-1) for j in jv], axis=1)
+    pairs = [np.stack(j, axis=-1) for j in jv]
+    junctions = pairs[0][:, None] if len(pairs) == 1 else np.stack(pairs, axis=1)
     return OperatingPoint(volts, states, converged, iterations, residual, junctions)
 
 
@@ -502,6 +503,8 @@ def _row_max(a):
 def _stack_params(params: list) -> device.DeviceParams:
     """Parameters of several transistors as (batch, transistor) arrays."""
     fields = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
+    if len(params) == 1:  # a column view: np.stack's own cost is most of a design's
+        return device.DeviceParams(*(getattr(params[0], f)[:, None] for f in fields))
     return device.DeviceParams(*(np.stack([getattr(p, f) for p in params], axis=1) for f in fields))
 
 
