@@ -229,13 +229,15 @@ def _solve(red: _Reduced, start, max_iter) -> OperatingPoint:
     x = np.where(np.isfinite(x), x, 0.0)
     volts = node_dict(red.plan, x, red.v)
     per = [_params_of(red.dev, k) for k in range(len(red.bjts))]
-    states = {q.name: device.evaluate(p, *junction_voltages(q, volts, p.sign)) for q, p in zip(red.bjts, per)}
+    jv = [junction_voltages(q, volts, p.sign) for q, p in zip(red.bjts, per)]
+    states = {q.name: device.evaluate(p, *j) for q, p, j in zip(red.bjts, per, jv)}
     # A part at the edge of float range (a 5e-324 Ω resistor is "valid") gives
     # inf·0 here; such a row's residual comes out NaN and it is flagged, not raised.
     with np.errstate(over="ignore", invalid="ignore"):
         residual = _kcl_residual(red.plan, red.g, volts, [p.sign for p in per], states)
     converged = done & np.isfinite(residual) & (residual <= 1e-9)
-    junctions = np.stack([np.stack(junction_voltages(q, volts, p.sign), axis=-1) for q, p in zip(red.bjts, per)], axis=1)
+    pairs = [np.stack(j, axis=-1) for j in jv]
+    junctions = pairs[0][:, None] if len(pairs) == 1 else np.stack(pairs, axis=1)
     return OperatingPoint(volts, states, converged, iterations, residual, junctions)
 
 
@@ -272,38 +274,111 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = _MAX_ITER):
     iterations.  Returns (u, converged, iterations).
     """
     batch, count = u.shape[0], u.shape[1]
-    # Entry-major (…, batch) copies: every operation below then runs over
-    # one contiguous batch axis instead of strided (batch, 2, 2) slices.
-    r, u0, u = _entry_major(r), _entry_major(u0), _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch)
-    dev = _entry_major_params(dev)
+    # Every per-row input entry-major in one (rows, batch) array: each
+    # operation below then runs over one contiguous batch axis, and dropping
+    # the converged rows is one indexing instead of one per input.
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        v_crit = device.critical_voltage(dev)
+    inputs = [r.reshape(batch, -1), u0, *(getattr(dev, f) for f in _PARAM_FIELDS), v_crit]
+    pack = np.empty((sum(a.shape[1] for a in inputs), batch))
+    at = 0
+    for a in inputs:
+        pack[at : at + a.shape[1]] = a.T
+        at += a.shape[1]
+    u = _entry_major(u.reshape(batch, -1)).reshape(count, 2, batch)
     u_out = np.full((count, 2, batch), np.nan)
     done_out = np.zeros(batch, dtype=bool)
     rows = np.arange(batch)
     done = np.zeros(batch, dtype=bool)
     iterations = 0
+    # βF and βR of a single transistor: adjacent rows of the pack.
+    betas = slice(inputs[0].shape[1] + inputs[1].shape[1] + count, inputs[0].shape[1] + inputs[1].shape[1] + 3 * count)
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-        vt_j, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
+        r, u0, dev, vt_j, v_crit = _unpack(pack, count)
         for iterations in range(1, max_iter + 1):
-            step, _ = _step(r, u0, dev, u, currents=False)
-            u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
-            moved = np.abs(u_new - u).max(axis=(0, 1))
+            # Written out for one transistor where numpy's per-call cost
+            # dominates; on big batches the general step's memory traffic is less.
+            if count == 1 and rows.size < _COPY_FROM:
+                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit, pack[betas])
+            else:
+                step, _ = _step(r, u0, dev, u, currents=False)
+                u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
+                moved = np.abs(u_new - u).max(axis=(0, 1))
+                limited = limited.any(axis=(0, 1))
             size = np.abs(u_new).max(axis=(0, 1))
-            done |= (moved <= _V_TOL * (1.0 + size)) & ~limited.any(axis=(0, 1))
+            done |= (moved <= _V_TOL * (1.0 + size)) & ~limited
             u = u_new
             if iterations == 1:
                 continue
-            if done.all() or 4 * done.sum() >= rows.size:
+            n_done = np.count_nonzero(done)
+            if 4 * n_done >= rows.size:
                 u_out[..., rows[done]], done_out[rows[done]] = u[..., done], True
-                if done.all():
+                if n_done == rows.size:
                     break
                 keep = ~done
-                rows, u, r, u0 = rows[keep], u[..., keep], r[..., keep], u0[..., keep]
-                dev = device.DeviceParams(*(getattr(dev, f)[..., keep] for f in _PARAM_FIELDS))
-                vt_j, v_crit = vt_j[..., keep], v_crit[..., keep]
-                done = done[keep]
+                rows, u, pack, done = rows[keep], u[..., keep], pack[:, keep], done[keep]
+                r, u0, dev, vt_j, v_crit = _unpack(pack, count)
         else:
             u_out[..., rows] = u
     return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _unpack(pack, count: int):
+    """Views of :func:`newton`'s packed inputs: r (2k, 2k, b), u0 (2k, b), the
+    (k, b) device parameters, and VT and the critical voltage as (k, 1, b)."""
+    n = 2 * count
+    at = n * n + n
+    dev = device.DeviceParams(*(pack[at + j * count : at + (j + 1) * count] for j in range(len(_PARAM_FIELDS))))
+    v_crit = pack[at + len(_PARAM_FIELDS) * count :]
+    return pack[: n * n].reshape(n, n, -1), pack[n * n : at], dev, dev.vt[:, None], v_crit[:, None]
+
+
+def _one_transistor(r, u0, dev, u, betas=None):
+    """:func:`_step` for one transistor in fewer whole-array operations (on a
+    design's few hundred sweep points numpy's per-call cost dominates): the
+    same device equations and 2 × 2 solve, term for term in the same order, so
+    the same rounding.  r (2, 2, b), u0 (2, b), dev (1, b), u (2, b) in the
+    forward sense.  Returns the step (2, b), the currents (IC, IB) and the
+    columns of ∂(IC, IB)/∂(VBE, VBC): ∂IC (2, b) and ∂IB (2, b)."""
+    x = u / dev.vt
+    if x.max() <= device._EXP_LIMIT:  # below the linear continuation, exp alone is exact
+        e = slope = np.exp(x)
+    else:
+        e, slope = device._exp_limited(x)
+    both = dev.i_s * (e - 1.0)  # IF, IR
+    g = dev.i_s * slope / dev.vt  # dIF/dVBE, dIR/dVBC
+    # (IF/βF, IR/βR) and (gF/βF, gR/βR) in one division each; newton's
+    # packed inputs hold βF and βR in adjacent rows, a view.
+    betas = np.concatenate([dev.beta_f, dev.beta_r]) if betas is None else betas
+    per_beta, g_beta = both / betas, g / betas
+    early = 1.0 - u[1] / dev.va[0]
+    net = both[0] - both[1]
+    ic = net * early - per_beta[1]
+    ib = per_beta[0] + per_beta[1]
+    d_ic = g * early
+    d_ic[1] = -d_ic[1] - net / dev.va[0] - g_beta[1]
+    minus_f = (u0 - u) - (r[:, 0] * ic + r[:, 1] * ib)
+    jac = r[:, 0:1] * d_ic + r[:, 1:2] * g_beta
+    m00, m11, m01, m10 = jac[0, 0] + 1.0, jac[1, 1] + 1.0, jac[0, 1], jac[1, 0]
+    det = m00 * m11 - m01 * m10
+    step = np.empty_like(minus_f)
+    np.divide(m11 * minus_f[0] - m01 * minus_f[1], det, out=step[0])
+    np.divide(m00 * minus_f[1] - m10 * minus_f[0], det, out=step[1])
+    return step, (ic, ib), d_ic, g_beta
+
+
+def _one_iteration(r, u0, dev, u, vt, v_crit, betas=None):
+    """One limited Newton iteration of a single transistor on entry-major
+    arrays (u (1, 2, b)): (new u, largest move per row, whether any of the
+    row's junctions was limited), as the general loop computes them."""
+    step = _one_transistor(r, u0, dev, u[0], betas)[0]
+    u_new = u + step[None]
+    moved = np.abs(u_new - u)
+    big = (u_new > v_crit) & (moved > 2.0 * vt)
+    if big.any():
+        u_new, big = device.limit_junction(u_new, u, vt, v_crit)
+        moved = np.abs(u_new - u)
+    return u_new, np.maximum(moved[0, 0], moved[0, 1]), big[0, 0] | big[0, 1]
 
 
 def _active_start(r, u0, dev: device.DeviceParams):
@@ -335,6 +410,13 @@ def _active_start(r, u0, dev: device.DeviceParams):
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
+    if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
+        step, (ic, ib), d_ic, g_beta = _one_transistor(
+            r.transpose(1, 2, 0), u0.T, device.DeviceParams(*(getattr(dev, f).T for f in _PARAM_FIELDS)), u[:, 0].T)
+        i = np.empty((u.shape[0], 2))
+        i[:, 0] = ic + (d_ic[0] * step[0] + d_ic[1] * step[1])
+        i[:, 1] = ib + (g_beta[0] * step[0] + g_beta[1] * step[1])
+        return step.T[:, None], i
     # Entry-major views on a design's few rows (one step reads each entry
     # once); contiguous copies on big batches, where strided reads cost more.
     em = _entry_major if u.shape[0] >= _COPY_FROM else (lambda a: a.transpose(*range(1, a.ndim), 0))
@@ -421,6 +503,8 @@ def _row_max(a):
 def _stack_params(params: list) -> device.DeviceParams:
     """Parameters of several transistors as (batch, transistor) arrays."""
     fields = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
+    if len(params) == 1:  # a column view: np.stack's own cost is most of a design's
+        return device.DeviceParams(*(getattr(params[0], f)[:, None] for f in fields))
     return device.DeviceParams(*(np.stack([getattr(p, f) for p in params], axis=1) for f in fields))
 
 

@@ -1,0 +1,82 @@
+"""The one-transistor Newton step against the general k-transistor step.
+
+``model.solve`` runs a single transistor's Newton iteration with fewer
+whole-array operations (a design's sweep is a few hundred points, where
+numpy's per-call cost dominates).  It evaluates the same Ebers–Moll equations
+(Jaeger & Blalock ch. 5) and the same 2 × 2 solve term by term in the same
+order, so on the same inputs it must give the same floats: the tolerance
+derived for "same operations, same rounding" is zero, and the checks below
+are exact.  Inputs reach past the exponential's linear continuation (VBE/VT
+above 80) and past the junction limiting's critical voltage, so every branch
+is taken.  Hypothesis runs derandomized so the suite cannot fail by chance.
+"""
+
+import numpy as np
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from model import device, solve
+
+SETTINGS = settings(max_examples=60, deadline=None, derandomize=True, database=None,
+                    suppress_health_check=[HealthCheck.too_slow])
+
+
+def _case(seed: int, batch: int = 41):
+    """Entry-major inputs of one transistor: r (2, 2, b), u0 (2, b), dev (1, b), u (1, 2, b)."""
+    rng = np.random.default_rng(seed)
+    r = 10 ** rng.uniform(1, 5, (2, 2, batch)) * rng.choice([-1.0, 1.0], (2, 2, batch))
+    u0 = rng.uniform(-5, 5, (2, batch))
+    u = np.stack([rng.uniform(-1, 3.2, batch), rng.uniform(-8, 3.2, batch)])[None]
+    dev = device.DeviceParams(
+        i_s=10 ** rng.uniform(-16, -12, (1, batch)), beta_f=rng.uniform(20, 500, (1, batch)),
+        beta_r=rng.uniform(0.5, 10, (1, batch)), va=rng.uniform(10, 200, (1, batch)),
+        vt=rng.uniform(0.022, 0.030, (1, batch)), sign=np.ones((1, batch)))
+    return r, u0, dev, u
+
+
+@SETTINGS
+@given(st.integers(0, 2**32 - 1))
+def test_one_transistor_step_is_the_general_step(seed):
+    r, u0, dev, u = _case(seed)
+    with np.errstate(all="ignore"):
+        step, i = solve._step(r, u0, dev, u)
+        fast, (ic, ib), d_ic, g_beta = solve._one_transistor(r, u0, dev, u[0])
+        st_ = device.evaluate(dev, u[:, 0], u[:, 1])
+    np.testing.assert_array_equal(fast, step[0])
+    np.testing.assert_array_equal(np.stack([ic, ib]), np.stack([st_.ic[0], st_.ib[0]]))
+    np.testing.assert_array_equal(d_ic, np.stack([st_.dic_dvbe[0], st_.dic_dvbc[0]]))
+    np.testing.assert_array_equal(g_beta, np.stack([st_.dib_dvbe[0], st_.dib_dvbc[0]]))
+    # The linearised currents after the step, as newton_step hands them back.
+    with np.errstate(all="ignore"):
+        step_b, i_b = solve.newton_step(r.transpose(2, 0, 1), u0.T,
+                                        device.DeviceParams(*(getattr(dev, f).T for f in solve._PARAM_FIELDS)),
+                                        u.transpose(2, 0, 1))
+    np.testing.assert_array_equal(step_b, step.transpose(2, 0, 1))
+    np.testing.assert_array_equal(i_b, i.T)
+
+
+@SETTINGS
+@given(st.integers(0, 2**32 - 1))
+def test_one_transistor_iteration_is_the_general_iteration(seed):
+    r, u0, dev, u = _case(seed)
+    vt, v_crit = dev.vt[:, None], device.critical_voltage(dev)[:, None]
+    with np.errstate(all="ignore"):
+        step, _ = solve._step(r, u0, dev, u, currents=False)
+        want, limited = device.limit_junction(u + step, u, vt, v_crit)
+        got, moved, got_limited = solve._one_iteration(r, u0, dev, u, vt, v_crit)
+    np.testing.assert_array_equal(got, want)
+    np.testing.assert_array_equal(moved, np.abs(want - u).max(axis=(0, 1)))
+    np.testing.assert_array_equal(got_limited, limited.any(axis=(0, 1)))
+
+
+def test_the_cases_reach_every_branch():
+    """Some inputs run past the linear continuation and the limiting: else the
+    exact checks above would not cover those branches."""
+    hits_exp = hits_limit = 0
+    for seed in range(20):
+        r, u0, dev, u = _case(seed)
+        hits_exp += int((u / dev.vt[:, None] > device._EXP_LIMIT).any())
+        with np.errstate(all="ignore"):
+            _, _, lim = solve._one_iteration(r, u0, dev, u, dev.vt[:, None], device.critical_voltage(dev)[:, None])
+        hits_limit += int(lim.any())
+    assert hits_exp == 20 and hits_limit == 20
