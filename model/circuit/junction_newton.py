@@ -1,0 +1,274 @@
+"""Newton on the junction voltages of a network reduced onto its transistors:
+F(u) = u − u₀ + R·i(u) = 0, with R and u₀ from :mod:`model.circuit.newton`.
+
+The iteration, its closed-form 2×2 steps per transistor (2k×2k for k),
+the forward-active start and the SPICE-family junction limiting; a
+written-out path for one transistor on small working sets, which performs
+the same operations in the same order as the general one.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from model.circuit import device
+from model.circuit.dense import solve_batched
+
+#: Newton stops when no node moves by more than this (V) and no junction was
+#: limited.  Convergence is quadratic, so the point after such a step is good to
+#: far better than this; the KCL residual check (1e-9) still guards the result.
+_V_TOL = 1e-9
+#: Where the start's fixed-point iteration on VBE begins: the junction at 1 mA.
+_START_CURRENT = 1e-3
+MAX_ITER = 200
+#: From this batch size on, one Newton step copies its inputs entry-major.
+_COPY_FROM = 256
+PARAM_FIELDS = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
+
+
+def entry_major(a):
+    """(batch, …) → (…, batch), contiguous.  (A plain transpose: np.moveaxis
+    costs several times the copy on the small arrays of one design.)"""
+    return np.ascontiguousarray(a.transpose(*range(1, a.ndim), 0))
+
+
+def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
+    """Newton on F(u) = u − u₀ + R·i(u) for every batch row, in numpy.
+
+    r (batch, 2k, 2k), u0 (batch, 2k) in V and Ω; dev holds (batch, k)
+    parameters; u (batch, k, 2) the first junction voltages.  Rows that have
+    converged leave the working set whenever they make up a quarter of it,
+    so a few slow rows do not make the whole batch pay for their extra
+    iterations.  Returns (u, converged, iterations).
+    """
+    batch, count = u.shape[0], u.shape[1]
+    # Every per-row input entry-major in one (rows, batch) array: each
+    # operation below then runs over one contiguous batch axis, and dropping
+    # the converged rows is one indexing instead of one per input.
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        v_crit = device.critical_voltage(dev)
+    inputs = [r.reshape(batch, -1), u0, *(getattr(dev, f) for f in PARAM_FIELDS), v_crit]
+    pack = np.empty((sum(a.shape[1] for a in inputs), batch))
+    at = 0
+    for a in inputs:
+        pack[at : at + a.shape[1]] = a.T
+        at += a.shape[1]
+    u = entry_major(u.reshape(batch, -1)).reshape(count, 2, batch)
+    u_out = np.full((count, 2, batch), np.nan)
+    done_out = np.zeros(batch, dtype=bool)
+    rows = np.arange(batch)
+    done = np.zeros(batch, dtype=bool)
+    iterations = 0
+    # βF and βR of a single transistor: adjacent rows of the pack.
+    betas = slice(inputs[0].shape[1] + inputs[1].shape[1] + count, inputs[0].shape[1] + inputs[1].shape[1] + 3 * count)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        r, u0, dev, vt_j, v_crit = _unpack(pack, count)
+        for iterations in range(1, max_iter + 1):
+            # Written out for one transistor where numpy's per-call cost
+            # dominates; on big batches the general step's memory traffic is less.
+            if count == 1 and rows.size < _COPY_FROM:
+                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit, pack[betas])
+            else:
+                step, _ = _step(r, u0, dev, u, currents=False)
+                u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
+                moved = np.abs(u_new - u).max(axis=(0, 1))
+                limited = limited.any(axis=(0, 1))
+            size = np.abs(u_new).max(axis=(0, 1))
+            done |= (moved <= _V_TOL * (1.0 + size)) & ~limited
+            u = u_new
+            if iterations == 1:
+                continue
+            n_done = np.count_nonzero(done)
+            if 4 * n_done >= rows.size:
+                u_out[..., rows[done]], done_out[rows[done]] = u[..., done], True
+                if n_done == rows.size:
+                    break
+                keep = ~done
+                rows, u, pack, done = rows[keep], u[..., keep], pack[:, keep], done[keep]
+                r, u0, dev, vt_j, v_crit = _unpack(pack, count)
+        else:
+            u_out[..., rows] = u
+    return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _unpack(pack, count: int):
+    """Views of :func:`newton`'s packed inputs: r (2k, 2k, b), u0 (2k, b), the
+    (k, b) device parameters, and VT and the critical voltage as (k, 1, b)."""
+    n = 2 * count
+    at = n * n + n
+    dev = device.DeviceParams(*(pack[at + j * count : at + (j + 1) * count] for j in range(len(PARAM_FIELDS))))
+    v_crit = pack[at + len(PARAM_FIELDS) * count :]
+    return pack[: n * n].reshape(n, n, -1), pack[n * n : at], dev, dev.vt[:, None], v_crit[:, None]
+
+
+def _one_transistor(r, u0, dev, u, betas=None):
+    """:func:`_step` for one transistor in fewer whole-array operations (on a
+    design's few hundred sweep points numpy's per-call cost dominates): the
+    same device equations and 2 × 2 solve, term for term in the same order, so
+    the same rounding.  r (2, 2, b), u0 (2, b), dev (1, b), u (2, b) in the
+    forward sense.  Returns the step (2, b), the currents (IC, IB) and the
+    columns of ∂(IC, IB)/∂(VBE, VBC): ∂IC (2, b) and ∂IB (2, b)."""
+    x = u / dev.vt
+    if x.max() <= device._EXP_LIMIT:  # below the linear continuation, exp alone is exact
+        e = slope = np.exp(x)
+    else:
+        e, slope = device._exp_limited(x)
+    both = dev.i_s * (e - 1.0)  # IF, IR
+    g = dev.i_s * slope / dev.vt  # dIF/dVBE, dIR/dVBC
+    # (IF/βF, IR/βR) and (gF/βF, gR/βR) in one division each; newton's
+    # packed inputs hold βF and βR in adjacent rows, a view.
+    betas = np.concatenate([dev.beta_f, dev.beta_r]) if betas is None else betas
+    per_beta, g_beta = both / betas, g / betas
+    early = 1.0 - u[1] / dev.va[0]
+    net = both[0] - both[1]
+    ic = net * early - per_beta[1]
+    ib = per_beta[0] + per_beta[1]
+    d_ic = g * early
+    d_ic[1] = -d_ic[1] - net / dev.va[0] - g_beta[1]
+    minus_f = (u0 - u) - (r[:, 0] * ic + r[:, 1] * ib)
+    jac = r[:, 0:1] * d_ic + r[:, 1:2] * g_beta
+    m00, m11, m01, m10 = jac[0, 0] + 1.0, jac[1, 1] + 1.0, jac[0, 1], jac[1, 0]
+    det = m00 * m11 - m01 * m10
+    step = np.empty_like(minus_f)
+    np.divide(m11 * minus_f[0] - m01 * minus_f[1], det, out=step[0])
+    np.divide(m00 * minus_f[1] - m10 * minus_f[0], det, out=step[1])
+    return step, (ic, ib), d_ic, g_beta
+
+
+def _one_iteration(r, u0, dev, u, vt, v_crit, betas=None):
+    """One limited Newton iteration of a single transistor on entry-major
+    arrays (u (1, 2, b)): (new u, largest move per row, whether any of the
+    row's junctions was limited), as the general loop computes them."""
+    step = _one_transistor(r, u0, dev, u[0], betas)[0]
+    u_new = u + step[None]
+    moved = np.abs(u_new - u)
+    big = (u_new > v_crit) & (moved > 2.0 * vt)
+    if big.any():
+        u_new, big = device.limit_junction(u_new, u, vt, v_crit)
+        moved = np.abs(u_new - u)
+    return u_new, np.maximum(moved[0, 0], moved[0, 1]), big[0, 0] | big[0, 1]
+
+
+def active_start(r, u0, dev: device.DeviceParams):
+    """First junction voltages (batch, k, 2) if each transistor were forward
+    active with IC = βF·IB (Early and coupling between transistors left out):
+    IB from the network's own two-port, u = u₀ − R·i, and VBE = VT·ln(IC/IS)
+    by a few fixed-point rounds (the logarithm is flat, so they settle fast).
+    A cut-off transistor starts at u₀; both voltages stay below the critical
+    voltage so a saturated guess cannot start Newton on a runaway exponential.
+    """
+    count = dev.vt.shape[1]
+    out = np.empty((u0.shape[0], count, 2))
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        crit = device.critical_voltage(dev)
+        for t in range(count):
+            e, c = 2 * t, 2 * t + 1
+            beta, vt, i_s = dev.beta_f[:, t], dev.vt[:, t], dev.i_s[:, t]
+            per_ib_e = r[:, e, e] * beta + r[:, e, c]
+            vbe = vt * np.log(_START_CURRENT / i_s)
+            for _ in range(3):
+                ib = np.maximum((u0[:, e] - vbe) / per_ib_e, 0.0)
+                vbe = np.where(ib > 0.0, vt * np.log1p(beta * ib / i_s), u0[:, e])
+            vbc = u0[:, c] - (r[:, c, e] * beta + r[:, c, c]) * ib
+            out[:, t, 0] = np.minimum(vbe, crit[:, t])
+            out[:, t, 1] = np.minimum(vbc, crit[:, t])
+        return np.where(np.isfinite(out), out, 0.0)
+
+
+def newton_step(r, u0, dev: device.DeviceParams, u):
+    """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
+    the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
+    if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
+        step, (ic, ib), d_ic, g_beta = _one_transistor(
+            r.transpose(1, 2, 0), u0.T, device.DeviceParams(*(getattr(dev, f).T for f in PARAM_FIELDS)), u[:, 0].T)
+        i = np.empty((u.shape[0], 2))
+        i[:, 0] = ic + (d_ic[0] * step[0] + d_ic[1] * step[1])
+        i[:, 1] = ib + (g_beta[0] * step[0] + g_beta[1] * step[1])
+        return step.T[:, None], i
+    # Entry-major views on a design's few rows (one step reads each entry
+    # once); contiguous copies on big batches, where strided reads cost more.
+    em = entry_major if u.shape[0] >= _COPY_FROM else (lambda a: a.transpose(*range(1, a.ndim), 0))
+    step, i = _step(em(r), em(u0), device.DeviceParams(*(em(getattr(dev, f)) for f in PARAM_FIELDS)), em(u))
+    return step.transpose(2, 0, 1), i.T
+
+
+def _step(r, u0, dev, u, currents: bool = True):
+    """:func:`newton_step` on entry-major arrays: r (2k, 2k, b), u0 (2k, b),
+    dev (k, b), u (k, 2, b).  Returns the step (k, 2, b) and currents (2k, b),
+    or None for the currents unless ``currents`` (the loop needs only the step)."""
+    count = u.shape[0]
+    st = device.evaluate(dev, u[:, 0], u[:, 1])
+    i = np.stack([st.ic, st.ib], axis=1).reshape(2 * count, -1)
+    # −F(u) = (u₀ − u) − R·i: the same rounding as negating F afterwards.
+    minus_f = (u0 - u.reshape(2 * count, -1)) - _matvec(r, i)
+    step = solve_entries(jacobian(r, st, count), minus_f)
+    if not currents:
+        return step.reshape(count, 2, -1), None
+    g = _conductances(st)
+    di = np.empty_like(step)
+    for t in range(count):
+        for a in range(2):
+            di[2 * t + a] = g[a][0][t] * step[2 * t] + g[a][1][t] * step[2 * t + 1]
+    return step.reshape(count, 2, -1), i + di
+
+
+def _conductances(st: device.JunctionState):
+    """G's 2 × 2 blocks: g[a][c][t] = ∂(IC, IB)[a]/∂(VBE, VBC)[c] of transistor t."""
+    return ((st.dic_dvbe, st.dic_dvbc), (st.dib_dvbe, st.dib_dvbc))
+
+
+def jacobian(r, st: device.JunctionState, count: int):
+    """I + R·G (2k, 2k, b) on entry-major arrays; G is block-diagonal: each
+    transistor's 2 × 2 ∂(IC, IB)/∂(VBE, VBC)."""
+    g = _conductances(st)
+    jac = np.empty_like(r)
+    for t in range(count):
+        for c in range(2):
+            jac[:, 2 * t + c] = r[:, 2 * t] * g[0][c][t] + r[:, 2 * t + 1] * g[1][c][t]
+    jac[np.arange(2 * count), np.arange(2 * count)] += 1.0
+    return jac
+
+
+def _matvec(m, x):
+    """m (n, p, b) times x (p, b) for every b."""
+    out = m[:, 0] * x[0]
+    for j in range(1, x.shape[0]):
+        out += m[:, j] * x[j]
+    return out
+
+
+def solve_entries(m, f):
+    """Solve m (n, n, b) · x = f (n, b) for every b; 2 × 2 in closed form."""
+    if m.shape[0] == 2:
+        det = m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
+        return np.stack([m[1, 1] * f[0] - m[0, 1] * f[1], m[0, 0] * f[1] - m[1, 0] * f[0]]) / det
+    return solve_batched(m.transpose(2, 0, 1), f.T).T
+
+
+def row_max(a):
+    """Largest entry of each row of a (batch, n) array; 0 when n is 0."""
+    if a.shape[1] == 0:
+        return np.zeros(a.shape[0])
+    out = a[:, 0]
+    for k in range(1, a.shape[1]):
+        out = np.maximum(out, a[:, k])
+    return out
+
+
+# Products of many tiny matrices: a loop over the short inner axis with
+# whole-batch operations beats einsum and matmul, which go matrix by matrix.
+def bmv(m, x):
+    """m (b, n, p) @ x (b, p) for every batch row b."""
+    out = np.zeros(m.shape[:2], dtype=np.result_type(m, x))
+    for j in range(x.shape[1]):
+        out += m[:, :, j] * x[:, j, None]
+    return out
+
+
+def left(c, x):
+    """A constant c (n, p) times x (b, p, q) for every batch row b; summed
+    entry-major (each x[:, j] of an entry-major x is then contiguous)."""
+    out = np.zeros((c.shape[0], x.shape[2], x.shape[0]))
+    for i, j in zip(*np.nonzero(c)):
+        out[i] += c[i, j] * x[:, j].T
+    return out.transpose(2, 0, 1)
