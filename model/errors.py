@@ -52,9 +52,13 @@ class DesignFileError(StageledgerError):
 
 
 class SolveError(StageledgerError):
-    """A valid design whose operating point could not be found."""
+    """A valid design whose operating point could not be found.
 
-    def __init__(self, reason: str, hint: str = ""):
+    ``fields`` names the design keys (``table.key``) the hint points at, if any.
+    """
+
+    def __init__(self, reason: str, hint: str = "", fields: tuple[str, ...] = ()):
         self.reason = reason
         self.hint = hint
+        self.fields = tuple(fields)
         super().__init__(f"{reason}{' (' + hint + ')' if hint else ''}")

@@ -16,6 +16,7 @@ from model.analyses.corner_search import POINTS_PER_DECADE, Response, frequency_
 from model.analyses.hand import HandEstimate, hand_estimate
 from model.analyses.midband import decibels, device_small_signal, midband_figures
 from model.analyses.power import dissipation
+from model.analyses.unsolved import unsolved_message
 from model.analyses.transfer import LargeSignal, region_of, swing_and_distortion
 from model.circuit.newton import operating_point
 from model.circuit.topologies import TRANSISTOR, StageCircuit, build, shape_of
@@ -152,8 +153,7 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     # costs next to nothing there, and only their IC is used.
     op3, dev, mid = dc_midband(stage, np.full(3, design.source.rs))
     if not op3.converged[0]:
-        raise SolveError("the operating point did not converge",
-                         f"KCL residual {op3.residual[0]:.1e} after {op3.iterations} iterations")
+        raise SolveError(*unsolved_message(design, float(op3.residual[0]), op3.iterations))
     nominal = replace(stage, net=stage.net.take(np.array([0])))
     op = op3.take(np.array([0]))
     st = op.states[TRANSISTOR]

@@ -16,7 +16,8 @@ from model.circuit.dense import solve_batched
 
 #: Newton stops when no node moves by more than this (V) and no junction was
 #: limited.  Convergence is quadratic, so the point after such a step is good to
-#: far better than this; the KCL residual check (1e-9) still guards the result.
+#: far better than this; the KCL check (each node within _V_TOL·Σ|g|, see
+#: model.circuit.newton) still guards the result.
 _V_TOL = 1e-9
 #: Where the start's fixed-point iteration on VBE begins: the junction at 1 mA.
 _START_CURRENT = 1e-3
