@@ -54,7 +54,7 @@ def unsolved_message(design: Design, residual: float, iterations: int) -> tuple[
     if not furthest:
         return REASON, f"KCL residual {residual:.1e} after {iterations} iterations", ()
     named = [f"{k} = {format_si(v, FIELDS[k].unit)}" for k, v, _ in furthest]
-    hint, keys = "furthest from default: " + named[0], [furthest[0][0]]
+    hint, keys = "far from default: " + named[0], [furthest[0][0]]
     for (key, _, _), more in list(zip(furthest, named))[1:3]:
         # str(SolveError) is "reason (hint)": 3 columns besides the two.
         if len(REASON) + len(hint) + len(", " + more) + 3 > WIDTH:
