@@ -263,3 +263,14 @@ def test_a_valid_tiny_coupling_capacitor_is_reported_not_an_internal_error(tmp_p
     path = tmp_path / "tiny.toml"
     path.write_text(dumps_design(with_values(default_design("common-emitter"), {key: 1e-20})), encoding="utf-8")
     check_outputs(path)
+
+
+def test_a_base_held_by_a_near_zero_resistance_reports_without_overflow(tmp_path):
+    # bias.r2 = 1e-300 Ω is valid: the base sits at ground through it, the
+    # stage is cut off, and the Miller input pole's 1/(2π·R·C) overflows to an
+    # unbounded corner (null), never a RuntimeWarning (an error under pytest).
+    path = tmp_path / "held.toml"
+    path.write_text(dumps_design(with_values(default_design("common-emitter"), {"bias.r2": 1e-300})),
+                    encoding="utf-8")
+    data = check_outputs(path)
+    assert data["f_high_miller"] is None

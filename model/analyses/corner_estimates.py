@@ -10,9 +10,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from model.analyses.capacitance import (
-    DeviceCapacitance,
-)
+import numpy as np
+
+from model.analyses.capacitance import DeviceCapacitance
 from model.circuit.linearised import small_signal, transfer_impedances
 from model.circuit.netlist import GROUND, Capacitor
 from model.circuit.newton import OperatingPoint
@@ -97,4 +97,9 @@ def miller_estimate(stage: StageCircuit, op: OperatingPoint, device: DeviceCapac
     c = (device.c_pi * (1.0 - drive[stage.emitter][0] / vb)
          + device.c_mu * (1.0 - drive[stage.collector][0] / vb)).real
     r_base = float(z(stage.base, stage.base)[0])
-    return 1.0 / (2.0 * math.pi * r_base * c) if r_base * c > 0 else math.inf
+    if not r_base * c > 0:
+        return math.inf
+    # A base held by a near-zero resistance (bias.r2 = 1e-300 Ω is valid) has
+    # no input pole to speak of: the quotient overflows to inf, which is right.
+    with np.errstate(over="ignore"):
+        return float(1.0 / (2.0 * math.pi * r_base * c))

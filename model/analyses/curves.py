@@ -11,6 +11,7 @@ import numpy as np
 from model.analyses.figures import design_values
 from model.analyses.loadlines import LoadLines, load_lines
 from model.analyses.transfer import ACTIVE, TransferCurve, transfer_curve
+from model.analyses.unsolved import unsolved_message
 from model.circuit.newton import operating_point
 from model.circuit.topologies import build
 from model.design.stage import Design
@@ -46,7 +47,7 @@ def stage_curves(design: Design, emf_edges: tuple) -> StageCurves:
     stage = build(design.topology, design_values([design]))
     op = operating_point(stage.net)
     if not op.converged[0]:
-        raise SolveError("the operating point did not converge", "no curves to draw")
+        raise SolveError(*unsolved_message(design, float(op.residual[0]), op.iterations))
     finite = [abs(e) for e in emf_edges if math.isfinite(e)]
     span = _BEYOND * max(finite) if finite and max(finite) > 0 else 0.1
     inside = [e for e in emf_edges if math.isfinite(e) and e != 0.0]
