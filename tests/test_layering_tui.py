@@ -9,7 +9,7 @@ import sys
 from test_layering import _imported_roots
 
 TUI_DIR = pathlib.Path(__file__).resolve().parents[1] / "tui"
-PLAIN = ("workstate.py", "fieldtext.py")
+PLAIN = ("workstate.py", "fieldtext.py", "safe_text.py")
 FORBIDDEN = ("textual", "rich")
 
 

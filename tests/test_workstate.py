@@ -469,3 +469,22 @@ def test_a_step_the_rule_refuses_names_the_key_once_and_fits_the_status_line():
     assert outcome.status.count("stage.ce") == 1, outcome.status
     assert outcome.status.endswith("there is nothing below none"), outcome.status
     assert len("✗ " + outcome.status) <= 80
+
+
+def test_a_fault_in_the_quick_analysis_is_shown_and_loses_nothing(state, monkeypatch):
+    # A bug of ours (any exception but our own errors) in the analysis run on
+    # a keystroke must not end the app: it is shown as a refused value, and
+    # the candidate and the committed design stay as they were.
+    import tui.workstate as ws
+
+    state.edit("stage.rc", "10k")
+    before, committed = state.candidate, state.design
+
+    def broken(design, large_signal=True):
+        raise ValueError("a bug")
+
+    monkeypatch.setattr(ws, "analyse", broken)
+    outcome = state.edit("stage.re1", "47")
+    assert outcome.error and "internal error (ValueError: a bug)" in outcome.status
+    assert state.candidate is before and state.design is committed
+    assert state.pin(1, state.design).error and state.baseline is None

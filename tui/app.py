@@ -33,7 +33,7 @@ from .editing import Editing
 from .messages import LargeSignalReady
 from .pictures_pane import PicturesPane
 from .readout_table import readout_table, warnings_text
-from .safe_text import visible
+from .safe_text import internal_error, visible
 from .screens import HelpScreen, NotePrompt
 from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
@@ -42,12 +42,6 @@ from .workstate import Baseline, Candidate, Save, WorkState
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.
 DEBOUNCE = 0.15
-
-
-def internal_error(err: Exception) -> str:
-    """A fault of ours as one status line: the exception's type and message
-    (escaped: it may quote a value from the file)."""
-    return f"internal error ({type(err).__name__}: {visible(str(err))}); please report it"
 
 
 class SweepFailed(Message):

@@ -42,3 +42,9 @@ def visible(text: str) -> str:
     is shown as ``a\x1b[2Jb``.
     """
     return _UNSAFE.sub(_escape, text)
+
+
+def internal_error(err: Exception) -> str:
+    """A fault of ours as one status line: the exception's type and message
+    (escaped: it may quote a value from the file)."""
+    return f"internal error ({type(err).__name__}: {visible(str(err))}); please report it"

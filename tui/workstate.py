@@ -24,6 +24,7 @@ from model.design.stepping import choices, step, step_decade
 from model.errors import DesignError, StageledgerError
 
 from .fieldtext import field_text
+from .safe_text import internal_error
 
 
 @dataclass(frozen=True)
@@ -341,7 +342,10 @@ class WorkState:
 
     def pin(self, number: int, design: Design) -> Outcome:
         """The design after ledger entry ``number`` as the baseline."""
-        self.baseline = Baseline(f"#{number}", design, analyse(design))
+        try:
+            self.baseline = Baseline(f"#{number}", design, _analysed(design))
+        except StageledgerError as err:
+            return Outcome(status=f"baseline not pinned: {err}", error=True)
         return Outcome(status=f"baseline pinned: the design after entry #{number} (F4 unpins)", readout=True)
 
     # -- the candidate --------------------------------------------------------
@@ -351,7 +355,7 @@ class WorkState:
         raises StageledgerError, with nothing changed, if it is not a valid design."""
         if pending:
             design = with_values(self.design, pending)
-            self.candidate = Candidate(pending, design, analyse(design, large_signal=False))
+            self.candidate = Candidate(pending, design, _analysed(design, large_signal=False))
         else:
             self.candidate = None
         self._redraw = True
@@ -368,3 +372,18 @@ def _holds(design: Design, key: str, text: str) -> bool:
         return get_value(with_values(design, {key: text}), key) == get_value(design, key)
     except StageledgerError:
         return False
+
+
+class InternalFault(StageledgerError):
+    """A fault of ours in an analysis the state runs itself. It is handled as
+    a refused value (the candidate and everything committed are kept, the
+    status line says what happened), and its text says it is ours."""
+
+
+def _analysed(design: Design, large_signal: bool = True) -> Figures:
+    try:
+        return analyse(design, large_signal=large_signal)
+    except StageledgerError:
+        raise
+    except Exception as err:  # noqa: BLE001 - any bug must not end the app mid-edit
+        raise InternalFault(internal_error(err)) from err
