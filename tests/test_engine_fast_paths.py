@@ -50,7 +50,7 @@ def test_one_transistor_step_is_the_general_step(seed):
     # The linearised currents after the step, as newton_step hands them back.
     with np.errstate(all="ignore"):
         step_b, i_b = solve.newton_step(r.transpose(2, 0, 1), u0.T,
-                                        device.DeviceParams(*(getattr(dev, f).T for f in solve.PARAM_FIELDS)),
+                                        dev.map(lambda a: a.T),
                                         u.transpose(2, 0, 1))
     np.testing.assert_array_equal(step_b, step.transpose(2, 0, 1))
     np.testing.assert_array_equal(i_b, i.T)

@@ -17,23 +17,17 @@ Hypothesis runs derandomized here so the suite cannot fail by chance.
 
 import numpy as np
 from hypothesis import HealthCheck, given, settings
+from test_engine_formulation import EPS, _stage
 from test_engine_properties import designs
 
 from model.analyses.corner_search import sweep
-from model.analyses.figures import design_values
 from model.analyses.transfer import FFT_POINTS, _harmonics, _held, _period, swing_and_distortion
 from model.circuit.linearised import small_signal
 from model.circuit.newton import junction_voltages, operating_point
-from model.circuit.topologies import EMF, TRANSISTOR, build
+from model.circuit.topologies import EMF, TRANSISTOR
 
 SETTINGS = settings(max_examples=15, deadline=None, derandomize=True, database=None,
                     suppress_health_check=[HealthCheck.too_slow])
-EPS = np.finfo(float).eps
-
-
-def _stage(d):
-    stage = build(d.topology, design_values([d]))
-    return stage, operating_point(stage.net)
 
 
 def test_folded_period_equals_every_phase():

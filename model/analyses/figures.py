@@ -16,8 +16,8 @@ from model.analyses.corner_search import POINTS_PER_DECADE, Response, frequency_
 from model.analyses.hand import HandEstimate, hand_estimate
 from model.analyses.midband import decibels, device_small_signal, midband_figures
 from model.analyses.power import dissipation
-from model.analyses.unsolved import unsolved_message
 from model.analyses.transfer import LargeSignal, region_of, swing_and_distortion
+from model.analyses.unsolved import unsolved_message
 from model.circuit.newton import operating_point
 from model.circuit.topologies import TRANSISTOR, StageCircuit, build, shape_of
 from model.design.stage import Design

@@ -55,16 +55,22 @@ class DeviceParams:
     vt: np.ndarray
     sign: np.ndarray
 
+    def map(self, fn) -> "DeviceParams":
+        """The same parameters with ``fn`` applied to each array (a slice, a
+        transpose, a repeat): the one place that lists the fields."""
+        return DeviceParams(*(fn(getattr(self, f)) for f in PARAM_FIELDS))
+
     def repeat(self, n: int) -> "DeviceParams":
         """Each row repeated n times in a row (for sweeping one design)."""
-        return DeviceParams(*(np.repeat(getattr(self, f), n) for f in _FIELDS))
+        return self.map(lambda a: np.repeat(a, n))
 
     def take(self, index) -> "DeviceParams":
         """The rows picked by an integer or boolean index array."""
-        return DeviceParams(*(getattr(self, f)[index] for f in _FIELDS))
+        return self.map(lambda a: a[index])
 
 
-_FIELDS = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
+#: The fields of DeviceParams, in order.
+PARAM_FIELDS = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
 
 
 def params_at(

@@ -24,7 +24,6 @@ _START_CURRENT = 1e-3
 MAX_ITER = 200
 #: From this batch size on, one Newton step copies its inputs entry-major.
 _COPY_FROM = 256
-PARAM_FIELDS = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
 
 
 def entry_major(a):
@@ -48,7 +47,7 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
     # the converged rows is one indexing instead of one per input.
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         v_crit = device.critical_voltage(dev)
-    inputs = [r.reshape(batch, -1), u0, *(getattr(dev, f) for f in PARAM_FIELDS), v_crit]
+    inputs = [r.reshape(batch, -1), u0, *(getattr(dev, f) for f in device.PARAM_FIELDS), v_crit]
     pack = np.empty((sum(a.shape[1] for a in inputs), batch))
     at = 0
     for a in inputs:
@@ -97,8 +96,8 @@ def _unpack(pack, count: int):
     (k, b) device parameters, and VT and the critical voltage as (k, 1, b)."""
     n = 2 * count
     at = n * n + n
-    dev = device.DeviceParams(*(pack[at + j * count : at + (j + 1) * count] for j in range(len(PARAM_FIELDS))))
-    v_crit = pack[at + len(PARAM_FIELDS) * count :]
+    dev = device.DeviceParams(*(pack[at + j * count : at + (j + 1) * count] for j in range(len(device.PARAM_FIELDS))))
+    v_crit = pack[at + len(device.PARAM_FIELDS) * count :]
     return pack[: n * n].reshape(n, n, -1), pack[n * n : at], dev, dev.vt[:, None], v_crit[:, None]
 
 
@@ -181,7 +180,7 @@ def newton_step(r, u0, dev: device.DeviceParams, u):
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
     if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
         step, (ic, ib), d_ic, g_beta = _one_transistor(
-            r.transpose(1, 2, 0), u0.T, device.DeviceParams(*(getattr(dev, f).T for f in PARAM_FIELDS)), u[:, 0].T)
+            r.transpose(1, 2, 0), u0.T, dev.map(lambda a: a.T), u[:, 0].T)
         i = np.empty((u.shape[0], 2))
         i[:, 0] = ic + (d_ic[0] * step[0] + d_ic[1] * step[1])
         i[:, 1] = ib + (g_beta[0] * step[0] + g_beta[1] * step[1])
@@ -189,7 +188,7 @@ def newton_step(r, u0, dev: device.DeviceParams, u):
     # Entry-major views on a design's few rows (one step reads each entry
     # once); contiguous copies on big batches, where strided reads cost more.
     em = entry_major if u.shape[0] >= _COPY_FROM else (lambda a: a.transpose(*range(1, a.ndim), 0))
-    step, i = _step(em(r), em(u0), device.DeviceParams(*(em(getattr(dev, f)) for f in PARAM_FIELDS)), em(u))
+    step, i = _step(em(r), em(u0), dev.map(em), em(u))
     return step.transpose(2, 0, 1), i.T
 
 

@@ -32,7 +32,6 @@ from model.circuit.dense import solve_dominant
 from model.circuit.junction_newton import (
     _V_TOL,
     MAX_ITER,
-    PARAM_FIELDS,
     active_start,
     bmv,
     entry_major,
@@ -121,7 +120,7 @@ def sweep_reduction(net: Netlist, source: str) -> "SweepReduction":
     v = np.repeat(v, 2, axis=0)
     v[:, plan.constraints.index(source)] = np.tile([0.0, 1.0], net.batch)
     dev = _stack_params([q.params for q in net.of_type(Bjt)])
-    dev = device.DeviceParams(*(np.repeat(getattr(dev, f), 2, axis=0) for f in PARAM_FIELDS))
+    dev = dev.map(lambda a: np.repeat(a, 2, axis=0))
     return SweepReduction(net.batch, _reduce(net, np.repeat(g, 2, axis=0), v, dev))
 
 
@@ -146,7 +145,7 @@ class SweepReduction:
         du0 = (red.u0[1::2] - red.u0[0::2]).T
         r = entry_major(red.r[0::2])
         count = len(red.bjts)
-        dev = _entry_major_params(device.DeviceParams(*(getattr(red.dev, f)[0::2] for f in PARAM_FIELDS)))
+        dev = red.dev.map(lambda a: entry_major(a[0::2]))
         st = device.evaluate(dev, *entry_major(op.junctions).transpose(1, 0, 2))
         jac = jacobian(r, st, count)
         return solve_entries(jac, du0).T.reshape(self.batch, count, 2)
@@ -185,7 +184,7 @@ class _Reduced:
         def same(x):
             return np.repeat(x[0::2], m, axis=0)
 
-        dev = device.DeviceParams(*(same(getattr(self.dev, f)) for f in PARAM_FIELDS))
+        dev = self.dev.map(same)
         return _Reduced(self.plan, self.bjts, same(self.g), mix(self.v),
                         np.concatenate([mix(self.drive[:, :, :1]), same(self.drive[:, :, 1:])], axis=2),
                         mix(self.u0), same(self.r), dev, same(self.sign))
@@ -256,7 +255,7 @@ _SHOWN = 5e-4
 
 def _params_of(dev: device.DeviceParams, k: int) -> device.DeviceParams:
     """Transistor k's (batch,) parameters out of (batch, transistor) ones."""
-    return device.DeviceParams(*(getattr(dev, f)[:, k] for f in PARAM_FIELDS))
+    return dev.map(lambda a: a[:, k])
 
 
 def _kcl_residual(plan, g, volts, signs, states):
@@ -304,15 +303,10 @@ def _terminal_currents(s, st: device.JunctionState):
     return s * st.ic, s * st.ib, -s * (st.ic + st.ib)
 
 
-def _entry_major_params(p: device.DeviceParams) -> device.DeviceParams:
-    return device.DeviceParams(*(entry_major(getattr(p, f)) for f in PARAM_FIELDS))
-
-
 def _stack_params(params: list) -> device.DeviceParams:
     """Parameters of several transistors as (batch, transistor) arrays."""
-    fields = ("i_s", "beta_f", "beta_r", "va", "vt", "sign")
     if len(params) == 1:  # a column view: np.stack's own cost is most of a design's
-        return device.DeviceParams(*(getattr(params[0], f)[:, None] for f in fields))
-    return device.DeviceParams(*(np.stack([getattr(p, f) for p in params], axis=1) for f in fields))
+        return params[0].map(lambda a: a[:, None])
+    return device.DeviceParams(*(np.stack([getattr(p, f) for p in params], axis=1) for f in device.PARAM_FIELDS))
 
 
