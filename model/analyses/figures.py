@@ -31,6 +31,7 @@ _KEYS = (
     "source.rs", "source.vpk", "source.freq", "load.rl", "load.cl",
     "transistor.beta", "transistor.beta_r", "transistor.va", "transistor.i_s",
     "transistor.xti", "transistor.eg", "transistor.xtb", "environment.ambient",
+    "transistor.ft", "transistor.cmu", "transistor.theta_ja",  # the response and tj of analyse_many
 )
 
 #: The keys of ``Figures.to_dict()`` that every consumer may rely on.

@@ -1,0 +1,257 @@
+"""Swing and distortion of many designs at once: the batched counterpart of
+:func:`model.analyses.transfer.swing_and_distortion`, same conventions.
+
+Every row's held circuit (coupling and bypass capacitors as sources at their
+quiescent voltages) is reduced once, as in :mod:`model.analyses.transfer`;
+each round below is one Newton call over every row still searching.
+
+Swing: the edge on either side is the zero of the forward-active margin
+(transfer._margin) along the EMF.  transfer.py brackets it on a 99-point
+grid, solves 48 points inside the bracket and extrapolates a quadratic
+through the last three active ones; here a bracket is found from the
+linearised stage's own estimate and narrowed by regula falsi (Illinois) on
+the margin until it is within _MARGIN_TOL (V or nepers) of zero, about ten
+points a side.  Both land on the same zero of a function that is smooth on
+the active side: the quadratic's error over a step of 1/47 of a coarse
+cell (a cell spans a quarter of the edge's EMF) is third order in that
+step, far below the 1e-3 the tests hold them to.  A side still active at
+±4·vcc reports the excursion there, a stage not forward-active at rest
+swings 0, as transfer.py does.  Rows the search cannot settle (a point that
+does not converge) are handed to transfer.swing_and_distortion itself.
+
+Distortion: one period of the EMF at QUICK_POINTS phases first.  Those are
+a subset of transfer.FFT_POINTS' phases (the same EMFs to the bit).  Where
+every sample is forward-active and the upper half of that short spectrum is
+below _QUICK_TAIL of the fundamental, the harmonics are those of the short
+period: for a waveform that smooth they fall off geometrically, so what the
+short period folds onto harmonics 1–3 or leaves out above its Nyquist bin is
+below 1e-9 of the fundamental (tests/test_batch_figures.py checks the two
+against each other and against analyse).  Every other row is solved at all
+FFT_POINTS phases, as transfer.py does.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from model.analyses.transfer import (
+    FFT_POINTS,
+    IC_CUTOFF,
+    VBC_SATURATION,
+    _held,
+    _margin,
+    _period,
+    swing_and_distortion,
+)
+from model.circuit.device import critical_voltage
+from model.circuit.newton import OperatingPoint, SweepReduction
+from model.circuit.topologies import TRANSISTOR, StageCircuit
+
+#: Phases of the short distortion period (a divisor of FFT_POINTS).
+QUICK_POINTS = 16
+#: The short period stands when its bins above QUICK_POINTS/4 are below this
+#: fraction of the fundamental.
+_QUICK_TAIL = 1e-9
+#: An edge is settled when the margin there is within this of zero (V for
+#: saturation, nepers for cut-off).
+_MARGIN_TOL = 1e-10
+_MAX_ROUNDS = 40
+#: How far the search looks: transfer.py's ±_SPAN_PER_VOLT·vcc.
+_SPAN_PER_VOLT = 4.0
+
+
+@dataclass(frozen=True)
+class BatchLargeSignal:
+    """Swing (V, ≥ 0) and distortion (fractions) per row, as LargeSignal's."""
+
+    swing_up: np.ndarray
+    swing_down: np.ndarray
+    thd: np.ndarray
+    hd2: np.ndarray
+    hd3: np.ndarray
+
+
+def large_signal_many(stage: StageCircuit, op: OperatingPoint, vcc, vpk, active, span) -> BatchLargeSignal:
+    """Swing and distortion of every row of a built stage at its converged
+    operating point ``op``.  vcc, vpk (V) per row; ``active`` marks the rows
+    forward-active at rest; ``span`` (V) is what analyse passes to
+    swing_and_distortion, used only for rows handed to it."""
+    held = _HeldRows(stage, op)
+    batch = stage.net.batch
+    up, down = np.zeros(batch), np.zeros(batch)
+    rows = np.flatnonzero(active)
+    if rows.size:
+        u, d, settled = _swing(held, op, rows, vcc[rows])
+        up[rows], down[rows] = u, d
+        for r in rows[~settled]:
+            one = swing_and_distortion(replace(stage, net=stage.net.take(np.array([r]))), op.take(np.array([r])),
+                                       float(vcc[r]), float(vpk[r]), float(span[r]))
+            up[r], down[r] = one.swing_up, one.swing_down
+    thd, hd2, hd3 = (np.zeros(batch) for _ in range(3))
+    driven = np.flatnonzero(vpk > 0)
+    if driven.size:
+        thd[driven], hd2[driven], hd3[driven] = _distortion(held, driven, vpk[driven])
+    return BatchLargeSignal(up, down, thd, hd2, hd3)
+
+
+class _HeldRows:
+    """The held circuit of every row reduced once; solves chosen rows (a row
+    may be picked more than once) at a few EMFs each, from the linearised
+    starts transfer._predictor gives."""
+
+    def __init__(self, stage: StageCircuit, op: OperatingPoint):
+        self.red = _held(stage, op)
+        self.output = stage.output
+        self.out_q = op.voltages[stage.output]
+        self.u_q = op.junctions[:, 0]
+        self.slope = self.red.slope(op)[:, 0]
+        crit = critical_voltage(stage.net.element(TRANSISTOR).params)
+        self.ceiling = np.stack([crit, np.minimum(crit, self.u_q[:, 0])], axis=1)
+
+    def solve(self, rows, emf):
+        """Rows ``rows`` (k,) at EMFs ``emf`` (k, m) V: the load voltage's
+        excursion (V), the margin, whether each point is forward-active and
+        whether it converged."""
+        k, m = emf.shape
+        start = self.u_q[rows, None] + emf[:, :, None] * self.slope[rows, None]
+        start = np.minimum(start, self.ceiling[rows, None]).reshape(k * m, 1, 2)
+        sol = _subset(self.red, rows).solve(emf, start)
+        out = sol.voltages[self.output].reshape(k, m) - self.out_q[rows, None]
+        margin = _margin(sol).reshape(k, m)
+        converged = sol.converged.reshape(k, m)
+        return out, margin, (margin >= 0.0) & converged, converged
+
+
+def _subset(red: SweepReduction, rows) -> SweepReduction:
+    """The reduction of some rows only: each design is a (0 V, 1 V) pair of rows."""
+    if rows.size == red.batch and np.array_equal(rows, np.arange(red.batch)):
+        return red
+    pick = (2 * rows[:, None] + np.arange(2)).ravel()
+    p = red.pair
+
+    def take(a):
+        return a[pick]
+
+    pair = replace(p, g=take(p.g), v=take(p.v), drive=take(p.drive), u0=take(p.u0), r=take(p.r),
+                   dev=p.dev.map(take), sign=take(p.sign))
+    return SweepReduction(rows.size, pair)
+
+
+def _first_guess(held: _HeldRows, op: OperatingPoint, rows, direction):
+    """|EMF| (V) where the linearised stage reaches an edge going ``direction``
+    (±1 per lane): VBC at VBC_SATURATION or IC extrapolated to 0 A, the nearer."""
+    st = op.states[TRANSISTOR]
+    s_be, s_bc = held.slope[rows, 0], held.slope[rows, 1]
+    vbc_rate = direction * s_bc
+    ic_rate = direction * (st.dic_dvbe[rows] * s_be + st.dic_dvbc[rows] * s_bc)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sat = np.where(vbc_rate > 0, (VBC_SATURATION - held.u_q[rows, 1]) / vbc_rate, np.inf)
+        cut = np.where(ic_rate < 0, (st.ic[rows] - IC_CUTOFF) / -ic_rate, np.inf)
+    return np.minimum(sat, cut)
+
+
+def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc):
+    """(up, down, settled) for rows forward-active at rest: two lanes a row,
+    the EMF going down and up from 0 V, each bracketing its edge and then
+    narrowing it by Illinois regula falsi on the margin."""
+    lane_row = np.repeat(rows, 2)
+    direction = np.tile([-1.0, 1.0], rows.size)
+    full = np.repeat(_SPAN_PER_VOLT * vcc, 2)
+    lanes = lane_row.size
+    rest = np.repeat(_margin(op.take(rows)), 2)
+    # Bracket ends as |EMF| along the lane: a forward-active (margin ≥ 0),
+    # b not (unknown until found); *_w are Illinois' weighted margins.
+    a_e, a_w = np.zeros(lanes), rest.copy()
+    b_e, b_w = np.full(lanes, np.nan), np.full(lanes, np.nan)
+    kept = np.zeros(lanes, dtype=np.int8)  # the end regula falsi kept last round: 1 a, −1 b
+    edge_out = np.full(lanes, np.nan)
+    done = np.zeros(lanes, dtype=bool)
+    guess = _first_guess(held, op, lane_row, direction)
+    probe = np.clip(np.where(np.isfinite(guess), guess, full), 1e-9 * full, full)
+    for _ in range(_MAX_ROUNDS):
+        todo = np.flatnonzero(~done)
+        if todo.size == 0:
+            break
+        out, margin, active, converged = (x[:, 0] for x in held.solve(lane_row[todo], (probe * direction)[todo, None]))
+        at_end = active & np.isnan(b_e[todo]) & (probe[todo] >= full[todo])
+        finished = (converged & (np.abs(margin) <= _MARGIN_TOL)) | at_end
+        edge_out[todo[finished]] = out[finished]
+        done[todo[finished]] = True
+        inner, outer = active & ~finished, ~active & ~finished
+        t = todo[outer]  # the point replaces b: a is kept
+        a_w[t] = np.where(kept[t] == 1, 0.5 * a_w[t], a_w[t])
+        kept[t] = 1
+        b_e[t], b_w[t] = probe[t], np.where(converged[outer], margin[outer], np.nan)
+        t = todo[inner]  # the point replaces a: b is kept (if there is one yet)
+        b_w[t] = np.where(kept[t] == -1, 0.5 * b_w[t], b_w[t])
+        kept[t] = np.where(np.isnan(b_e[t]), 0, -1)
+        a_e[t], a_w[t] = probe[t], margin[inner]
+        t = todo[~finished]
+        probe[t] = _next_probe(a_e[t], a_w[t], b_e[t], b_w[t], rest[t], full[t])
+        # A bracket as narrow as floats allow and still unsettled: handed on.
+        done[t[np.abs(b_e[t] - a_e[t]) <= 1e-14 * full[t]]] = True
+    outs = edge_out.reshape(-1, 2)
+    up = np.maximum(np.fmax(outs[:, 0], outs[:, 1]), 0.0)
+    down = np.maximum(-np.fmin(outs[:, 0], outs[:, 1]), 0.0)
+    return up, down, np.isfinite(outs).all(axis=1)
+
+
+def _next_probe(a_e, a_w, b_e, b_w, rest, full):
+    """The next |EMF| of each lane.  While no outer end is known: 1.25 times
+    the zero of the margin's secant from rest through a (between 1.25 and 8
+    times a, never past ``full``).  Then regula falsi on the weighted ends,
+    or halving where the outer end did not converge (no margin to use)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.empty_like(a_e)
+        open_ = np.isnan(b_e)
+        secant = np.where(rest > a_w, a_e * rest / (rest - a_w), np.inf)
+        out[open_] = np.minimum(np.clip(1.25 * secant, 1.25 * a_e, 8.0 * a_e), full)[open_]
+        falsi = a_e - a_w * (b_e - a_e) / (b_w - a_w)
+        plain = ~open_ & np.isfinite(falsi)
+        out[plain] = falsi[plain]
+        half = ~open_ & ~plain
+        out[half] = 0.5 * (a_e[half] + b_e[half])
+    return out
+
+
+def _distortion(held: _HeldRows, rows, vpk):
+    """(thd, hd2, hd3) of rows driven at vpk (V, > 0): the short period where
+    it stands, every phase elsewhere."""
+    wave, index = _period_of(QUICK_POINTS)
+    out, _, active, _ = held.solve(rows, vpk[:, None] * wave)
+    spectrum = np.abs(np.fft.rfft(out[:, index], axis=-1))
+    fundamental = spectrum[:, 1]
+    tail = spectrum[:, QUICK_POINTS // 4 + 1 :].max(axis=1)
+    quick = active.all(axis=1) & (tail <= _QUICK_TAIL * fundamental)
+    thd, hd2, hd3 = _ratios(spectrum, QUICK_POINTS)
+    slow = np.flatnonzero(~quick)
+    if slow.size:
+        wave, index = _period(1.0)
+        out = held.solve(rows[slow], vpk[slow, None] * wave)[0]
+        thd[slow], hd2[slow], hd3[slow] = _ratios(np.abs(np.fft.rfft(out[:, index], axis=-1)), FFT_POINTS)
+    return thd, hd2, hd3
+
+
+def _period_of(points: int):
+    """transfer._period's (distinct unit EMFs, index of each sample) for a
+    period of ``points`` phases: the same sin(2πk/points) values, which are
+    FFT_POINTS' own at every FFT_POINTS/points-th phase (the scalings by
+    powers of two are exact)."""
+    quarter = points // 4
+    k = np.arange(-quarter, quarter + 1)
+    wave = 1.0 * np.sin(2.0 * np.pi * k / points)
+    n = np.arange(points)
+    folded = np.where(n <= quarter, n, np.where(n < 3 * quarter, points // 2 - n, n - points))
+    return wave, folded + quarter
+
+
+def _ratios(spectrum, points: int):
+    """transfer._harmonics on rows of |rfft| of ``points`` samples each."""
+    fundamental = spectrum[:, 1]
+    zero = fundamental == 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        thd = np.sqrt(np.sum(spectrum[:, 2 : points // 2] ** 2, axis=1)) / fundamental
+        hd2, hd3 = spectrum[:, 2] / fundamental, spectrum[:, 3] / fundamental
+    return tuple(np.where(zero, 0.0, x) for x in (thd, hd2, hd3))
