@@ -77,7 +77,9 @@ def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband,
     probes = np.stack([np.log10(signal_freq), centre, x_low + _PROBE, x_low - _PROBE,
                        x_high - _PROBE, x_high + _PROBE], axis=1)
     probes[:, 2:] = np.clip(probes[:, 2:], _LOWEST_DECADE, _HIGHEST_DECADE)
-    g = at(np.arange(stage.net.batch), 10.0 ** probes)
+    freq = 10.0**probes
+    freq[:, 0] = signal_freq
+    g = at(np.arange(stage.net.batch), freq)
     gain_at_freq = np.abs(g[:, 0])
     with np.errstate(invalid="ignore"):
         passband = (reference > 0) & (np.abs(g[:, 1] - midband) <= _NEAR_MIDBAND * reference)
@@ -181,7 +183,7 @@ class _Lanes:
 
     def _f(self, magnitude, reference):
         """log10(|av_mid|²/|av|² − 1): < 0 inside the passband, 0 at −3 dB."""
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             return np.log10(np.maximum((reference / np.maximum(magnitude, 1e-300)) ** 2 - 1.0, 1e-12))
 
     def outward(self, x, of):

@@ -6,18 +6,22 @@ quiescent voltages) is reduced once, as in :mod:`model.analyses.transfer`;
 each round below is one Newton call over every row still searching.
 
 Swing: the edge on either side is the zero of the forward-active margin
-(transfer._margin) along the EMF.  transfer.py brackets it on a 99-point
+(transfer._margin) along the EMF. transfer.py brackets it on a 99-point
 grid, solves 48 points inside the bracket and extrapolates a quadratic
-through the last three active ones; here a bracket is found from the
+through the last three active ones. Here a bracket is found from the
 linearised stage's own estimate and narrowed by regula falsi (Illinois) on
 the margin until it is within _MARGIN_TOL (V or nepers) of zero, about ten
-points a side.  Both land on the same zero of a function that is smooth on
-the active side: the quadratic's error over a step of 1/47 of a coarse
-cell (a cell spans a quarter of the edge's EMF) is third order in that
-step, far below the 1e-3 the tests hold them to.  A side still active at
-±4·vcc reports the excursion there, a stage not forward-active at rest
-swings 0, as transfer.py does.  Rows the search cannot settle (a point that
-does not converge) are handed to transfer.swing_and_distortion itself.
+points a side. That zero only places the edge on transfer.py's grids (the
+coarse cell and, inside it, the last active of its _FINE points; the same
+span is used); its extrapolation is then replayed on those same three points
+(solved in one more call), so the answer is transfer.py's own: where the
+margin falls off a cliff (a follower's output reaching cut-off) the
+quadratic overshoots the true excursion by up to a few tenths of a per cent,
+and the edge inside a cell's first fine step reports that step's inner end.
+A side still active at ±4·vcc reports the excursion there, a stage not
+forward-active at rest swings 0, as transfer.py does. Rows the search cannot
+settle (a point that does not converge) are handed to
+transfer.swing_and_distortion itself.
 
 Distortion: one period of the EMF at QUICK_POINTS phases first.  Those are
 a subset of transfer.FFT_POINTS' phases (the same EMFs to the bit).  Where
@@ -37,6 +41,9 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from model.analyses.transfer import (
+    _FINE,
+    _GRID,
+    _SPAN_PER_VOLT,
     FFT_POINTS,
     IC_CUTOFF,
     VBC_SATURATION,
@@ -58,8 +65,6 @@ _QUICK_TAIL = 1e-9
 #: saturation, nepers for cut-off).
 _MARGIN_TOL = 1e-10
 _MAX_ROUNDS = 40
-#: How far the search looks: transfer.py's ±_SPAN_PER_VOLT·vcc.
-_SPAN_PER_VOLT = 4.0
 
 
 @dataclass(frozen=True)
@@ -83,7 +88,7 @@ def large_signal_many(stage: StageCircuit, op: OperatingPoint, vcc, vpk, active,
     up, down = np.zeros(batch), np.zeros(batch)
     rows = np.flatnonzero(active)
     if rows.size:
-        u, d, settled = _swing(held, op, rows, vcc[rows])
+        u, d, settled = _swing(held, op, rows, vcc[rows], span[rows])
         up[rows], down[rows] = u, d
         for r in rows[~settled]:
             one = swing_and_distortion(replace(stage, net=stage.net.take(np.array([r]))), op.take(np.array([r])),
@@ -92,7 +97,7 @@ def large_signal_many(stage: StageCircuit, op: OperatingPoint, vcc, vpk, active,
     thd, hd2, hd3 = (np.zeros(batch) for _ in range(3))
     driven = np.flatnonzero(vpk > 0)
     if driven.size:
-        thd[driven], hd2[driven], hd3[driven] = _distortion(held, driven, vpk[driven])
+        thd[driven], hd2[driven], hd3[driven], _ = _distortion(held, driven, vpk[driven])
     return BatchLargeSignal(up, down, thd, hd2, hd3)
 
 
@@ -152,10 +157,11 @@ def _first_guess(held: _HeldRows, op: OperatingPoint, rows, direction):
     return np.minimum(sat, cut)
 
 
-def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc):
+def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc, span):
     """(up, down, settled) for rows forward-active at rest: two lanes a row,
     the EMF going down and up from 0 V, each bracketing its edge and then
-    narrowing it by Illinois regula falsi on the margin."""
+    narrowing it by Illinois regula falsi on the margin; then read as
+    transfer.py's grids would (see _on_transfer_grid)."""
     lane_row = np.repeat(rows, 2)
     direction = np.tile([-1.0, 1.0], rows.size)
     full = np.repeat(_SPAN_PER_VOLT * vcc, 2)
@@ -166,7 +172,7 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc):
     a_e, a_w = np.zeros(lanes), rest.copy()
     b_e, b_w = np.full(lanes, np.nan), np.full(lanes, np.nan)
     kept = np.zeros(lanes, dtype=np.int8)  # the end regula falsi kept last round: 1 a, −1 b
-    edge_out = np.full(lanes, np.nan)
+    edge_out, edge = np.full(lanes, np.nan), np.full(lanes, np.nan)
     done = np.zeros(lanes, dtype=bool)
     guess = _first_guess(held, op, lane_row, direction)
     probe = np.clip(np.where(np.isfinite(guess), guess, full), 1e-9 * full, full)
@@ -178,6 +184,7 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc):
         at_end = active & np.isnan(b_e[todo]) & (probe[todo] >= full[todo])
         finished = (converged & (np.abs(margin) <= _MARGIN_TOL)) | at_end
         edge_out[todo[finished]] = out[finished]
+        edge[todo[finished]] = np.where(at_end[finished], np.inf, probe[todo[finished]])
         done[todo[finished]] = True
         inner, outer = active & ~finished, ~active & ~finished
         t = todo[outer]  # the point replaces b: a is kept
@@ -192,10 +199,74 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc):
         probe[t] = _next_probe(a_e[t], a_w[t], b_e[t], b_w[t], rest[t], full[t])
         # A bracket as narrow as floats allow and still unsettled: handed on.
         done[t[np.abs(b_e[t] - a_e[t]) <= 1e-14 * full[t]]] = True
+    inside = np.flatnonzero(np.isfinite(edge))
+    if inside.size:
+        reach = np.repeat(np.minimum(span, _SPAN_PER_VOLT * vcc), 2)[inside]
+        edge_out[inside] = _as_transfer(held, lane_row[inside], direction[inside], edge[inside], reach, full[inside])
     outs = edge_out.reshape(-1, 2)
     up = np.maximum(np.fmax(outs[:, 0], outs[:, 1]), 0.0)
     down = np.maximum(-np.fmin(outs[:, 0], outs[:, 1]), 0.0)
     return up, down, np.isfinite(outs).all(axis=1)
+
+
+def _as_transfer(held: _HeldRows, rows, direction, edge, span, full):
+    """The output excursion (V) transfer.py reports for edges at |EMF| ``edge``
+    (V): its coarse grid (span·_GRID out from rest, span widened to ``full``
+    if the edge lies beyond), its _FINE points across the coarse cell that
+    holds the edge, and its extrapolation from the last (up to three)
+    active ones, replayed on those same points."""
+    reach = np.where(span > edge, span, full)
+    outer = np.argmax(reach[:, None] * _GRID[None, 1:] > edge[:, None], axis=1) + 1
+    # np.linspace(start, stop, _FINE) as numpy computes it: k·step + start.
+    start, stop = direction * (reach * _GRID[outer - 1]), direction * (reach * _GRID[outer])
+    step = (stop - start) / (_FINE - 1)
+    last = np.clip(np.floor((edge - np.abs(start)) / np.abs(step)), 0, _FINE - 2).astype(int)
+    last -= (direction * (last * step + start) > edge) & (last > 0)
+    last += (direction * ((last + 1) * step + start) <= edge) & (last < _FINE - 2)
+    picks = np.maximum(last[:, None] + np.arange(-2, 1), 0)
+    emf = picks * step[:, None] + start[:, None]
+    out, margin, _, _ = held.solve(rows, emf)
+    return _extrapolated(emf, margin, out, np.minimum(last + 1, 3), (1 * step + start) - start)
+
+
+def _extrapolated(x, m, o, count, step):
+    """transfer._extrapolate on rows of the last three active points (x EMF,
+    m margin, o output; the first 3 − count columns repeat the first point):
+    Newton on the polynomial through them from the secant zero, kept within
+    one fine step past the last point; the output is the polynomial through
+    the outputs there.  One point alone reports itself."""
+    x2, x1, m2, m1 = x[:, 2], x[:, 1], m[:, 2], m[:, 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        edge = np.where(m2 != m1, x2 - m2 * (x2 - x1) / (m2 - m1), x2)
+        moving = np.ones(x.shape[0], dtype=bool)
+        for _ in range(4):
+            value, slope = _lagrange(x, m, count, edge)
+            moving &= slope != 0.0
+            edge = np.where(moving, edge - value / slope, edge)
+    edge = np.clip(edge, np.minimum(x2, x2 + step), np.maximum(x2, x2 + step))
+    single = (count < 2) | (step == 0.0)
+    return np.where(single, o[:, 2], _lagrange(x, o, count, np.where(single, x2, edge))[0])
+
+
+def _lagrange(x, y, count, t):
+    """transfer._lagrange per row through its last ``count`` (2 or 3) points."""
+    value, slope = np.zeros(t.shape), np.zeros(t.shape)
+    for c in (2, 3):
+        cols = range(3 - c, 3)
+        v, s = np.zeros(t.shape), np.zeros(t.shape)
+        for i in cols:
+            others = [j for j in cols if j != i]
+            denom = np.ones(t.shape)
+            for j in others:
+                denom = denom * (x[:, i] - x[:, j])
+            basis, dbasis = np.ones(t.shape), np.zeros(t.shape)
+            for j in others:
+                dbasis = dbasis * (t - x[:, j]) + basis
+                basis = basis * (t - x[:, j])
+            with np.errstate(divide="ignore", invalid="ignore"):
+                v, s = v + y[:, i] * basis / denom, s + y[:, i] * dbasis / denom
+        value, slope = np.where(count == c, v, value), np.where(count == c, s, slope)
+    return value, slope
 
 
 def _next_probe(a_e, a_w, b_e, b_w, rest, full):
@@ -216,22 +287,25 @@ def _next_probe(a_e, a_w, b_e, b_w, rest, full):
     return out
 
 
-def _distortion(held: _HeldRows, rows, vpk):
-    """(thd, hd2, hd3) of rows driven at vpk (V, > 0): the short period where
-    it stands, every phase elsewhere."""
-    wave, index = _period_of(QUICK_POINTS)
+def _distortion(held: _HeldRows, rows, vpk, points: int = QUICK_POINTS):
+    """(thd, hd2, hd3, short) of rows driven at vpk (V, > 0): the harmonics
+    of the ``points``-phase period where it stands (``short`` marks those
+    rows), of every phase elsewhere.  points=FFT_POINTS solves every phase
+    of every row, as transfer.py does."""
+    wave, index = _period_of(points) if points < FFT_POINTS else _period(1.0)
     out, _, active, _ = held.solve(rows, vpk[:, None] * wave)
     spectrum = np.abs(np.fft.rfft(out[:, index], axis=-1))
-    fundamental = spectrum[:, 1]
-    tail = spectrum[:, QUICK_POINTS // 4 + 1 :].max(axis=1)
-    quick = active.all(axis=1) & (tail <= _QUICK_TAIL * fundamental)
-    thd, hd2, hd3 = _ratios(spectrum, QUICK_POINTS)
-    slow = np.flatnonzero(~quick)
+    thd, hd2, hd3 = _ratios(spectrum, points)
+    if points == FFT_POINTS:
+        return thd, hd2, hd3, np.zeros(rows.size, dtype=bool)
+    tail = spectrum[:, points // 4 + 1 :].max(axis=1)
+    short = active.all(axis=1) & (tail <= _QUICK_TAIL * spectrum[:, 1])
+    slow = np.flatnonzero(~short)
     if slow.size:
         wave, index = _period(1.0)
         out = held.solve(rows[slow], vpk[slow, None] * wave)[0]
         thd[slow], hd2[slow], hd3[slow] = _ratios(np.abs(np.fft.rfft(out[:, index], axis=-1)), FFT_POINTS)
-    return thd, hd2, hd3
+    return thd, hd2, hd3, short
 
 
 def _period_of(points: int):

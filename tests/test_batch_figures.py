@@ -1,0 +1,195 @@
+"""analyse_many against analyse(design), row by row.
+
+analyse is the reference: the same engine one design at a time, with the
+swing from a fine grid and a quadratic extrapolation, the distortion from a
+256-point period and the corners from two rounds of 32-point grids.  The
+batched path finds the same quantities by other searches (see the
+docstrings of model/analyses/batch_transfer.py and batch_corners.py), so:
+
+* DC, midband, dissipation, tj and gain_at_freq: the same solves on batches
+  of another size (other assembly and elimination paths, see
+  tests/test_batch_paths.py): 1e-9 relative.
+* f_low, f_high: both searches end inside a bracket around the one crossing,
+  analyse's 5.2e-5 decade wide and ours 1e-6, so they can differ by at most
+  10**(5.3e-5) − 1 ≈ 1.3e-4 relative; held to 1e-3.
+* swing: both are the zero of the same smooth margin, analyse's to the error
+  of a quadratic over 1/47 of a coarse cell; held to 1e-3 relative or 1 mV.
+* thd, hd2, hd3: the full period solved as analyse does, or the 16-point one
+  where it stands (checked against the full one below); 1e-3 relative or
+  1e-6 absolute.
+
+Designs are drawn from the rules in model/design/fields.py (as
+tests/test_output_strict.py does) and around the geophone demo.  Hypothesis
+runs derandomized (tests/conftest.py), so the suite cannot fail by chance.
+"""
+
+from __future__ import annotations
+
+import math
+import pathlib
+import sys
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, reject, settings
+from hypothesis import strategies as st
+from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURATED_EF, _values
+
+from model import analyse, read_design
+from model.analyses.batch_figures import LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
+from model.analyses.batch_transfer import _distortion, _HeldRows
+from model.analyses.figures import dc_midband, design_values
+from model.circuit.topologies import build
+from model.design.stage import default_design, with_values
+from model.errors import DesignError, SolveError
+
+sys.path.insert(0, str(pathlib.Path(__file__).resolve().parent / "bench"))
+
+from bench_spread_engine import DEMO, spread_values  # noqa: E402
+
+SETTINGS = settings(max_examples=25, deadline=None, derandomize=True, database=None,
+                    suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+
+#: (relative, absolute) tolerance per figure; see the module docstring.
+EXACT = (1e-9, 0.0)
+TOLERANCE = {k: EXACT for k in QUICK_FIGURES + ("gain_at_freq",)}
+TOLERANCE.update(swing_up=(1e-3, 1e-3), swing_down=(1e-3, 1e-3),
+                 thd=(1e-3, 1e-6), hd2=(1e-3, 1e-6), hd3=(1e-3, 1e-6),
+                 f_low=(1e-3, 0.0), f_high=(1e-3, 0.0), bandwidth=(1e-3, 0.0))
+#: Figures that are a difference of two others, or a current that a
+#: cut-off stage carries only as leakage: a tiny value next to big terms.
+#: Their absolute floor is what 1e-9 of the terms they come from allows.
+FLOORS = {"ib": "ic", "ic": "i_supply", "vce": "vc", "vbe": "vb", "ve": "vb", "p_transistor": "p_supply",
+          "tj": "tj", "bandwidth": "f_high"}
+
+EVERY_EXTREME = {"common-emitter": (CUT_OFF_CE, SATURATED_CE), "emitter-follower": (CUT_OFF_EF_PNP, SATURATED_EF)}
+
+
+def _designs(topology: str, drawn: list) -> list:
+    out = []
+    for values in drawn:
+        try:
+            out.append(with_values(default_design(topology), values))
+        except DesignError:
+            # Valid values alone, refused together (a rule across keys).
+            continue
+    if not out:
+        reject()
+    return out
+
+
+def _compare(designs: list, got: dict) -> None:
+    for row, d in enumerate(designs):
+        try:
+            want = analyse(d)
+        except SolveError:
+            assert not got["converged"][row]
+            assert got["region"][row] == UNSOLVED
+            assert all(math.isnan(got[k][row]) for k in QUICK_FIGURES + LARGE_FIGURES)
+            continue
+        assert got["converged"][row], row
+        assert got["region"][row] == want.region, row
+        for key in QUICK_FIGURES + LARGE_FIGURES:
+            rtol, atol = TOLERANCE[key]
+            ref = getattr(want, key)
+            if key in FLOORS and math.isfinite(ref):
+                atol = max(atol, 1e-9 * abs(getattr(want, FLOORS[key])))
+            _assert_figure(got[key][row], ref, rtol, atol, f"row {row} {key} ({d.topology})")
+
+
+def _assert_figure(got: float, want: float, rtol: float, atol: float, what: str) -> None:
+    """Equal classification (NaN, ±inf, 0 exactly when analyse says 0 and no
+    absolute slack is allowed), then closeness."""
+    if math.isnan(want) or math.isinf(want):
+        assert got == want or (math.isnan(got) and math.isnan(want)), f"{what}: {got} != {want}"
+        return
+    assert math.isfinite(got), f"{what}: {got} != {want}"
+    assert abs(got - want) <= atol + rtol * abs(want), f"{what}: {got} != {want}"
+
+
+@SETTINGS
+@given(st.sampled_from(("common-emitter", "emitter-follower")).flatmap(
+    lambda t: st.tuples(st.just(t), st.lists(_values(t), min_size=2, max_size=5))))
+def test_every_figure_agrees_with_analyse_over_the_rule_space(drawn):
+    topology, drawn_values = drawn
+    # A cut-off and a saturated row ride in every batch, as do other shapes.
+    extremes = [values for _, values in EVERY_EXTREME[topology]]
+    designs = _designs(topology, drawn_values + extremes)
+    _compare(designs, analyse_many(topology, design_values(designs)))
+
+
+@settings(SETTINGS, max_examples=15)
+@given(st.integers(0, 2**31), st.sampled_from(("npn", "pnp")), st.floats(1e-4, 0.2))
+def test_every_figure_agrees_with_analyse_around_the_demo(seed, polarity, vpk):
+    # The use the spread analysis is for: one design's sampled builds.
+    values = spread_values(6, seed=seed)
+    demo = with_values(read_design(DEMO), {"transistor.polarity": polarity, "source.vpk": vpk})
+    designs = [with_values(demo, {k: float(values[k][i]) for k in
+                                  ("bias.r1", "bias.r2", "stage.rc", "stage.re1", "stage.re2", "stage.ce",
+                                   "stage.cin", "stage.cout", "source.rs", "load.rl", "load.cl",
+                                   "transistor.beta", "environment.ambient")})
+               for i in range(6)]
+    _compare(designs, analyse_many("common-emitter", design_values(designs)))
+
+
+def _held(designs):
+    values = design_values(designs)
+    stage = build(designs[0].topology, values)
+    op, _, _ = dc_midband(stage, values["source.rs"])
+    assert op.converged.all()
+    return _HeldRows(stage, op), values["source.vpk"]
+
+
+@settings(SETTINGS, max_examples=15)
+@given(st.sampled_from(("common-emitter", "emitter-follower")), st.sampled_from(("npn", "pnp")),
+       st.floats(-6.0, math.log10(2.0)), st.floats(0.3, 3.0))
+def test_the_short_period_stands_only_where_it_equals_the_full_one(topology, polarity, log_vpk, bias_scale):
+    # The claim of batch_transfer: where the 16-point period is taken, its
+    # harmonics are those of the full 256-point period analyse solves.  The
+    # full period is the reference (numpy's FFT of the same solved points).
+    d = default_design(topology)
+    designs = [with_values(d, {"transistor.polarity": polarity, "source.vpk": 10.0**log_vpk * k,
+                               "bias.r2": d.bias.r2 * bias_scale}) for k in (0.1, 0.3, 1.0)]
+    held, vpk = _held(designs)
+    rows = np.arange(len(designs))
+    *quick, _ = _distortion(held, rows, vpk)
+    *full, _ = _distortion(held, rows, vpk, points=256)
+    for q, f in zip(quick, full):
+        np.testing.assert_allclose(q, f, rtol=1e-6, atol=1e-9)
+
+
+def test_the_short_period_is_taken_for_the_demo_and_refused_when_clipping():
+    # The benchmark's rows (2 mV into the geophone preamp) are smooth enough
+    # for the short period; 0.5 V clips the stage, so every phase is solved.
+    demo = read_design(DEMO)
+    held, vpk = _held([demo, with_values(demo, {"source.vpk": 0.5})])
+    *quick, short = _distortion(held, np.arange(2), vpk)
+    *full, _ = _distortion(held, np.arange(2), vpk, points=256)
+    assert list(short) == [True, False]
+    for q, f in zip(quick, full):
+        np.testing.assert_allclose(q, f, rtol=1e-9, atol=1e-12)
+    assert full[0][1] > 0.05  # a clipped sine: several per cent of harmonics (common practice)
+
+
+def test_one_row_without_an_operating_point_does_not_spoil_the_others():
+    demo = read_design(DEMO)
+    bad = with_values(demo, {"stage.re1": 1e-300})  # refused by analyse (tests/test_solve_acceptance.py)
+    designs = [demo, bad, with_values(demo, {"transistor.beta": 300.0})]
+    got = analyse_many("common-emitter", design_values(designs))
+    assert list(got["converged"]) == [True, False, True]
+    _compare(designs, got)
+    alone = analyse_many("common-emitter", design_values([designs[0], designs[2]]))
+    for key in QUICK_FIGURES + LARGE_FIGURES:
+        np.testing.assert_allclose(got[key][[0, 2]], alone[key], rtol=1e-9, err_msg=key)
+
+
+def test_scalars_broadcast_and_a_missing_key_is_named():
+    demo = read_design(DEMO)
+    values = {k: float(v[0]) for k, v in design_values([demo]).items()}
+    values["transistor.beta"] = np.array([150.0, 250.0])
+    got = analyse_many("common-emitter", values, large_signal=False)
+    assert got["ic"].shape == (2,) and np.isnan(got["thd"]).all()
+    assert got["ic"][1] > got["ic"][0]  # more β, more collector current (common practice)
+    del values["transistor.theta_ja"]
+    with pytest.raises(DesignError, match="transistor.theta_ja"):
+        analyse_many("common-emitter", values)
