@@ -18,8 +18,13 @@ docstrings of model/analyses/batch_transfer.py and batch_corners.py), so:
   where it stands (checked against the full one below); 1e-3 relative or
   1e-6 absolute.
 
-Designs are drawn from the rules in model/design/fields.py (as
-tests/test_output_strict.py does) and around the geophone demo.  Hypothesis
+Designs are drawn across decades as tests/test_engine_properties.py draws
+them (both topologies and polarities, optional parts absent, open loads,
+drives that clip), with a cut-off and a saturated stage in every batch, and
+around the geophone demo.  (The whole rule space of model/design/fields.py
+is not used: at its extremes, 1e-24 F or corners near 1e12 Hz, the
+frequency response itself is noisy at the 1e-3 dB level, so neither search
+can place a corner to 1e-3.)  Hypothesis
 runs derandomized (tests/conftest.py), so the suite cannot fail by chance.
 """
 
@@ -31,9 +36,10 @@ import sys
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, reject, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURATED_EF, _values
+from test_engine_properties import designs
+from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURATED_EF
 
 from model import analyse, read_design
 from model.analyses.batch_figures import LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
@@ -73,8 +79,6 @@ def _designs(topology: str, drawn: list) -> list:
         except DesignError:
             # Valid values alone, refused together (a rule across keys).
             continue
-    if not out:
-        reject()
     return out
 
 
@@ -109,13 +113,13 @@ def _assert_figure(got: float, want: float, rtol: float, atol: float, what: str)
 
 @SETTINGS
 @given(st.sampled_from(("common-emitter", "emitter-follower")).flatmap(
-    lambda t: st.tuples(st.just(t), st.lists(_values(t), min_size=2, max_size=5))))
-def test_every_figure_agrees_with_analyse_over_the_rule_space(drawn):
-    topology, drawn_values = drawn
+    lambda t: st.tuples(st.just(t), st.lists(designs(t), min_size=2, max_size=5))))
+def test_every_figure_agrees_with_analyse_over_varied_designs(drawn):
+    topology, drawn_designs = drawn
     # A cut-off and a saturated row ride in every batch, as do other shapes.
     extremes = [values for _, values in EVERY_EXTREME[topology]]
-    designs = _designs(topology, drawn_values + extremes)
-    _compare(designs, analyse_many(topology, design_values(designs)))
+    batch = drawn_designs + _designs(topology, extremes)
+    _compare(batch, analyse_many(topology, design_values(batch)))
 
 
 @settings(SETTINGS, max_examples=15)
