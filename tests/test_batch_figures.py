@@ -36,7 +36,7 @@ import sys
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 from test_engine_properties import designs
 from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURATED_EF
@@ -124,6 +124,10 @@ def test_every_figure_agrees_with_analyse_over_varied_designs(drawn):
 
 @settings(SETTINGS, max_examples=15)
 @given(st.integers(0, 2**31), st.sampled_from(("npn", "pnp")), st.floats(1e-4, 0.2))
+# Row 1's saturation edge lies inside the first fine step of transfer.py's
+# cell, so analyse reports that step's inner end, 9 mV short of the edge's
+# own excursion; analyse_many must report the same.
+@example(seed=8735, polarity="npn", vpk=0.125)
 def test_every_figure_agrees_with_analyse_around_the_demo(seed, polarity, vpk):
     # The use the spread analysis is for: one design's sampled builds.
     values = spread_values(6, seed=seed)

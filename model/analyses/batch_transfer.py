@@ -199,23 +199,24 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc, span):
         probe[t] = _next_probe(a_e[t], a_w[t], b_e[t], b_w[t], rest[t], full[t])
         # A bracket as narrow as floats allow and still unsettled: handed on.
         done[t[np.abs(b_e[t] - a_e[t]) <= 1e-14 * full[t]]] = True
+    # transfer.py searches both sides again out to full once either side's
+    # edge lies beyond its first span.
+    span = np.minimum(span, _SPAN_PER_VOLT * vcc)
+    reach = np.repeat(np.where((edge.reshape(-1, 2) > span[:, None]).any(axis=1), _SPAN_PER_VOLT * vcc, span), 2)
     inside = np.flatnonzero(np.isfinite(edge))
     if inside.size:
-        reach = np.repeat(np.minimum(span, _SPAN_PER_VOLT * vcc), 2)[inside]
-        edge_out[inside] = _as_transfer(held, lane_row[inside], direction[inside], edge[inside], reach, full[inside])
+        edge_out[inside] = _as_transfer(held, lane_row[inside], direction[inside], edge[inside], reach[inside])
     outs = edge_out.reshape(-1, 2)
     up = np.maximum(np.fmax(outs[:, 0], outs[:, 1]), 0.0)
     down = np.maximum(-np.fmin(outs[:, 0], outs[:, 1]), 0.0)
     return up, down, np.isfinite(outs).all(axis=1)
 
 
-def _as_transfer(held: _HeldRows, rows, direction, edge, span, full):
+def _as_transfer(held: _HeldRows, rows, direction, edge, reach):
     """The output excursion (V) transfer.py reports for edges at |EMF| ``edge``
-    (V): its coarse grid (span·_GRID out from rest, span widened to ``full``
-    if the edge lies beyond), its _FINE points across the coarse cell that
-    holds the edge, and its extrapolation from the last (up to three)
-    active ones, replayed on those same points."""
-    reach = np.where(span > edge, span, full)
+    (V): its coarse grid (reach·_GRID out from rest), its _FINE points across
+    the coarse cell that holds the edge, and its extrapolation from the last
+    (up to three) active ones, replayed on those same points."""
     outer = np.argmax(reach[:, None] * _GRID[None, 1:] > edge[:, None], axis=1) + 1
     # np.linspace(start, stop, _FINE) as numpy computes it: k·step + start.
     start, stop = direction * (reach * _GRID[outer - 1]), direction * (reach * _GRID[outer])
