@@ -15,7 +15,11 @@ Illinois regula falsi on log10(|av|⁻²·av_mid² − 1), which is linear in lo
 for a one-pole roll-off, to a bracket of _WIDTH decade, ending with the same
 linear interpolation in dB.  With one crossing in corner_search's cell both
 brackets hold it, so the two answers differ by at most 5.2e-5 + _WIDTH
-decade, 1.3e-4 relative.  A row whose passband point is not clearly inside
+decade, 1.3e-4 relative.  That the crossing bracketed is corner_search's
+(the first one out from the passband on its grid) assumes the gain does not
+dip below −3 dB and recover between the passband point and the bracket;
+such a dip was only met at the extremes of the rule space, near 1e12 Hz,
+where the solve itself is noisy at the 1e-3 dB level.  A row whose passband point is not clearly inside
 the passband (within 0.29·|av_mid| of the midband gain, so that the point
 nearest it is inside as well), or whose search does not settle, is handed to
 frequency_response itself.  Every round is one complex solve of every row
@@ -73,13 +77,11 @@ def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband,
     hi = np.minimum(np.maximum(np.ceil(np.log10(est_high)) + 1, lo + 1), _HIGHEST_DECADE)
     x_low, x_high = np.log10(est_low), np.log10(np.minimum(est_high, 10.0**_HIGHEST_DECADE))
     centre = np.clip(0.5 * (np.maximum(x_low, lo) + np.minimum(x_high, hi)), lo, hi)
-    # One solve: the signal frequency, the passband point and two probes a side.
-    probes = np.stack([np.log10(signal_freq), centre, x_low + _PROBE, x_low - _PROBE,
-                       x_high - _PROBE, x_high + _PROBE], axis=1)
-    probes[:, 2:] = np.clip(probes[:, 2:], _LOWEST_DECADE, _HIGHEST_DECADE)
-    freq = 10.0**probes
-    freq[:, 0] = signal_freq
-    g = at(np.arange(stage.net.batch), freq)
+    # One solve: the signal frequency, the passband point and two probes a
+    # side (decades: the nearer to the passband first).
+    probes = np.stack([centre, x_low + _PROBE, x_low - _PROBE, x_high - _PROBE, x_high + _PROBE], axis=1)
+    probes[:, 1:] = np.clip(probes[:, 1:], _LOWEST_DECADE, _HIGHEST_DECADE)
+    g = at(np.arange(stage.net.batch), np.column_stack([signal_freq, 10.0**probes]))
     gain_at_freq = np.abs(g[:, 0])
     with np.errstate(invalid="ignore"):
         passband = (reference > 0) & (np.abs(g[:, 1] - midband) <= _NEAR_MIDBAND * reference)
@@ -87,7 +89,7 @@ def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband,
     f_low, f_high = np.full(stage.net.batch, np.nan), np.full(stage.net.batch, np.nan)
     settled = np.zeros(stage.net.batch, dtype=bool)
     if rows.size:
-        lanes = _Lanes(rows, probes[rows], np.abs(g[rows]), reference[rows])
+        lanes = _Lanes(rows, probes[rows], np.abs(g[rows, 1:]), reference[rows])
         corner, ok = lanes.search(at)
         f_low[rows], f_high[rows] = corner[:, 0], corner[:, 1]
         settled[rows] = ok
@@ -165,19 +167,17 @@ class _Lanes:
     corner (searched downward from the passband point), side 1 the upper."""
 
     def __init__(self, rows, probes, magnitude, reference):
+        """probes (rows, 5) decades and their |av| (V/V); reference |av_mid|."""
         self.rows, self.reference = np.repeat(rows, 2), np.repeat(reference, 2)
         self.down = np.tile([True, False], rows.size)
         self.limit = np.where(self.down, _LOWEST_DECADE, _HIGHEST_DECADE).astype(float)
         f = self._f(magnitude, reference[:, None])
-        x_in = probes[:, [1, 1]].ravel()
-        f_in = f[:, [1, 1]].ravel()
-        # The probes outward of the passband point, nearer one first.
-        near = probes[:, [2, 4]].ravel(), f[:, [2, 4]].ravel(), magnitude[:, [2, 4]].ravel()
-        far = probes[:, [3, 5]].ravel(), f[:, [3, 5]].ravel(), magnitude[:, [3, 5]].ravel()
-        self.a, self.fa = x_in, f_in
-        self.b, self.fb = np.full(x_in.size, np.nan), np.full(x_in.size, np.nan)
-        self.mb = np.full(x_in.size, np.nan)
-        self.ma = np.repeat(magnitude[:, 1], 2)
+        # Each lane starts inside at the passband point (column 0); then the
+        # probes outward of it, nearer one first (columns 1, 2 low; 3, 4 high).
+        self.a, self.fa, self.ma = (np.repeat(q[:, 0], 2) for q in (probes, f, magnitude))
+        self.b, self.fb, self.mb = (np.full(self.a.size, np.nan) for _ in range(3))
+        near = (q[:, [1, 3]].ravel() for q in (probes, f, magnitude))
+        far = (q[:, [2, 4]].ravel() for q in (probes, f, magnitude))
         for x, fx, mx in (near, far):
             self.take(np.arange(x.size), x, fx, mx)
 
@@ -187,6 +187,7 @@ class _Lanes:
             return np.log10(np.maximum((reference / np.maximum(magnitude, 1e-300)) ** 2 - 1.0, 1e-12))
 
     def outward(self, x, of):
+        """Whether points x of lanes ``of`` lie past a, away from the passband."""
         return np.where(self.down[of], x < self.a[of], x > self.a[of])
 
     def take(self, lanes, x, fx, mx):
