@@ -42,6 +42,7 @@ from test_engine_properties import designs
 from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURATED_EF
 
 from model import analyse, read_design
+from model.analyses import transfer
 from model.analyses.batch_figures import LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
 from model.analyses.batch_transfer import _distortion, _HeldRows
 from model.analyses.figures import dc_midband, design_values
@@ -93,12 +94,31 @@ def _compare(designs: list, got: dict) -> None:
             continue
         assert got["converged"][row], row
         assert got["region"][row] == want.region, row
+        unsolved_period = _period_unsolved(d)
         for key in QUICK_FIGURES + LARGE_FIGURES:
+            if key in ("thd", "hd2", "hd3") and unsolved_period:
+                # analyse takes the samples a Newton cut short left (their
+                # values depend on the batch they ran in); analyse_many says NaN.
+                assert math.isnan(got[key][row]), f"row {row} {key}"
+                continue
             rtol, atol = TOLERANCE[key]
             ref = getattr(want, key)
             if key in FLOORS and math.isfinite(ref):
                 atol = max(atol, 1e-9 * abs(getattr(want, FLOORS[key])))
             _assert_figure(got[key][row], ref, rtol, atol, f"row {row} {key} ({d.topology})")
+
+
+def _period_unsolved(d) -> bool:
+    """Whether some point of d's distortion period fails to converge, solved
+    the way transfer.py solves it (one call, its own Newton starts)."""
+    if d.source.vpk <= 0:
+        return False
+    values = design_values([d])
+    stage = build(d.topology, values)
+    op, _, _ = dc_midband(stage, values["source.rs"])
+    held = transfer._held(stage, op)
+    wave, _ = transfer._period(d.source.vpk)
+    return not held.solve(wave, start=transfer._predictor(stage, op, held)(wave)).converged.all()
 
 
 def _assert_figure(got: float, want: float, rtol: float, atol: float, what: str) -> None:
@@ -114,6 +134,12 @@ def _assert_figure(got: float, want: float, rtol: float, atol: float, what: str)
 @SETTINGS
 @given(st.sampled_from(("common-emitter", "emitter-follower")).flatmap(
     lambda t: st.tuples(st.just(t), st.lists(designs(t), min_size=2, max_size=5))))
+# A follower driven hard into saturation: some points of its distortion
+# period do not converge (found by a randomized run).
+@example(("emitter-follower", [with_values(default_design("emitter-follower"), {
+    "supply.vcc": 13.05, "bias.r1": 299.87, "bias.r2": 213.7e3, "stage.rc": 0.0, "stage.re": 8310.3,
+    "stage.cout": 1e-4, "source.rs": 0.0, "source.vpk": 1.7783, "load.rl": 572.6e3, "load.cl": 0.0,
+    "transistor.beta": 796.1, "transistor.va": 197.0, "transistor.i_s": 1e-16, "environment.ambient": 13.0})]))
 def test_every_figure_agrees_with_analyse_over_varied_designs(drawn):
     topology, drawn_designs = drawn
     # A cut-off and a saturated row ride in every batch, as do other shapes.

@@ -31,7 +31,8 @@ period: for a waveform that smooth they fall off geometrically, so what the
 short period folds onto harmonics 1–3 or leaves out above its Nyquist bin is
 below 1e-9 of the fundamental (tests/test_batch_figures.py checks the two
 against each other and against analyse).  Every other row is solved at all
-FFT_POINTS phases, as transfer.py does.
+FFT_POINTS phases, as transfer.py does.  A period with a point that does
+not converge gives NaN (see _ratios), where transfer.py reports a number.
 """
 
 from __future__ import annotations
@@ -294,9 +295,9 @@ def _distortion(held: _HeldRows, rows, vpk, points: int = QUICK_POINTS):
     rows), of every phase elsewhere.  points=FFT_POINTS solves every phase
     of every row, as transfer.py does."""
     wave, index = _period_of(points) if points < FFT_POINTS else _period(1.0)
-    out, _, active, _ = held.solve(rows, vpk[:, None] * wave)
+    out, _, active, converged = held.solve(rows, vpk[:, None] * wave)
     spectrum = np.abs(np.fft.rfft(out[:, index], axis=-1))
-    thd, hd2, hd3 = _ratios(spectrum, points)
+    thd, hd2, hd3 = _ratios(spectrum, points, converged.all(axis=1))
     if points == FFT_POINTS:
         return thd, hd2, hd3, np.zeros(rows.size, dtype=bool)
     tail = spectrum[:, points // 4 + 1 :].max(axis=1)
@@ -304,8 +305,9 @@ def _distortion(held: _HeldRows, rows, vpk, points: int = QUICK_POINTS):
     slow = np.flatnonzero(~short)
     if slow.size:
         wave, index = _period(1.0)
-        out = held.solve(rows[slow], vpk[slow, None] * wave)[0]
-        thd[slow], hd2[slow], hd3[slow] = _ratios(np.abs(np.fft.rfft(out[:, index], axis=-1)), FFT_POINTS)
+        out, _, _, converged = held.solve(rows[slow], vpk[slow, None] * wave)
+        spectrum = np.abs(np.fft.rfft(out[:, index], axis=-1))
+        thd[slow], hd2[slow], hd3[slow] = _ratios(spectrum, FFT_POINTS, converged.all(axis=1))
     return thd, hd2, hd3, short
 
 
@@ -322,11 +324,14 @@ def _period_of(points: int):
     return wave, folded + quarter
 
 
-def _ratios(spectrum, points: int):
-    """transfer._harmonics on rows of |rfft| of ``points`` samples each."""
+def _ratios(spectrum, points: int, solved):
+    """transfer._harmonics on rows of |rfft| of ``points`` samples each; NaN
+    where not every sample was ``solved`` (converged): transfer.py takes such
+    a period's samples as they are, and what a Newton cut short at MAX_ITER
+    left there depends on the batch it ran in, so it is no figure at all."""
     fundamental = spectrum[:, 1]
     zero = fundamental == 0
     with np.errstate(divide="ignore", invalid="ignore"):
         thd = np.sqrt(np.sum(spectrum[:, 2 : points // 2] ** 2, axis=1)) / fundamental
         hd2, hd3 = spectrum[:, 2] / fundamental, spectrum[:, 3] / fundamental
-    return tuple(np.where(zero, 0.0, x) for x in (thd, hd2, hd3))
+    return tuple(np.where(solved, np.where(zero, 0.0, x), np.nan) for x in (thd, hd2, hd3))
