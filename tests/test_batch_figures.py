@@ -63,11 +63,6 @@ TOLERANCE = {k: EXACT for k in QUICK_FIGURES + ("gain_at_freq",)}
 TOLERANCE.update(swing_up=(1e-3, 1e-3), swing_down=(1e-3, 1e-3),
                  thd=(1e-3, 1e-6), hd2=(1e-3, 1e-6), hd3=(1e-3, 1e-6),
                  f_low=(1e-3, 0.0), f_high=(1e-3, 0.0), bandwidth=(1e-3, 0.0))
-#: Figures that are a difference of two others, or a current that a
-#: cut-off stage carries only as leakage: a tiny value next to big terms.
-#: Their absolute floor is what 1e-9 of the terms they come from allows.
-FLOORS = {"ib": "ic", "ic": "i_supply", "vce": "vc", "vbe": "vb", "ve": "vb", "p_transistor": "p_supply",
-          "tj": "tj", "bandwidth": "f_high"}
 
 EVERY_EXTREME = {"common-emitter": (CUT_OFF_CE, SATURATED_CE), "emitter-follower": (CUT_OFF_EF_PNP, SATURATED_EF)}
 
@@ -102,10 +97,7 @@ def _compare(designs: list, got: dict) -> None:
                 assert math.isnan(got[key][row]), f"row {row} {key}"
                 continue
             rtol, atol = TOLERANCE[key]
-            ref = getattr(want, key)
-            if key in FLOORS and math.isfinite(ref):
-                atol = max(atol, 1e-9 * abs(getattr(want, FLOORS[key])))
-            _assert_figure(got[key][row], ref, rtol, atol, f"row {row} {key} ({d.topology})")
+            _assert_figure(got[key][row], getattr(want, key), rtol, atol, f"row {row} {key} ({d.topology})")
 
 
 def _period_unsolved(d) -> bool:
