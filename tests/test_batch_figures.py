@@ -209,13 +209,15 @@ def test_one_row_without_an_operating_point_does_not_spoil_the_others():
         np.testing.assert_allclose(got[key][[0, 2]], alone[key], rtol=1e-9, err_msg=key)
 
 
-def test_scalars_broadcast_and_a_missing_key_is_named():
+def test_scalars_broadcast_and_bad_input_is_named():
     demo = read_design(DEMO)
     values = {k: float(v[0]) for k, v in design_values([demo]).items()}
     values["transistor.beta"] = np.array([150.0, 250.0])
     got = analyse_many("common-emitter", values, large_signal=False)
     assert got["ic"].shape == (2,) and np.isnan(got["thd"]).all()
     assert got["ic"][1] > got["ic"][0]  # more β, more collector current (common practice)
+    with pytest.raises(DesignError, match="topology = 'cascode'"):
+        analyse_many("cascode", values)
     del values["transistor.theta_ja"]
     with pytest.raises(DesignError, match="transistor.theta_ja"):
         analyse_many("common-emitter", values)

@@ -20,6 +20,7 @@ from model.analyses.figures import _KEYS, dc_midband
 from model.analyses.power import dissipation
 from model.analyses.transfer import ACTIVE, region_of
 from model.circuit.topologies import TRANSISTOR, build, shape_of
+from model.design.fields import FIELDS, TOPOLOGIES
 from model.errors import DesignError
 
 #: The figures of every row: DC, midband, dissipation and tj.
@@ -46,6 +47,8 @@ def analyse_many(topology: str, values: dict, *, large_signal: bool = True) -> d
     conventions (forward sense, swing 0 off forward-active, f_low 0 when flat
     to DC, f_high inf without an upper corner, both NaN without a passband).
     """
+    if topology not in TOPOLOGIES:
+        raise DesignError("topology", topology, FIELDS["topology"].rules[TOPOLOGIES[0]].text)
     missing = [k for k in (*_KEYS, "transistor.sign") if k not in values]
     if missing:
         raise DesignError(missing[0], None, "is needed by analyse_many (see design_values)")

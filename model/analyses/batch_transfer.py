@@ -162,7 +162,7 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc, span):
     """(up, down, settled) for rows forward-active at rest: two lanes a row,
     the EMF going down and up from 0 V, each bracketing its edge and then
     narrowing it by Illinois regula falsi on the margin; then read as
-    transfer.py's grids would (see _on_transfer_grid)."""
+    transfer.py's grids would (see _as_transfer)."""
     lane_row = np.repeat(rows, 2)
     direction = np.tile([-1.0, 1.0], rows.size)
     full = np.repeat(_SPAN_PER_VOLT * vcc, 2)

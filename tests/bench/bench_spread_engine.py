@@ -97,7 +97,7 @@ def main() -> None:
     quick, quick_s = _timed(lambda: analyse_many("common-emitter", quick_values, large_signal=False))
     full, full_s = _timed(lambda: analyse_many("common-emitter", full_values))
     designs = designs_of(full_values, range(loop_n))
-    _, loop_s = _timed(lambda: [analyse(d) for d in designs])
+    loop, loop_s = _timed(lambda: [analyse(d) for d in designs])
     print(f"spread_quick_rows: {quick_n} rows, {int(quick['converged'].sum())} converged")
     print(f"spread_quick_wall: {quick_s:.3f} s")
     print(f"spread_full_rows: {full_n} rows, {int(full['converged'].sum())} converged")
@@ -109,6 +109,10 @@ def main() -> None:
     print(f"analyse_loop_wall: {loop_s:.3f} s ({1e3 * loop_s / loop_n:.2f} ms a row)")
     print(f"full_over_loop_per_row: {(loop_s / loop_n) / (full_s / full_n):,.0f} x")
     print(f"quick_over_loop_per_row: {(loop_s / loop_n) / (quick_s / quick_n):,.0f} x")
+    for key in ("ic", "av_source", "swing_up", "swing_down", "thd", "f_low", "f_high", "gain_at_freq"):
+        want = np.array([getattr(f, key) for f in loop])
+        worst = np.max(np.abs(full[key][:loop_n] - want) / np.abs(want))
+        print(f"loop_vs_batch_{key}_worst_relative: {worst:.1e}")
 
 
 if __name__ == "__main__":
