@@ -12,8 +12,11 @@ docstrings of model/analyses/batch_transfer.py and batch_corners.py), so:
 * f_low, f_high: both searches end inside a bracket around the one crossing,
   analyse's 5.2e-5 decade wide and ours 1e-6, so they can differ by at most
   10**(5.3e-5) − 1 ≈ 1.3e-4 relative; held to 1e-3.
-* swing: both are the zero of the same smooth margin, analyse's to the error
-  of a quadratic over 1/47 of a coarse cell; held to 1e-3 relative or 1 mV.
+* swing: the edge found places it on analyse's own grids, where analyse's
+  extrapolation is replayed on the same points; they differ by the solves'
+  rounding unless an edge lies within the search's 1e-10 of a grid point.
+  Held to 1e-3 relative or 1 mV (analyse's own extrapolation can be 0.7 %
+  from the edge, see batch_transfer).
 * thd, hd2, hd3: the full period solved as analyse does, or the 16-point one
   where it stands (checked against the full one below); 1e-3 relative or
   1e-6 absolute.
