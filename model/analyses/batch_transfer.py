@@ -174,6 +174,8 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc, span):
     b_e, b_w = np.full(lanes, np.nan), np.full(lanes, np.nan)
     kept = np.zeros(lanes, dtype=np.int8)  # the end regula falsi kept last round: 1 a, −1 b
     edge_out, edge = np.full(lanes, np.nan), np.full(lanes, np.nan)
+    lane_span = np.repeat(np.minimum(span, _SPAN_PER_VOLT * vcc), 2)
+    by_cell = np.full(lanes, np.inf)  # the reach a side was settled on by its fine step
     done = np.zeros(lanes, dtype=bool)
     guess = _first_guess(held, op, lane_row, direction)
     probe = np.clip(np.where(np.isfinite(guess), guess, full), 1e-9 * full, full)
@@ -197,13 +199,23 @@ def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc, span):
         kept[t] = np.where(np.isnan(b_e[t]), 0, -1)
         a_e[t], a_w[t] = probe[t], margin[inner]
         t = todo[~finished]
+        # Bracketed inside one fine step of transfer.py's grid: that is all
+        # its extrapolation needs (see _as_transfer).
+        reach = np.where(a_e[t] > lane_span[t], full[t], lane_span[t])
+        held_in = ~np.isnan(b_e[t]) & _cell_holds(direction[t], a_e[t], b_e[t], reach)
+        edge[t[held_in]], by_cell[t[held_in]], done[t[held_in]] = a_e[t[held_in]], reach[held_in], True
+        t = t[~held_in]
         probe[t] = _next_probe(a_e[t], a_w[t], b_e[t], b_w[t], rest[t], full[t])
         # A bracket as narrow as floats allow and still unsettled: handed on.
         done[t[np.abs(b_e[t] - a_e[t]) <= 1e-14 * full[t]]] = True
     # transfer.py searches both sides again out to full once either side's
-    # edge lies beyond its first span.
-    span = np.minimum(span, _SPAN_PER_VOLT * vcc)
-    reach = np.repeat(np.where((edge.reshape(-1, 2) > span[:, None]).any(axis=1), _SPAN_PER_VOLT * vcc, span), 2)
+    # edge lies beyond its first span; a side settled on the first span's
+    # grid must then hold on the full one too, else the row is handed on.
+    wide = np.repeat((edge.reshape(-1, 2) > lane_span.reshape(-1, 2)).any(axis=1), 2)
+    reach = np.where(wide, full, lane_span)
+    recheck = np.flatnonzero(wide & (by_cell < full))
+    lost = ~_cell_holds(direction[recheck], a_e[recheck], b_e[recheck], full[recheck])
+    edge[recheck[lost]] = np.nan
     inside = np.flatnonzero(np.isfinite(edge))
     if inside.size:
         edge_out[inside] = _as_transfer(held, lane_row[inside], direction[inside], edge[inside], reach[inside])
@@ -218,17 +230,34 @@ def _as_transfer(held: _HeldRows, rows, direction, edge, reach):
     (V): its coarse grid (reach·_GRID out from rest), its _FINE points across
     the coarse cell that holds the edge, and its extrapolation from the last
     (up to three) active ones, replayed on those same points."""
-    outer = np.argmax(reach[:, None] * _GRID[None, 1:] > edge[:, None], axis=1) + 1
-    # np.linspace(start, stop, _FINE) as numpy computes it: k·step + start.
-    start, stop = direction * (reach * _GRID[outer - 1]), direction * (reach * _GRID[outer])
-    step = (stop - start) / (_FINE - 1)
-    last = np.clip(np.floor((edge - np.abs(start)) / np.abs(step)), 0, _FINE - 2).astype(int)
-    last -= (direction * (last * step + start) > edge) & (last > 0)
-    last += (direction * ((last + 1) * step + start) <= edge) & (last < _FINE - 2)
+    start, step, last = _fine_cell(direction, edge, reach)
     picks = np.maximum(last[:, None] + np.arange(-2, 1), 0)
     emf = picks * step[:, None] + start[:, None]
     out, margin, _, _ = held.solve(rows, emf)
     return _extrapolated(emf, margin, out, np.minimum(last + 1, 3), (1 * step + start) - start)
+
+
+def _fine_cell(direction, edge, reach):
+    """Where |EMF| ``edge`` (V) lies on transfer.py's grids: the start (V) and
+    step (V) of the fine grid across the coarse cell that holds it (signed
+    along ``direction``) and the index of the last fine point not past it."""
+    outer = np.argmax(reach[:, None] * _GRID[None, 1:] > edge[:, None], axis=1) + 1
+    # np.linspace(start, stop, _FINE) as numpy computes it: k·step + start.
+    start, stop = direction * (reach * _GRID[outer - 1]), direction * (reach * _GRID[outer])
+    step = (stop - start) / (_FINE - 1)
+    with np.errstate(invalid="ignore"):
+        last = np.clip(np.floor((edge - np.abs(start)) / np.abs(step)), 0, _FINE - 2).astype(int)
+    last -= (direction * (last * step + start) > edge) & (last > 0)
+    last += (direction * ((last + 1) * step + start) <= edge) & (last < _FINE - 2)
+    return start, step, last
+
+
+def _cell_holds(direction, a, b, reach):
+    """Whether every |EMF| between a (included) and b lies in one fine step of
+    transfer.py's grids, so an edge bracketed by them has its last active
+    fine point settled."""
+    start, step, last = _fine_cell(direction, a, reach)
+    return b < direction * ((last + 1) * step + start)
 
 
 def _extrapolated(x, m, o, count, step):
