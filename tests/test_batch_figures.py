@@ -36,6 +36,7 @@ from __future__ import annotations
 import math
 import pathlib
 import sys
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -47,7 +48,7 @@ from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURAT
 from model import analyse, read_design
 from model.analyses import transfer
 from model.analyses.batch_figures import LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
-from model.analyses.batch_transfer import _distortion, _HeldRows
+from model.analyses.batch_transfer import _distortion, _HeldRows, large_signal_many
 from model.analyses.figures import dc_midband, design_values
 from model.circuit.topologies import build
 from model.design.stage import default_design, with_values
@@ -198,6 +199,33 @@ def test_the_short_period_is_taken_for_the_demo_and_refused_when_clipping():
     for q, f in zip(quick, full):
         np.testing.assert_allclose(q, f, rtol=1e-9, atol=1e-12)
     assert full[0][1] > 0.05  # a clipped sine: several per cent of harmonics (common practice)
+
+
+@pytest.mark.parametrize("topology", ["common-emitter", "emitter-follower"])
+@pytest.mark.parametrize("polarity", ["npn", "pnp"])
+@pytest.mark.parametrize("shrink", [1.0, 0.1, 0.02])
+def test_a_first_span_short_of_an_edge_is_widened_as_transfer_does(topology, polarity, shrink):
+    # transfer.py searches both sides again out to ±4·vcc when either edge
+    # lies beyond its first span, which changes the grid the other side's
+    # edge is extrapolated on; a short span forces it (analyse's own span
+    # almost never is short): at 0.1 of it the demo's saturation edge lies
+    # inside the first span and its cut-off edge beyond, at 0.02 both lie
+    # beyond.  transfer.swing_and_distortion is the reference.
+    base = read_design(DEMO) if topology == "common-emitter" else default_design(topology)
+    base = with_values(base, {"transistor.polarity": polarity})
+    designs = [base, with_values(base, {"transistor.beta": 3.0 * base.transistor.beta})]
+    values = design_values(designs)
+    stage = build(topology, values)
+    op, _, mid = dc_midband(stage, values["source.rs"])
+    vcc, vpk = values["supply.vcc"], values["source.vpk"]
+    span = shrink * (3.0 * vcc / np.abs(mid.av_source) + 1.0 + values["source.rs"] / mid.rin)
+    got = large_signal_many(stage, op, vcc, vpk, np.ones(2, dtype=bool), span)
+    for row in range(2):
+        one = transfer.swing_and_distortion(replace(stage, net=stage.net.take(np.array([row]))),
+                                            op.take(np.array([row])), vcc[row], vpk[row], span[row])
+        # The same points solved in other batches: rounding apart.
+        assert got.swing_up[row] == pytest.approx(one.swing_up, rel=1e-9)
+        assert got.swing_down[row] == pytest.approx(one.swing_down, rel=1e-9)
 
 
 def test_one_row_without_an_operating_point_does_not_spoil_the_others():
