@@ -163,7 +163,7 @@ def test_a_marker_stands_in_its_column_and_is_explained():
     assert abs(plot[0].index("L") - column) <= 1
     dotted = [row[plot[0].index("L")] for row in plot[1:-1]]
     assert set(dotted) == {"┊"}  # the floor line takes the bottom row
-    assert f"L f_low {format_si(2.5, 's', 2)}" in rows[-1]
+    assert f"L f_low {format_si(2.5, 's')}" in rows[-1]
 
 
 def test_a_spot_symbol_takes_its_cell():

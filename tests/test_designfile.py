@@ -262,7 +262,9 @@ def test_demo_loads_and_writes_every_table(path):
     raw = tomllib.loads(path.read_text(encoding="utf-8"))
     assert raw["format"] == 1
     assert raw["name"] and raw["notes"].strip()
-    assert list(raw)[4:] == list(TABLES)
+    # Every design table in order, then the optional spread tables if any.
+    assert list(raw)[4:4 + len(TABLES)] == list(TABLES)
+    assert set(list(raw)[4 + len(TABLES):]) <= {"tolerance", "spec"}
     written = {f"{t}.{k}" for t in TABLES for k in raw[t]} | {"name", "topology", "notes"}
     assert written == set(keys_for(design.topology))
 

@@ -36,9 +36,9 @@ async def test_wide_screen_shows_the_bode_plot_with_its_corners(preamp):
         shown = picture(app)
         assert "Bode" in shown and _has_curve(shown)
         # The legend names each mark in words, with the corner values
-        # (two significant figures, as the chart's legend writes them).
-        assert f"L f_low {format_si(fig.f_low, 'Hz', 2)}" in shown
-        assert f"H f_high {format_si(fig.f_high, 'Hz', 2)}" in shown
+        # (three significant figures, as the Readout writes them).
+        assert f"L f_low {format_si(fig.f_low, 'Hz')}" in shown
+        assert f"H f_high {format_si(fig.f_high, 'Hz')}" in shown
         assert "Hz" in shown and "dB" in shown and "°" in shown  # axes carry units
 
 
@@ -78,10 +78,10 @@ async def test_picture_follows_the_preview(preamp):
         await settle(pilot)
         candidate = analyse(with_values(app.design, {"stage.ce": 4.7e-6}))
         assert candidate.f_low > 2 * committed.f_low
-        assert f"L f_low {format_si(candidate.f_low, 'Hz', 2)}" in picture(app)
+        assert f"L f_low {format_si(candidate.f_low, 'Hz')}" in picture(app)
         await pilot.press("escape")
         await settle(pilot)
-        assert f"L f_low {format_si(committed.f_low, 'Hz', 2)}" in picture(app)
+        assert f"L f_low {format_si(committed.f_low, 'Hz')}" in picture(app)
 
 
 async def test_narrow_screen_switches_between_readout_pictures_and_ledger(preamp):
@@ -137,4 +137,4 @@ async def test_results_arriving_under_a_dialog_are_kept(preamp, size):
         candidate = analyse(with_values(app.design, {"stage.ce": 4.7e-6}))
         assert format_si(candidate.f_low, "Hz") in region_text(app, "#readout-box")
         if size == LARGE:
-            assert f"L f_low {format_si(candidate.f_low, 'Hz', 2)}" in picture(app)
+            assert f"L f_low {format_si(candidate.f_low, 'Hz')}" in picture(app)

@@ -28,11 +28,12 @@ from model.errors import StageledgerError
 from model.files import ledger
 from model.files.savefile import atomic_write
 from model.files.session import DesignSession
+from model.spread.analysis import LEDGER_SAMPLES, quick_yield
 
 from .editing import Editing
-from .messages import LargeSignalReady
+from .messages import LargeSignalReady, YieldReady
 from .pictures_pane import PicturesPane
-from .readout_table import readout_table, warnings_text
+from .readout_table import PENDING, readout_table, warnings_text
 from .safe_text import internal_error, visible
 from .screens import HelpScreen, NotePrompt
 from .widgets.knobs import KnobAbandoned, Knobs
@@ -75,6 +76,7 @@ class Workbench(Editing, PicturesPane, App):
         Binding("f4", "baseline", "baseline", id="baseline"),
         Binding("f5", "cycle_series", "series", id="series", show=False),
         Binding("f6", "picture", "plot", id="picture"),
+        Binding("ctrl+g", "spread_figure", "spread figure", id="spread-figure", show=False),
         Binding("f7,ctrl+z", "undo", "undo", id="undo"),
         Binding("f8,ctrl+y", "redo", "redo", id="redo"),
         # Esc's twin: a terminal joins a lone Esc to a key typed soon after it.
@@ -94,6 +96,9 @@ class Workbench(Editing, PicturesPane, App):
         #: baseline and the note; the handlers show what its methods return.
         self.state = WorkState(design, session.figures if session else analyse(design))
         self._sweep_timer = None
+        #: Design → its Yield, for the designs with specs shown so far (a few).
+        self._yields: dict = {}
+        self._readout_rows = -1
 
     # What the state holds, by the names the app has always used.
     @property
@@ -179,20 +184,56 @@ class Workbench(Editing, PicturesPane, App):
 
     def _refresh_readout(self) -> None:
         shown, reference, shown_label, ref_label = self.state.comparison()
+        design, compared = self.state.on_show()[0], self.state.reference_design()
+        yields = None
+        if design.spec or (compared is not None and compared.spec):
+            yields = (self._yield_of(compared, True) if compared is not None else None,
+                      self._yield_of(design, shown.large_signal))
         table = readout_table(shown, reference, shown_label=shown_label, reference_label=ref_label,
-                              tj_max=self.design.transistor.tj_max)
+                              tj_max=self.design.transistor.tj_max, yields=yields)
         # The readout keeps its size from one keystroke to the next, so skip the
-        # layout pass that would otherwise follow every update.
-        self._home.query_one("#readout", Static).update(table, layout=False)
+        # layout pass that would otherwise follow every update; only the spread
+        # rows coming or going (specs on one side of a comparison) change it.
+        rows = table.plain.count("\n")
+        self._home.query_one("#readout", Static).update(table, layout=rows != self._readout_rows)
+        self._readout_rows = rows
         warnings = warnings_text(shown)
         box = self._home.query_one("#warnings", Static)
         if warnings.plain != str(box.content):
             box.update(warnings)
-        design = self.state.on_show()[0]
         if not shown.large_signal:
             self._schedule_sweep(design)
         else:
             self._schedule_picture(design, shown)
+
+    def _yield_of(self, design: Design, settled: bool):
+        """The Readout's yield of ``design``: a Yield, None without specs, or
+        PENDING until the yield worker (started once the sweeps are in, so
+        not on every keystroke) reports."""
+        if not design.spec:
+            return None
+        if design in self._yields:
+            return self._yields[design]
+        if settled:
+            self._yield_worker(design)
+        return PENDING
+
+    @work(thread=True, exclusive=True, exit_on_error=False, group="yield")
+    def _yield_worker(self, design: Design) -> None:
+        try:
+            result = quick_yield(design, LEDGER_SAMPLES)
+        except Exception:  # noqa: BLE001 - the readout then keeps "…"; the figures stand
+            return
+        self.post_message(YieldReady(design, result))
+
+    def on_yield_ready(self, message: YieldReady) -> None:
+        if not self._in_service():
+            return
+        if len(self._yields) > 32:
+            self._yields.clear()
+        self._yields[message.design] = message.result
+        if message.design in (self.state.on_show()[0], self.state.reference_design()):
+            self._refresh_readout()
 
     def _schedule_sweep(self, design: Design) -> None:
         if self._sweep_timer is not None:

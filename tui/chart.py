@@ -128,7 +128,7 @@ def _legend_items(chart: Chart, x_range, y_range) -> list[str]:
     items = [f"{s.mark or LINE_KEY} {s.label}" for s in chart.series]
     for m in chart.markers if chart.marker_legend else ():
         off = "" if _inside(chart.x, m.x, x_range) else " (off chart)"
-        items.append(f"{m.symbol} {m.label} {format_si(m.x, chart.x.unit, 2)}{off}")
+        items.append(f"{m.symbol} {m.label} {format_si(m.x, chart.x.unit)}{off}")
     for s in chart.spots:
         inside = _inside(chart.x, s.x, x_range) and _inside(chart.y, s.y, y_range)
         items.append(f"{s.symbol} {s.label}" + ("" if inside else " (off chart)"))

@@ -60,10 +60,36 @@ def _parser() -> argparse.ArgumentParser:
     hist.add_argument("file")
     hist.add_argument("--json", action="store_true")
 
+    spr = sub.add_parser("spread", help="Monte Carlo over the tolerances: spread, yield, worst cases")
+    spr.add_argument("file", help="design file (TOML) with [tolerance] and [spec] tables")
+    spr.add_argument("--samples", type=_whole("--samples", 1, MAX_SAMPLES), default=10_000, metavar="N",
+                     help=f"builds to draw (1 to {MAX_SAMPLES:,}; default 10,000)")
+    spr.add_argument("--seed", type=_whole("--seed", 0, 2**63 - 1), default=None, metavar="S",
+                     help="seed of the draw (default: a fixed seed, printed)")
+    out = spr.add_mutually_exclusive_group()
+    out.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
+    out.add_argument("--csv", action="store_true", help="one row per build: varied values, then figures")
+
     diff = sub.add_parser("diff", help="parameter and figure differences between two designs")
     diff.add_argument("a", help="FILE or FILE@N (the design after history entry N)")
     diff.add_argument("b", help="FILE or FILE@N")
     return p
+
+
+#: The most builds one spread run draws: a million would take minutes and gigabytes.
+MAX_SAMPLES = 200_000
+
+
+def _whole(flag: str, low: int, high: int):
+    def parse(text: str) -> int:
+        try:
+            n = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{flag} {text!r} must be a whole number from {low:,} to {high:,}") from None
+        if not low <= n <= high:
+            raise argparse.ArgumentTypeError(f"{flag} {n:,} must be from {low:,} to {high:,}")
+        return n
+    return parse
 
 
 def _per_decade(text: str) -> int:
@@ -93,6 +119,8 @@ def _dispatch(args) -> int:
         return subcommands.cmd_history(args.file, args.json)
     if args.command == "diff":
         return subcommands.cmd_diff(args.a, args.b)
+    if args.command == "spread":
+        return _spread(args.file, args.samples, args.seed, args.json, args.csv)
     from .launch import run
 
     return run(args.file, args.read_only)
@@ -123,8 +151,26 @@ def _response(path: str, as_csv: bool, per_decade: int) -> int:
     return 0
 
 
+def _spread(path: str, samples: int, seed: int | None, as_json: bool, as_csv: bool) -> int:
+    import model
+    from model.files import plain_json
+    from model.spread.analysis import spread_report
+    from model.spread.builds import DEFAULT_SEED
+
+    from .spread_text import render_csv, render_spread
+
+    report = spread_report(model.read_design(path), samples, DEFAULT_SEED if seed is None else seed)
+    if as_json:
+        print(plain_json.dumps(report.to_dict()))
+    elif as_csv:
+        sys.stdout.write(render_csv(report))
+    else:
+        sys.stdout.write(render_spread(report, path))
+    return 0
+
+
 #: The subcommands; anything else in first place is a design file for the workbench.
-COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff")
+COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread")
 
 
 def _workbench_parser() -> argparse.ArgumentParser:

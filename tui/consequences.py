@@ -18,6 +18,7 @@ _SHOW = {
     "rin": ("rin", "Ω"), "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"),
     "swing_down": ("swing_down", "V"), "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"),
     "p_supply": ("p_supply", "W"), "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz"),
+    "yield": ("yield", "%"),
 }
 
 
@@ -48,6 +49,8 @@ def _not_finite(key: str, value) -> str:
 def show_value(key: str, value) -> str:
     """A design value with its unit, e.g. ``stage.rc`` 6800 → "6.80 kΩ"."""
     field = FIELDS.get(key)
+    if isinstance(value, list):  # a tolerance or spec range, as set writes it
+        return "..".join(show_value(key, v) if isinstance(v, str) else f"{v:g}" for v in value)
     if isinstance(value, str):
         return visible(value)  # a name or notes: text from the file, shown on a terminal
     if field is None or not field.unit or field.unit == "°C":
@@ -69,6 +72,8 @@ def relative_change(before, after, key: str = "") -> str:
         return f"{signed(20.0 * math.log10(abs(after) / abs(before)), '+.2f')} dB"
     if key == "tj":  # a per cent of a Celsius reading means nothing
         return f"{signed(after - before, '+.3g')} K"
+    if key == "yield":  # a change of a fraction, in percentage points
+        return f"{signed(100.0 * (after - before), '+.3g')} pts"
     if before == after:
         return "0 %"
     if before == 0:
@@ -124,7 +129,7 @@ def render_entry(e: Entry) -> list:
 
 
 #: Figures a ledger line may mention, with the short name used there.
-_COMPACT = (("av_source", "gain"), ("rin", "rin"), ("rout", "rout"), ("swing_up", "swing↑"),
+_COMPACT = (("av_source", "gain"), ("yield", "yield"), ("rin", "rin"), ("rout", "rout"), ("swing_up", "swing↑"),
             ("swing_down", "swing↓"), ("thd", "thd"), ("p_supply", "p_supply"), ("tj", "tj"),
             ("ic", "ic"), ("vce", "vce"), ("f_low", "f_low"), ("f_high", "f_high"))
 

@@ -18,8 +18,17 @@ class LargeSignalReady(Message):
 
 
 class PictureReady(Message):
-    """The picture worker's charts of ``design``, and their lines drawn at a size."""
+    """The picture worker's charts of ``design`` for ``kind`` (picture, spread figure),
+    and their lines drawn at a size."""
 
-    def __init__(self, design: Design, kind: str, charts: tuple, rendered: tuple):
+    def __init__(self, design: Design, kind: tuple, charts: tuple, rendered: tuple):
         super().__init__()
         self.design, self.kind, self.charts, self.rendered = design, kind, charts, rendered
+
+
+class YieldReady(Message):
+    """The yield worker's yield of ``design`` against its specs (a Yield)."""
+
+    def __init__(self, design: Design, result):
+        super().__init__()
+        self.design, self.result = design, result

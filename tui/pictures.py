@@ -1,4 +1,5 @@
-"""The workbench's pictures as charts: Bode plot, load lines, transfer curve.
+"""The workbench's pictures as charts: Bode plot, load lines, transfer curve
+and the spread (in :mod:`tui.spread_picture`).
 
 Each builder turns the engine's results into :class:`~tui.chart.Chart`
 objects: the Bode plot from the figures' response, the load lines and the
@@ -18,20 +19,24 @@ from model.analyses.figures import Figures
 from model.design.stage import Design
 
 from .chart import Axis, Chart, Marker, Series, Spot
+from .spread_picture import spread_chart
 
-BODE, LOAD_LINES, TRANSFER = "Bode", "load lines", "transfer"
+BODE, LOAD_LINES, TRANSFER, SPREAD = "Bode", "load lines", "transfer", "spread"
 #: The pictures in the order F6 steps through them.
-PICTURES = (BODE, LOAD_LINES, TRANSFER)
+PICTURES = (BODE, LOAD_LINES, TRANSFER, SPREAD)
 _REGION_MARK = {"saturation": ("S", "saturation edge"), "cutoff": ("X", "cut-off edge")}
 
 
-def charts_for(kind: str, design: Design, fig: Figures) -> tuple:
+def charts_for(kind: str, design: Design, fig: Figures, spread_key: str = "av_loaded") -> tuple:
     """The charts of picture ``kind`` for an analysed design (``()`` if the
-    figures behind it were not computed)."""
+    figures behind it were not computed); ``spread_key`` is the figure the
+    Spread picture shows."""
     if kind == BODE:
         return bode(design, fig)
     if not fig.large_signal:
         return ()
+    if kind == SPREAD:
+        return spread_chart(design, fig, spread_key)
     curves = stage_curves(design, fig.emf_edges)
     return load_line_chart(curves) if kind == LOAD_LINES else transfer_chart(design, curves)
 

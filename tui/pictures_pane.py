@@ -12,7 +12,8 @@ from model.design.stage import Design
 
 from .chart import render_stack
 from .messages import PictureReady
-from .pictures import PICTURES, charts_for
+from .pictures import PICTURES, SPREAD, charts_for
+from .spread_picture import figure_choices
 from .widgets.picture import Picture
 
 
@@ -20,7 +21,9 @@ class PicturesPane:
     """Scheduling, drawing and showing the Pictures; F6 steps through them."""
 
     picture_kind = PICTURES[0]
-    #: (design, kind, size) last sent to the worker.
+    #: The figure the Spread picture shows (Ctrl+G steps through them).
+    spread_key = "av_loaded"
+    #: (design, kind, spread key, size) last sent to the worker.
     _picture_asked: tuple | None = None
 
     def _pictures_visible(self) -> bool:
@@ -29,30 +32,31 @@ class PicturesPane:
 
     def _schedule_picture(self, design: Design, figures: Figures) -> None:
         picture = self._home.query_one(Picture)
+        hint = " · ^G figure" if self.picture_kind == SPREAD else ""
         self._home.query_one("#picture-title", Static).update(
-            f"Pictures: {self.picture_kind} · F6 next", layout=False)
+            f"Pictures: {self.picture_kind} · F6 next{hint}", layout=False)
         size = (picture.size.width, picture.size.height)
-        wanted = (design, self.picture_kind, size)
+        wanted = (design, self.picture_kind, self.spread_key, size)
         if not self._pictures_visible() or self._picture_asked == wanted:
             return
         # Remembered when asked, not when drawn, so repeated refreshes while
         # one is being drawn do not start more.
         self._picture_asked = wanted
-        self._draw_picture(design, figures, self.picture_kind, size)
+        self._draw_picture(design, figures, self.picture_kind, self.spread_key, size)
 
     @work(thread=True, exclusive=True, exit_on_error=False, group="picture")
-    def _draw_picture(self, design: Design, figures: Figures, kind: str, size: tuple) -> None:
+    def _draw_picture(self, design: Design, figures: Figures, kind: str, key: str, size: tuple) -> None:
         try:
-            charts = charts_for(kind, design, figures)
+            charts = charts_for(kind, design, figures, key)
         except Exception:  # noqa: BLE001 - a picture must never take the workbench down
             charts = ()
         lines = render_stack(charts, *size) if charts and min(size) > 0 else None
-        self.post_message(PictureReady(design, kind, charts, (*size, lines) if lines else None))
+        self.post_message(PictureReady(design, (kind, key), charts, (*size, lines) if lines else None))
 
     def on_picture_ready(self, message: PictureReady) -> None:
         if not self._in_service():
             return
-        if message.design != self.state.on_show()[0] or message.kind != self.picture_kind:
+        if message.design != self.state.on_show()[0] or message.kind != (self.picture_kind, self.spread_key):
             return
         self._home.query_one(Picture).show(message.charts, message.rendered)
 
@@ -74,4 +78,14 @@ class PicturesPane:
         else:
             self.picture_kind = PICTURES[(PICTURES.index(self.picture_kind) + 1) % len(PICTURES)]
         self._say(f"picture: {self.picture_kind} (F6 for the next)")
+        self.call_after_refresh(self._refresh_picture)
+
+    def action_spread_figure(self) -> None:
+        """Step the Spread picture to the next figure (the design's specs first)."""
+        choices = figure_choices(self.state.on_show()[0])
+        at = choices.index(self.spread_key) if self.spread_key in choices else -1
+        self.spread_key = choices[(at + 1) % len(choices)]
+        if self.picture_kind != SPREAD:
+            self.picture_kind = SPREAD
+        self._say(f"picture: spread of {self.spread_key} (Ctrl+G for the next figure)")
         self.call_after_refresh(self._refresh_picture)

@@ -68,9 +68,15 @@ def _arrow(key, before, after) -> str:
 _LABEL, _VALUE, _CHANGE = 15, 10, 12
 
 
+#: A yield the worker has not reported yet.
+PENDING = "…"
+
+
 def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str, reference_label: str,
-                  tj_max: float) -> Text:
-    """Figures of ``shown``; with a ``reference``, its values and the change beside them."""
+                  tj_max: float, yields: tuple | None = None) -> Text:
+    """Figures of ``shown``; with a ``reference``, its values and the change beside them.
+    ``yields`` (reference, shown), each a Yield, PENDING or None (no specs),
+    adds the spread rows: the yield and the shown design's 95 % interval."""
     compare = reference is not None
     value_width = _VALUE if compare else _VALUE + 8
     head = f"{'figure':<{_LABEL}}"
@@ -97,7 +103,27 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
             out.append(f"  {_set_by(shown.response)}\n")
     out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
                + f"{tj_max:g} °C".rjust(value_width))
+    if yields is not None:
+        out.append("\nspread\n", style="italic")
+        out.append(_yield_rows(yields, compare, value_width))
     return out
+
+
+def _yield_rows(yields: tuple, compare: bool, value_width: int) -> str:
+    before, after = yields
+
+    def cell(y):
+        return "none" if y is None else y if isinstance(y, str) else f"{100 * y.value:.1f} %"
+
+    line = f"  {'yield':<{_LABEL - 2}}" + (_right(cell(before), _VALUE) if compare else "")
+    line += _right(cell(after), value_width)
+    if compare and not isinstance(before, (str, type(None))) and not isinstance(after, (str, type(None))):
+        moved = relative_change(before.value, after.value, "yield")
+        line += _right((moved + " " + _arrow("yield", before.value, after.value)).strip(), _CHANGE)
+    # The interval row is always there (… until known), so the readout keeps its height.
+    interval = cell(after) if isinstance(after, (str, type(None))) else "{:.1f}–{:.1f} %".format(
+        *(100 * e for e in after.interval))
+    return line + f"\n  {'95 % interval':<{_LABEL - 2}}" + (" " * _VALUE if compare else "") + _right(interval, value_width)
 
 
 def _set_by(r) -> str:

@@ -51,7 +51,7 @@ def cmd_set(path: str, items: list, note: str, dry_run: bool, drop_comments: boo
             if not p.changes:
                 raise StageledgerError(NOTHING_TO_COMMIT)
             lines = ["preview (not saved):", *render_changes(p.changes)]
-            before, after = headline(p.before), headline(p.after)
+            before, after = headline(p.before, p.yields[0]), headline(p.after, p.yields[1])
             old, new = set(warning_codes(p.before)), set(warning_codes(p.after))
             lines += render_consequences(before, after, sorted(new - old), sorted(old - new))
         print("\n".join(lines))

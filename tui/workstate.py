@@ -130,6 +130,13 @@ class WorkState:
             return self.candidate.design, self.candidate.figures
         return self.design, self.figures
 
+    def reference_design(self) -> Design | None:
+        """The design the readout compares with: the baseline's, else the
+        committed one beside a candidate; None when nothing is compared."""
+        if self.baseline:
+            return self.baseline.design
+        return self.design if self.candidate else None
+
     def comparison(self) -> Comparison:
         """The readout's columns: the baseline if one is pinned, else the
         committed design beside a candidate."""

@@ -35,6 +35,15 @@ from model.design.fields import (  # noqa: F401
     rule_for,
     with_article,
 )
+from model.design.spread_tables import (
+    Tolerance,
+    check_spread_value,
+    get_spread,
+    is_spread_key,
+    spread_from_dict,
+    spread_to_dict,
+    with_spread,
+)
 from model.errors import DesignError
 
 
@@ -138,7 +147,11 @@ class Estimate:
 
 @dataclass(frozen=True)
 class Design:
-    """One stage design; the file adds ``format = FORMAT``."""
+    """One stage design; the file adds ``format = FORMAT``.
+
+    ``tolerance`` and ``spec`` (a tuple of Limits) are the optional spread
+    tables (see :mod:`model.design.spread_tables`).
+    """
     name: str
     topology: str
     notes: str
@@ -151,6 +164,8 @@ class Design:
     environment: Environment
     parts: Parts
     estimate: Estimate
+    tolerance: Tolerance = Tolerance()
+    spec: tuple = ()
 
 
 # Table name in the file (also the Design attribute) -> its dataclass, in file order.
@@ -179,9 +194,28 @@ def default_design(topology: str = CE) -> Design:
                   transistor, Environment(), Parts(), Estimate())
 
 
+def check_key(key: str, topology: str, value: object):
+    """``value`` in the stored form of any design key, spread keys included;
+    DesignError naming the key, value and rule."""
+    if is_spread_key(key):
+        return check_spread_value(key, topology, value)
+    return check_value(key, topology, value)
+
+
+def check_known(key: str, topology: str) -> None:
+    """DesignError unless ``key`` is a key a design of ``topology`` can hold."""
+    if is_spread_key(key):
+        check_spread_value(key, topology, NONE)  # "none" is valid for every spread key it knows
+    else:
+        rule_for(key, topology)
+
+
 def get_value(design: Design, key: str) -> object:
-    """The stored value of ``key`` ("name" or "table.key", e.g. "stage.rc")."""
-    rule_for(key, design.topology)
+    """The stored value of ``key`` ("name" or "table.key", e.g. "stage.rc");
+    a tolerance or spec key that is absent is None."""
+    check_known(key, design.topology)
+    if is_spread_key(key):
+        return get_spread(design.tolerance, design.spec, key)
     if "." not in key:
         return getattr(design, key)
     table, attr = key.split(".")
@@ -192,18 +226,23 @@ def with_values(design: Design, values: dict[str, object]) -> Design:
     """A copy of ``design`` with each key set (numbers or unit strings), validated."""
     top: dict[str, object] = {}
     tables: dict[str, dict[str, object]] = {}
+    spread: dict[str, object] = {}
     for key, value in values.items():
         if key == "topology":
             raise DesignError(key, _shown(value),
                               "cannot change in place; start from default_design(topology)")
-        checked = check_value(key, design.topology, value)
-        if "." in key:
+        checked = check_key(key, design.topology, value)
+        if is_spread_key(key):
+            spread[key] = checked
+        elif "." in key:
             table, attr = key.split(".")
             tables.setdefault(table, {})[attr] = checked
         else:
             top[key] = checked
     for table, changes in tables.items():
         top[table] = dataclasses.replace(getattr(design, table), **changes)
+    if spread:
+        top["tolerance"], top["spec"] = with_spread(design.tolerance, design.spec, spread)
     return validate(dataclasses.replace(design, **top))
 
 
@@ -234,9 +273,22 @@ def validate(design: Design) -> Design:
                 raise DesignError(key, _shown(value),
                                   f"is not used by {with_article(topology)} design and must stay {f.default!r}")
         top[table] = cls(**values)
+    top["tolerance"], top["spec"] = _checked_spread(design, topology)
     checked = dataclasses.replace(design, **top)
     _check_wiring(checked)
     return checked
+
+
+def _checked_spread(design: Design, topology: str) -> tuple:
+    """The design's spread tables re-read through their rules (as the file
+    would write them), so a Design built by hand is held to them too."""
+    tolerance, spec = design.tolerance, design.spec
+    if type(tolerance) is not Tolerance or not isinstance(spec, tuple):
+        raise DesignError("tolerance", _shown(tolerance), "must be a Tolerance and spec a tuple of Limits")
+    if tolerance == Tolerance() and not spec:
+        return tolerance, spec
+    flat = spread_from_dict(spread_to_dict(tolerance, spec))
+    return with_spread(Tolerance(), (), {k: check_spread_value(k, topology, v) for k, v in flat.items()})
 
 
 def _check_wiring(design: Design) -> None:
@@ -271,6 +323,7 @@ def design_to_dict(design: Design) -> dict:
                 word = file_word(key, value)
                 entries[attr] = value if word is None else word
         data[table] = entries
+    data.update(spread_to_dict(design.tolerance, design.spec))
     return data
 
 
@@ -293,8 +346,8 @@ def _from_dict(data: dict) -> Design:
         raise DesignError("format", _shown(fmt),
                           f"must be {FORMAT}, the only design format this version reads")
     topology = check_value("topology", CE, data.get("topology", CE))
-    allowed = ("format",) + TEXT_KEYS + tuple(TABLES)
-    values: dict[str, object] = {}
+    allowed = ("format",) + TEXT_KEYS + tuple(TABLES) + ("tolerance", "spec")
+    values: dict[str, object] = spread_from_dict(data)
     for name, content in data.items():
         if name not in allowed:
             close = difflib.get_close_matches(name, allowed, n=1)

@@ -29,7 +29,8 @@ import math
 
 import tomli_w
 
-from model.design.stage import CE, check_value, design_from_dict, rule_for
+from model.design.spread_tables import is_spread_key
+from model.design.stage import CE, check_key, check_known, check_value, design_from_dict
 from model.errors import DesignError
 from model.files.ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
@@ -149,14 +150,16 @@ def _changes(items, where, topology) -> tuple:
         if c["key"] == "topology":
             raise DesignError(f"{here}.key", c["key"], "cannot change; a new topology is a new design")
         try:
-            rule_for(c["key"], topology)
+            check_known(c["key"], topology)
         except DesignError as err:
             raise DesignError(f"{here}.key", _short(c["key"]), err.rule) from None
         for side in ("old", "new"):
-            if not isinstance(c[side], (int, float, str)) or isinstance(c[side], bool):
+            # A tolerance or spec range is an array [min, max], as in its table.
+            kinds = (int, float, str, list) if is_spread_key(c["key"]) else (int, float, str)
+            if not isinstance(c[side], kinds) or isinstance(c[side], bool):
                 raise DesignError(f"{here}.{side}", _short(c[side]), "must be a number or text")
             try:
-                check_value(c["key"], topology, c[side])
+                check_key(c["key"], topology, c[side])
             except DesignError as err:
                 raise DesignError(f"{here}.{side}", err.value, err.rule) from None
         out.append(Change(c["key"], c["old"], c["new"]))

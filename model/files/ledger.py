@@ -15,8 +15,9 @@ from dataclasses import dataclass, field
 
 from model.analyses.figures import Figures
 from model.design.stage import (
+    NONE,
     Design,
-    check_value,
+    check_key,
     design_from_dict,
     design_to_dict,
     file_word,
@@ -30,8 +31,10 @@ START, SET, UNDO, REDO, HAND_EDIT = "start", "set", "undo", "redo", "hand-edit"
 ACTIONS = (START, SET, UNDO, REDO, HAND_EDIT)
 
 #: The figures every entry records before and after its change.
+#: "yield" (a fraction of builds meeting every spec, see model.spread) only
+#: for a design with a [spec] table.
 HEADLINE = ("ic", "vce", "region", "av_loaded", "av_source", "rin", "rout", "swing_up",
-            "swing_down", "thd", "p_transistor", "p_supply", "tj", "f_low", "f_high")
+            "swing_down", "thd", "p_transistor", "p_supply", "tj", "f_low", "f_high", "yield")
 
 
 @dataclass(frozen=True)
@@ -67,11 +70,14 @@ class Entry:
     snapshot: dict | None = None
 
 
-def headline(fig: Figures) -> dict:
-    """The HEADLINE figures of an analysis, to six significant figures: the
-    ledger is read by people, and the design itself can always be re-analysed.
-    A figure that does not exist for this design (NaN: no −3 dB band) is left out."""
-    values = {k: getattr(fig, k) for k in HEADLINE}
+def headline(fig: Figures, yield_: float | None = None) -> dict:
+    """The HEADLINE figures of an analysis (and the yield, a fraction, when
+    the design has specs), to six significant figures: the ledger is read by
+    people, and the design itself can always be re-analysed.  A figure that
+    does not exist for this design (NaN: no −3 dB band) is left out."""
+    values = {k: getattr(fig, k) for k in HEADLINE if k != "yield"}
+    if yield_ is not None:
+        values["yield"] = yield_
     return {k: _sig(v) for k, v in values.items() if not (isinstance(v, float) and math.isnan(v))}
 
 
@@ -91,32 +97,36 @@ def now() -> _dt.datetime:
 
 
 def changes_between(old: Design, new: Design) -> tuple:
-    """Every key whose value differs between two designs of one topology."""
+    """Every key whose value differs between two designs of one topology; a
+    tolerance or spec entry only one of them has is "none" in the other."""
     a, b = _flat(design_to_dict(old)), _flat(design_to_dict(new))
-    return tuple(Change(k, a.get(k), b.get(k)) for k in b if a.get(k) != b.get(k))
+    keys = list(b) + [k for k in a if k not in b]
+    return tuple(Change(k, a.get(k, NONE), b.get(k, NONE)) for k in keys if a.get(k, NONE) != b.get(k, NONE))
 
 
-def _flat(data: dict) -> dict:
+def _flat(data: dict, prefix: str = "") -> dict:
     out = {}
     for k, v in data.items():
         if isinstance(v, dict):
-            out.update({f"{k}.{kk}": vv for kk, vv in v.items()})
+            out.update(_flat(v, f"{prefix}{k}."))
         elif k != "format":
-            out[k] = v
+            out[prefix + k] = v
     return out
 
 
-def start_entry(design: Design, fig: Figures, *, origin: str | None = None, note: str = "") -> Entry:
+def start_entry(design: Design, fig: Figures, *, origin: str | None = None, note: str = "",
+                yield_: float | None = None) -> Entry:
     snapshot = {k: v for k, v in design_to_dict(design).items() if k != "format"}
-    return Entry(1, now(), START, note=note, after=headline(fig), raised=warning_codes(fig),
+    return Entry(1, now(), START, note=note, after=headline(fig, yield_), raised=warning_codes(fig),
                  origin=origin, snapshot=snapshot)
 
 
 def change_entry(number: int, action: str, changes: tuple, before: Figures, after: Figures, *,
-                 note: str = "", reverses: int | None = None) -> Entry:
+                 note: str = "", reverses: int | None = None, yields: tuple = (None, None)) -> Entry:
+    """``yields`` are the (before, after) yields, None where the design has no spec."""
     old, new = set(warning_codes(before)), set(warning_codes(after))
-    return Entry(number, now(), action, changes=changes, note=note, before=headline(before),
-                 after=headline(after), raised=tuple(c for c in warning_codes(after) if c not in old),
+    return Entry(number, now(), action, changes=changes, note=note, before=headline(before, yields[0]),
+                 after=headline(after, yields[1]), raised=tuple(c for c in warning_codes(after) if c not in old),
                  cleared=tuple(c for c in warning_codes(before) if c not in new), reverses=reverses)
 
 
@@ -170,6 +180,6 @@ def check_changes_apply(design: Design, changes: tuple) -> None:
         current = get_value(design, c.key)
         # Compared as stored values, so "none" and 0.0 (or "open" and inf,
         # as older files wrote some of them) are the same value.
-        if current != check_value(c.key, design.topology, c.old):
+        if current != check_key(c.key, design.topology, c.old):
             shown = file_word(c.key, current) or current
             raise DesignError(c.key, shown, f"no longer holds {c.old!r}; cannot reverse that entry")

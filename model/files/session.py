@@ -19,6 +19,15 @@ from model.files.designfile import Document, dumps_document, read_document
 from model.files.historyfile import entry_text
 from model.files.ledger import Entry
 from model.files.savefile import DesignLock, atomic_write
+from model.spread.analysis import LEDGER_SAMPLES, quick_yield
+
+
+def ledger_yield(design: Design) -> float | None:
+    """The yield the ledger records (a fraction; None without specs): from
+    LEDGER_SAMPLES builds drawn with the fixed seed, so that before and
+    after a change see the same draws and the change itself is sharp."""
+    y = quick_yield(design, LEDGER_SAMPLES)
+    return None if y is None else y.value
 
 #: Refused alike by a commit and by its dry run, so the two agree.
 NOTHING_TO_COMMIT = "nothing to commit: every value is already as given"
@@ -44,6 +53,7 @@ class Preview:
     changes: tuple
     before: Figures
     after: Figures
+    yields: tuple = (None, None)
 
 
 class DesignSession:
@@ -79,6 +89,7 @@ class DesignSession:
         self.fingerprint = doc.fingerprint
         self.comment_lines = doc.comment_lines
         self.figures = analyse(self.design)
+        self._yields: dict = {}
         self.hand_edits = self._hand_edits()
 
     def _hand_edits(self) -> tuple:
@@ -112,7 +123,14 @@ class DesignSession:
         """The consequences of setting ``values`` ("table.key" → number or text)."""
         design = with_values(self.design, values)
         changes = ledger.changes_between(self.design, design)
-        return Preview(design, changes, self.figures, analyse(design))
+        return Preview(design, changes, self.figures, analyse(design),
+                       (self.yield_of(self.design), self.yield_of(design)))
+
+    def yield_of(self, design: Design) -> float | None:
+        """:func:`ledger_yield`, kept for the designs this session has seen."""
+        if design not in self._yields:
+            self._yields[design] = ledger_yield(design)
+        return self._yields[design]
 
     def commit(self, values: dict, note: str = "", known: tuple | None = None) -> Entry:
         """Apply ``values``, log the change and save; returns the new entry.
@@ -156,12 +174,13 @@ class DesignSession:
         """Entries owed before the next one: a start entry for a file never
         logged, or a hand-edit entry for changes made outside the tool."""
         if not self.history:
-            return [ledger.start_entry(self.design, self.figures)]
+            return [ledger.start_entry(self.design, self.figures, yield_=self.yield_of(self.design))]
         if self.hand_edits:
             logged = ledger.replay(self.history)
             return [ledger.change_entry(len(self.history) + 1, ledger.HAND_EDIT, self.hand_edits,
                                         analyse(logged), self.figures,
-                                        note="changed in the file outside stageledger")]
+                                        note="changed in the file outside stageledger",
+                                        yields=(self.yield_of(logged), self.yield_of(self.design)))]
         return []
 
     def _pending_history(self) -> list:
@@ -174,8 +193,8 @@ class DesignSession:
             raise CommentsWouldBeLost(self.path, self.comment_lines)
         prefix = self._prefix()
         number = len(self.history) + len(prefix) + 1
-        entry = ledger.change_entry(number, action, changes, self.figures, after,
-                                    note=note, reverses=reverses)
+        entry = ledger.change_entry(number, action, changes, self.figures, after, note=note, reverses=reverses,
+                                    yields=(self.yield_of(self.design), self.yield_of(design)))
         added = prefix + [entry]
         texts = self._texts + [entry_text(e) for e in added]
         data = dumps_document(design, texts).encode("utf-8")
@@ -194,7 +213,7 @@ def create(path: str, design: Design, *, origin: str | None = None, note: str = 
 
     Refuses to overwrite an existing file.
     """
-    entry = ledger.start_entry(design, analyse(design), origin=origin, note=note)
+    entry = ledger.start_entry(design, analyse(design), origin=origin, note=note, yield_=ledger_yield(design))
     data = dumps_document(design, [entry_text(entry)]).encode("utf-8")
     with DesignLock(path):
         atomic_write(path, data, None, create=True)
