@@ -18,7 +18,7 @@ import numpy as np
 
 from model.analyses.figures import design_values
 from model.design.spread_tables import NORMAL, TOLERANCE_PARTS
-from model.design.stage import Design, get_value, keys_for, with_values
+from model.design.stage import Design, get_value, keys_for
 
 #: The seed used when the caller gives none, so two runs agree.
 DEFAULT_SEED = 20261202
@@ -93,8 +93,3 @@ def engine_values(design: Design, spread: Spread, table: np.ndarray) -> dict:
     for j, key in enumerate(spread.keys):
         values[key] = table[:, j].copy()
     return values
-
-
-def build_design(design: Design, spread: Spread, row: np.ndarray) -> Design:
-    """One build as a Design of its own (to analyse alone, or to rebuild with ``set``)."""
-    return with_values(design, {k: float(v) for k, v in zip(spread.keys, row)})
