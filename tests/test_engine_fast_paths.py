@@ -81,3 +81,36 @@ def test_the_cases_reach_every_branch():
             _, _, lim = solve._one_iteration(r, u0, dev, u, dev.vt[:, None], device.critical_voltage(dev)[:, None])
         hits_limit += int(lim.any())
     assert hits_exp == 20 and hits_limit == 20
+
+
+@SETTINGS
+@given(st.integers(0, 2**32 - 1), st.integers(1, 200))
+def test_one_transistor_loop_stops_every_row_where_the_general_loop_does(seed, batch):
+    """The written-out loop freezes converged rows in place instead of moving
+    them out of the working set; every row must still end on the same
+    iterate as the general loop leaves it (the same floats, so exact)."""
+    import model.circuit.newton as dc
+    from model.analyses.figures import design_values
+    from model.circuit.topologies import build
+    from model.design.stage import default_design
+
+    rng = np.random.default_rng(seed)
+    values = {k: np.repeat(v, batch) for k, v in design_values([default_design("common-emitter")]).items()}
+    # Supplies, dividers and collector resistors over decades: active,
+    # saturated and cut-off rows, quick and slow to converge, in one batch.
+    values["supply.vcc"] = rng.uniform(3.0, 48.0, batch)
+    values["bias.r1"] = 10 ** rng.uniform(2, 6, batch)
+    values["bias.r2"] = 10 ** rng.uniform(2, 6, batch)
+    values["stage.rc"] = 10 ** rng.uniform(1, 6, batch)
+    red = dc._reduce(build("common-emitter", values).net)
+    u = solve.active_start(red.r, red.u0, red.dev)
+    fast = solve.newton(red.r, red.u0, red.dev, u)
+    general_from = solve._COPY_FROM
+    try:
+        solve._COPY_FROM = 0  # every batch takes the general loop
+        general = solve.newton(red.r, red.u0, red.dev, u)
+    finally:
+        solve._COPY_FROM = general_from
+    np.testing.assert_array_equal(fast[0], general[0])
+    np.testing.assert_array_equal(fast[1], general[1])
+    assert fast[2] == general[2]

@@ -67,12 +67,14 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
             # Written out for one transistor where numpy's per-call cost
             # dominates; on big batches the general step's memory traffic is less.
             if count == 1 and rows.size < _COPY_FROM:
-                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit, pack[betas])
-            else:
-                step, _ = _step(r, u0, dev, u, currents=False)
-                u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
-                moved = np.abs(u_new - u).max(axis=(0, 1))
-                limited = limited.any(axis=(0, 1))
+                u_one, done_one, iterations = _one_loop(r, u0, dev, u, vt_j, v_crit, pack[betas], done,
+                                                        iterations - 1, max_iter)
+                u_out[..., rows], done_out[rows] = u_one, done_one
+                break
+            step, _ = _step(r, u0, dev, u, currents=False)
+            u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
+            moved = np.abs(u_new - u).max(axis=(0, 1))
+            limited = limited.any(axis=(0, 1))
             size = np.abs(u_new).max(axis=(0, 1))
             done |= (moved <= _V_TOL * (1.0 + size)) & ~limited
             u = u_new
@@ -89,6 +91,31 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
         else:
             u_out[..., rows] = u
     return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _one_loop(r, u0, dev, u, vt, v_crit, betas, done, iterations: int, max_iter: int):
+    """:func:`newton`'s loop for one transistor on fewer than _COPY_FROM rows,
+    from iteration ``iterations`` + 1 on (inputs as :func:`_one_iteration`
+    takes them, ``done`` as newton has it).  Rows leave the working set as in
+    newton, but are frozen where they are instead of moved out: on a design's
+    few hundred rows the copies of a shrinking working set cost more than
+    iterating every row.  Every row stops at the same iterate as in newton.
+    Returns (u, converged, iterations)."""
+    frozen = np.zeros_like(done)
+    working = done.size
+    for iterations in range(iterations + 1, max_iter + 1):
+        u_new, moved, limited = _one_iteration(r, u0, dev, u, vt, v_crit, betas)
+        done |= (moved <= _V_TOL * (1.0 + np.abs(u_new).max(axis=(0, 1)))) & ~limited
+        u = np.where(frozen, u, u_new)
+        if iterations == 1:
+            continue
+        n_done = np.count_nonzero(done) - (done.size - working)
+        if 4 * n_done >= working:
+            frozen = done.copy()
+            working -= n_done
+            if working == 0:
+                break
+    return u, frozen, iterations
 
 
 def _unpack(pack, count: int):
