@@ -10,7 +10,7 @@ import numpy as np
 
 from model.circuit.assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
 from model.circuit.dense import solve_batched
-from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource, batch_rows
 from model.circuit.newton import OperatingPoint
 from model.circuit.plan import AC, DC, MIDBAND, Plan, plan_for
 
@@ -180,7 +180,7 @@ class Factored:
         batch = self.net.batch
         with np.errstate(divide="ignore"):
             out.parts = self.parts + tuple(
-                (ends, (-1.0 if remove else 1.0) / np.broadcast_to(np.asarray(g, dtype=float), (batch,)), remove)
+                (ends, (-1.0 if remove else 1.0) / batch_rows(g, batch), remove)
                 for ends, g in parts if ends[0] != ends[1])
         return out
 
@@ -214,7 +214,7 @@ class Factored:
             if i < 0:
                 return np.zeros(batch)
             out = self.z[i, j] - sum((self._zu(i, ends) * c for (ends, _, _), c in zip(parts, coef)), 0.0)
-            return np.broadcast_to(out, (batch,))
+            return batch_rows(out, batch)
 
         if bad.any():
             return self._direct(into, np.flatnonzero(bad), at)
@@ -237,7 +237,7 @@ class Factored:
 def _small_solve(s, y, batch):
     """Solve the c × c system s·x = y of (batch,) entries, c ≤ 2 in closed form."""
     c = len(y)
-    s = [[np.broadcast_to(e, (batch,)) for e in row] for row in s]
+    s = [[batch_rows(e, batch) for e in row] for row in s]
     if c == 0:
         return []
     if c == 1:
@@ -246,7 +246,7 @@ def _small_solve(s, y, batch):
         det = s[0][0] * s[1][1] - s[0][1] * s[1][0]
         return [(s[1][1] * y[0] - s[0][1] * y[1]) / det, (s[0][0] * y[1] - s[1][0] * y[0]) / det]
     m = np.stack([np.stack(row, axis=-1) for row in s], axis=1)
-    x = solve_batched(m, np.stack([np.broadcast_to(v, (batch,)) for v in y], axis=-1))
+    x = solve_batched(m, np.stack([batch_rows(v, batch) for v in y], axis=-1))
     return [x[:, k] for k in range(c)]
 
 

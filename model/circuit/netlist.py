@@ -77,9 +77,8 @@ class Netlist:
     batch: int
 
     def __post_init__(self):
-        names = [e.name for e in self.elements]
-        if len(set(names)) != len(names):
-            raise ValueError(f"duplicate element names in {names}")
+        if len(self._by_name) != len(self.elements):
+            raise ValueError(f"duplicate element names in {[e.name for e in self.elements]}")
 
     @cached_property
     def signature(self) -> tuple:
@@ -88,7 +87,7 @@ class Netlist:
         return tuple((type(e).__name__, e.name, terminals(e), getattr(e, "coupling", None))
                      for e in self.elements)
 
-    @property
+    @cached_property
     def nodes(self) -> tuple[str, ...]:
         """Every node name except ground, in first-seen order."""
         seen: dict[str, None] = {}
@@ -102,10 +101,11 @@ class Netlist:
         return [e for e in self.elements if isinstance(e, kind)]
 
     def element(self, name: str):
-        for e in self.elements:
-            if e.name == name:
-                return e
-        raise KeyError(name)
+        return self._by_name[name]
+
+    @cached_property
+    def _by_name(self) -> dict:
+        return {e.name: e for e in self.elements}
 
     def without(self, *tags: str) -> "Netlist":
         """The same circuit with every element carrying one of ``tags`` removed."""
@@ -159,7 +159,16 @@ def terminals(e) -> tuple[str, ...]:
 
 
 def _batch_array(v, batch: int) -> np.ndarray:
-    return np.broadcast_to(np.asarray(v, dtype=float), (batch,)).copy()
+    return batch_rows(v, batch).copy()
+
+
+def batch_rows(v, batch: int) -> np.ndarray:
+    """``v`` as (batch,) floats: itself when it already is such an array (a
+    design's netlist is built and cut many times, and np.broadcast_to costs
+    a few times the arithmetic on its few rows), else a broadcast view."""
+    if type(v) is np.ndarray and v.shape == (batch,) and v.dtype == np.float64:
+        return v
+    return np.broadcast_to(np.asarray(v, dtype=float), (batch,))
 
 
 _VALUE = {Resistor: "r", Capacitor: "c", VoltageSource: "v"}
@@ -169,14 +178,14 @@ def _repeat_element(e, batch: int, n: int):
     if isinstance(e, Bjt):
         return _with(e, "params", e.params.repeat(n))
     attr = _VALUE[type(e)]
-    return _with(e, attr, np.repeat(np.broadcast_to(np.asarray(getattr(e, attr), dtype=float), (batch,)), n))
+    return _with(e, attr, np.repeat(batch_rows(getattr(e, attr), batch), n))
 
 
 def _take_element(e, batch: int, rows):
     if isinstance(e, Bjt):
         return _with(e, "params", e.params.take(rows))
     attr = _VALUE[type(e)]
-    return _with(e, attr, np.broadcast_to(np.asarray(getattr(e, attr), dtype=float), (batch,))[rows])
+    return _with(e, attr, batch_rows(getattr(e, attr), batch)[rows])
 
 
 def _with(e, attr: str, value):

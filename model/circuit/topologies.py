@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from model.circuit.device import params_at
-from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource, batch_rows
 
 #: Element names the analyses look up.
 SUPPLY, EMF, TRANSISTOR = "vcc", "vs", "q1"
@@ -78,7 +78,7 @@ class _Parts:
     """Collects elements for a builder, mirroring rails for a PNP stage."""
 
     def __init__(self, values: dict, batch: int):
-        self.v = {k: np.broadcast_to(np.asarray(x, dtype=float), (batch,)) for k, x in values.items()}
+        self.v = {k: batch_rows(x, batch) for k, x in values.items()}
         self.batch = batch
         self.pnp = bool(self.v["transistor.sign"][0] < 0)
         self.elements: list = []
