@@ -12,8 +12,9 @@ is taken.  Hypothesis runs derandomized so the suite cannot fail by chance.
 """
 
 import numpy as np
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
+from test_engine_properties import designs
 
 from model.circuit import device
 from model.circuit import junction_newton as solve
@@ -114,3 +115,65 @@ def test_one_transistor_loop_stops_every_row_where_the_general_loop_does(seed, b
     np.testing.assert_array_equal(fast[0], general[0])
     np.testing.assert_array_equal(fast[1], general[1])
     assert fast[2] == general[2]
+
+
+def _stage_with_device(d):
+    """A single design's built stage with Cπ and Cμ in place, and its
+    operating point (None when it does not solve)."""
+    from model.analyses.capacitance import device_capacitance, with_device_capacitance
+    from model.analyses.figures import design_values
+    from model.analyses.midband import device_small_signal
+    from model.circuit.newton import operating_point
+    from model.circuit.topologies import build
+
+    stage = build(d.topology, design_values([d]))
+    op = operating_point(stage.net)
+    if not op.converged[0]:
+        return None, None
+    gm = float(device_small_signal(op).gm[0])
+    return with_device_capacitance(stage, device_capacitance(gm, d.transistor.ft, d.transistor.cmu)), op
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(designs(), st.sampled_from(("stage.cin", "stage.cout", "stage.ce", None)))
+def test_short_circuit_estimates_from_one_inversion_are_the_direct_ones(d, unfitted):
+    """Each coupling capacitor's resistance from one inversion with the others
+    shorted as Woodbury corrections, against a direct solve of the netlist
+    without it (model/analyses/corner_estimates.py): the same equations, so
+    only rounding differs; the cancellation guard bounds that at a few float
+    epsilons over 1e-3."""
+    from model.analyses import corner_estimates as ce
+    from model.circuit.netlist import Capacitor
+    from model.design.stage import with_values
+    from model.errors import DesignError
+
+    if unfitted is not None and (unfitted != "stage.ce" or d.topology == "common-emitter"):
+        try:
+            d = with_values(d, {unfitted: 0.0})
+        except DesignError:  # a wiring the rules refuse (a stage with no AC path, say)
+            assume(False)
+    stage, op = _stage_with_device(d)
+    assume(stage is not None)
+    caps = [c for c in stage.net.of_type(Capacitor) if c.coupling]
+    shared = ce._shorted_resistances(stage.net, op, caps)
+    for cap, r in zip(caps, shared):
+        direct = ce._resistance_across(stage.net.drop(cap.name), op, cap.a, cap.b)
+        if r is not None:
+            np.testing.assert_allclose(r, direct, rtol=1e-12, err_msg=cap.name)
+    parts = ce.short_circuit_parts(stage, op)
+    assert [p.part for p in parts] == [c.name for c in caps]
+
+
+def test_the_demo_takes_the_one_inversion_path():
+    """The estimates above are checked where the shared path answers: it
+    must answer for an ordinary stage, else that check would be empty."""
+    import pathlib
+
+    from model import read_design
+    from model.analyses import corner_estimates as ce
+    from model.circuit.netlist import Capacitor
+
+    demo = pathlib.Path(__file__).resolve().parents[1] / "saved_designs" / "geophone_preamp.toml"
+    stage, op = _stage_with_device(read_design(demo))
+    caps = [c for c in stage.net.of_type(Capacitor) if c.coupling]
+    assert len(caps) == 3 and None not in ce._shorted_resistances(stage.net, op, caps)

@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from model.circuit.assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
-from model.circuit.dense import solve_batched
+from model.circuit.dense import _LAPACK_BELOW, solve_batched
 from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource, batch_rows
 from model.circuit.newton import OperatingPoint
 from model.circuit.plan import AC, DC, MIDBAND, Plan, plan_for
@@ -62,15 +62,33 @@ def small_signal(
     return node_dict(plan, x, v)
 
 
-def transfer_impedances(net: Netlist, op: OperatingPoint):
-    """Midband transfer impedances with every source at zero: ``z(a, b)`` is
-    the voltage (batch,) at node a for 1 A into node b (Ω), from one solve
-    with the identity as right-hand sides.  Known nodes read 0 V and take
-    current without effect."""
-    plan = plan_for(net, MIDBAND)
+def impedance_matrix(net: Netlist, op: OperatingPoint, kind: str = MIDBAND):
+    """(plan, Z): the inverse (batch, n, n) of the linearised nodal matrix of
+    ``net`` at ``op`` for a MIDBAND or DC (every capacitor open) analysis,
+    every source at zero; Z[:, i, j] is the voltage at unknown i for 1 A into
+    unknown j (Ω).  A singular row comes out non-finite."""
+    plan = plan_for(net, kind)
     g, v = admittance_values(net, plan, excite={})
     a, _ = _linearised(net, op, plan, g, v)
-    z = solve_batched(a, np.broadcast_to(np.eye(plan.n), a.shape).copy())
+    return plan, _inverse(a)
+
+
+def _inverse(a):
+    """a⁻¹ for every batch row: on small batches one LAPACK inversion (a
+    third of a solve against the identity) unless some row is singular."""
+    if 0 < a.shape[0] < _LAPACK_BELOW and a.shape[-1] > 0:
+        try:
+            return np.linalg.inv(a)
+        except np.linalg.LinAlgError:
+            pass
+    return solve_batched(a, np.broadcast_to(np.eye(a.shape[-1]), a.shape).copy())
+
+
+def transfer_impedances(net: Netlist, op: OperatingPoint):
+    """Midband transfer impedances with every source at zero: ``z(a, b)`` is
+    the voltage (batch,) at node a for 1 A into node b (Ω), from one
+    inversion.  Known nodes read 0 V and take current without effect."""
+    plan, z = impedance_matrix(net, op)
     zero = np.zeros(net.batch)
 
     def lookup(at: str, into: str):
@@ -161,7 +179,7 @@ class Factored:
         self.plan = plan_for(net, MIDBAND)
         g, v = admittance_values(net, self.plan, excite={})
         a, _ = _linearised(net, op, self.plan, g, v)
-        z = solve_batched(a, np.broadcast_to(np.eye(self.plan.n), a.shape).copy())
+        z = _inverse(a)
         # Entry-major: each Z[i, j] below is then one contiguous (batch,) row.
         self.z = np.ascontiguousarray(z.transpose(1, 2, 0))
         self.parts, self.exact = (), True
