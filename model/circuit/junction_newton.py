@@ -206,8 +206,10 @@ def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
     if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
+        # Contiguous entry-major copies: strided reads cost more than the copies
+        # (the device fields, (batch, 1), transpose contiguous as they are).
         step, (ic, ib), d_ic, g_beta = _one_transistor(
-            r.transpose(1, 2, 0), u0.T, dev.map(lambda a: a.T), u[:, 0].T)
+            entry_major(r), entry_major(u0), dev.map(lambda a: a.T), entry_major(u[:, 0]))
         i = np.empty((u.shape[0], 2))
         i[:, 0] = ic + (d_ic[0] * step[0] + d_ic[1] * step[1])
         i[:, 1] = ib + (g_beta[0] * step[0] + g_beta[1] * step[1])
