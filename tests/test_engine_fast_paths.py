@@ -84,12 +84,10 @@ def test_the_cases_reach_every_branch():
     assert hits_exp == 20 and hits_limit == 20
 
 
-@SETTINGS
-@given(st.integers(0, 2**32 - 1), st.integers(1, 200))
-def test_one_transistor_loop_stops_every_row_where_the_general_loop_does(seed, batch):
-    """The written-out loop freezes converged rows in place instead of moving
-    them out of the working set; every row must still end on the same
-    iterate as the general loop leaves it (the same floats, so exact)."""
+def _reduced_designs(seed: int, batch: int):
+    """A batch of common-emitter designs reduced onto their junctions, with
+    supplies, dividers and collector resistors over decades: active,
+    saturated and cut-off rows, quick and slow to converge."""
     import model.circuit.newton as dc
     from model.analyses.figures import design_values
     from model.circuit.topologies import build
@@ -97,24 +95,74 @@ def test_one_transistor_loop_stops_every_row_where_the_general_loop_does(seed, b
 
     rng = np.random.default_rng(seed)
     values = {k: np.repeat(v, batch) for k, v in design_values([default_design("common-emitter")]).items()}
-    # Supplies, dividers and collector resistors over decades: active,
-    # saturated and cut-off rows, quick and slow to converge, in one batch.
     values["supply.vcc"] = rng.uniform(3.0, 48.0, batch)
     values["bias.r1"] = 10 ** rng.uniform(2, 6, batch)
     values["bias.r2"] = 10 ** rng.uniform(2, 6, batch)
     values["stage.rc"] = 10 ** rng.uniform(1, 6, batch)
-    red = dc._reduce(build("common-emitter", values).net)
-    u = solve.active_start(red.r, red.u0, red.dev)
-    fast = solve.newton(red.r, red.u0, red.dev, u)
-    general_from = solve._COPY_FROM
+    return dc._reduce(build("common-emitter", values).net), rng
+
+
+def _newton_with(red, u, **limits):
+    """newton with some of junction_newton's batch-size limits overridden."""
+    saved = {name: getattr(solve, name) for name in limits}
     try:
-        solve._COPY_FROM = 0  # every batch takes the general loop
-        general = solve.newton(red.r, red.u0, red.dev, u)
+        for name, value in limits.items():
+            setattr(solve, name, value)
+        return solve.newton(red.r, red.u0, red.dev, u)
     finally:
-        solve._COPY_FROM = general_from
-    np.testing.assert_array_equal(fast[0], general[0])
-    np.testing.assert_array_equal(fast[1], general[1])
-    assert fast[2] == general[2]
+        for name, value in saved.items():
+            setattr(solve, name, value)
+
+
+def _assert_same_result(got, want):
+    np.testing.assert_array_equal(got[0], want[0])
+    np.testing.assert_array_equal(got[1], want[1])
+    assert got[2] == want[2]
+
+
+@SETTINGS
+@given(st.integers(0, 2**32 - 1), st.integers(1, 200))
+def test_one_transistor_loop_stops_every_row_where_the_general_loop_does(seed, batch):
+    """The written-out loops (numpy on a few hundred rows, Python floats on
+    a few) freeze converged rows in place instead of moving them out of the
+    working set; every row must still end on the same iterate as the
+    general loop leaves it (the same floats, so exact)."""
+    red, _ = _reduced_designs(seed, batch)
+    u = solve.active_start(red.r, red.u0, red.dev)
+    # _COPY_FROM = 0: every batch takes the general loop.
+    _assert_same_result(solve.newton(red.r, red.u0, red.dev, u), _newton_with(red, u, _COPY_FROM=0))
+
+
+@SETTINGS
+@given(st.integers(0, 2**32 - 1), st.integers(1, 6), st.floats(0.0, 1.5))
+def test_python_float_loop_is_the_numpy_loop(seed, batch, kick):
+    """A few rows run on Python floats: the same operations in the same
+    order as the numpy loop, with numpy's exp and log, so the same floats.
+    Starts kicked up by as much as 1.5 V reach the junction limiting."""
+    red, rng = _reduced_designs(seed, batch)
+    assert batch <= solve._SCALAR_UPTO  # else this would compare the numpy loop with itself
+    u = solve.active_start(red.r, red.u0, red.dev) + kick * rng.uniform(0.0, 1.0, (batch, 1, 2))
+    with np.errstate(all="ignore"):
+        _assert_same_result(solve.newton(red.r, red.u0, red.dev, u), _newton_with(red, u, _SCALAR_UPTO=0))
+
+
+def test_the_kicked_starts_reach_the_limiting():
+    """Some kicked starts above are limited: else the exact check would not
+    cover the written-out limiting."""
+    hits = 0
+    for seed in range(10):
+        red, rng = _reduced_designs(seed, 3)
+        u = solve.active_start(red.r, red.u0, red.dev) + 1.5 * rng.uniform(0.0, 1.0, (3, 1, 2))
+        limited = [solve._scalar_iteration(p, *uj)[3] for p, uj in zip(_pack_rows(red), u[:, 0].tolist())]
+        hits += any(limited)
+    assert hits >= 5
+
+
+def _pack_rows(red):
+    """newton's packed inputs of one transistor, row by row as lists."""
+    v_crit = device.critical_voltage(red.dev)
+    cols = [red.r.reshape(red.r.shape[0], -1), red.u0, *(getattr(red.dev, f) for f in device.PARAM_FIELDS), v_crit]
+    return np.concatenate(cols, axis=1).tolist()
 
 
 def _stage_with_device(d):

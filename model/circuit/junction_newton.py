@@ -24,6 +24,8 @@ _START_CURRENT = 1e-3
 MAX_ITER = 200
 #: From this batch size on, one Newton step copies its inputs entry-major.
 _COPY_FROM = 256
+#: Up to this many rows, one transistor's Newton runs on Python floats.
+_SCALAR_UPTO = 6
 
 
 def entry_major(a):
@@ -66,6 +68,10 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
         for iterations in range(1, max_iter + 1):
             # Written out for one transistor where numpy's per-call cost
             # dominates; on big batches the general step's memory traffic is less.
+            if count == 1 and rows.size <= _SCALAR_UPTO:
+                u_one, done_one, iterations = _scalar_loop(pack, u, done, iterations - 1, max_iter)
+                u_out[..., rows], done_out[rows] = u_one, done_one
+                break
             if count == 1 and rows.size < _COPY_FROM:
                 u_one, done_one, iterations = _one_loop(r, u0, dev, u, vt_j, v_crit, pack[betas], done,
                                                         iterations - 1, max_iter)
@@ -116,6 +122,102 @@ def _one_loop(r, u0, dev, u, vt, v_crit, betas, done, iterations: int, max_iter:
             if working == 0:
                 break
     return u, frozen, iterations
+
+
+def _scalar_loop(pack, u, done, iterations: int, max_iter: int):
+    """:func:`_one_loop` on Python floats, for a working set of a few rows
+    (a design's operating point and its β variants: three), where even one
+    numpy call per operation costs more than the arithmetic of every row.
+    Each row goes through the same operations in the same order as in
+    :func:`_one_iteration` (exp and log from numpy, which give the same
+    floats on a scalar as on an array; the rest IEEE arithmetic either
+    way), and rows are retired by the same rule, so every row stops on the
+    same iterate.  ``pack``, ``u`` and ``done`` as newton has them."""
+    rows = pack.T.tolist()
+    us = u[0].T.tolist()
+    done = done.tolist()
+    frozen = [False] * len(us)
+    working = len(us)
+    for iterations in range(iterations + 1, max_iter + 1):
+        for j, (p, (vbe, vbc)) in enumerate(zip(rows, us)):
+            if frozen[j]:
+                continue
+            new_e, new_c, moved, limited = _scalar_iteration(p, vbe, vbc)
+            size = _nan_max(abs(new_e), abs(new_c))
+            done[j] = done[j] or (moved <= _V_TOL * (1.0 + size) and not limited)
+            us[j] = [new_e, new_c]
+        if iterations == 1:
+            continue
+        n_done = sum(done) - (len(us) - working)
+        if 4 * n_done >= working:
+            frozen = list(done)
+            working -= n_done
+            if working == 0:
+                break
+    return np.array(us).T[None], np.array(frozen, dtype=bool), iterations
+
+
+def _scalar_iteration(p, vbe: float, vbc: float):
+    """:func:`_one_iteration` for one row of newton's pack ``p`` (a list of
+    floats): (new VBE, new VBC, largest move, whether either was limited)."""
+    try:
+        s0, s1 = _scalar_step(p, vbe, vbc)
+    except ZeroDivisionError:  # numpy's quotient by zero (inf or nan) on numpy scalars
+        s0, s1 = _scalar_step([np.float64(x) for x in p], np.float64(vbe), np.float64(vbc))
+    vt, v_crit = p[10], p[12]
+    new_e, new_c = vbe + s0, vbc + s1
+    limited = False
+    out = []
+    for new, old in ((new_e, vbe), (new_c, vbc)):
+        if new > v_crit and abs(new - old) > 2.0 * vt:  # device.limit_junction, written out
+            limited = True
+            if old > 0.0:
+                arg = 1.0 + (new - old) / vt
+                new = old + vt * float(np.log(max(arg, 1e-300))) if arg > 0.0 else v_crit
+            else:
+                new = vt * float(np.log(max(new / vt, 1e-300)))
+        out.append(float(new))
+    new_e, new_c = out
+    return new_e, new_c, _nan_max(abs(new_e - vbe), abs(new_c - vbc)), limited
+
+
+def _scalar_step(p, vbe, vbc):
+    """:func:`_one_transistor`'s step for one row: the same device
+    equations and 2 × 2 solve, term for term in the same order."""
+    r00, r01, r10, r11, u0e, u0c, i_s, beta_f, beta_r, va, vt = p[:11]
+    (e_e, slope_e), (e_c, slope_c) = _scalar_exp(vbe / vt), _scalar_exp(vbc / vt)
+    i_f, i_r = i_s * (e_e - 1.0), i_s * (e_c - 1.0)
+    g_f, g_r = i_s * slope_e / vt, i_s * slope_c / vt
+    f_beta, r_beta, gf_beta, gr_beta = i_f / beta_f, i_r / beta_r, g_f / beta_f, g_r / beta_r
+    early = 1.0 - vbc / va
+    net = i_f - i_r
+    ic = net * early - r_beta
+    ib = f_beta + r_beta
+    d_vbe = g_f * early
+    d_vbc = -(g_r * early) - net / va - gr_beta
+    f0 = (u0e - vbe) - (r00 * ic + r01 * ib)
+    f1 = (u0c - vbc) - (r10 * ic + r11 * ib)
+    m00 = (r00 * d_vbe + r01 * gf_beta) + 1.0
+    m01 = r00 * d_vbc + r01 * gr_beta
+    m10 = r10 * d_vbe + r11 * gf_beta
+    m11 = (r10 * d_vbc + r11 * gr_beta) + 1.0
+    det = m00 * m11 - m01 * m10
+    return (m11 * f0 - m01 * f1) / det, (m00 * f1 - m10 * f0) / det
+
+
+def _scalar_exp(x):
+    """(exp, slope) of device._exp_limited for one float: exp(x) itself up to
+    the linear continuation (NaN stays NaN)."""
+    if x <= device._EXP_LIMIT:
+        e = float(np.exp(x))
+        return e, e
+    slope = float(np.exp(x if x != x else device._EXP_LIMIT))
+    return slope * (1.0 + _nan_max(x - device._EXP_LIMIT, 0.0)), slope
+
+
+def _nan_max(a, b):
+    """np.maximum of two floats: NaN if either is."""
+    return a if a > b or a != a else b
 
 
 def _unpack(pack, count: int):
