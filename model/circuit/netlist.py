@@ -123,7 +123,7 @@ class Netlist:
     def with_source(self, name: str, v) -> "Netlist":
         """The same circuit with voltage source ``name`` set to ``v`` volts."""
         out = [replace(e, v=_batch_array(v, self.batch)) if e.name == name else e for e in self.elements]
-        return Netlist(tuple(out), self.batch)
+        return self._same_shape(tuple(out), self.batch)
 
     def coupling_as_sources(self, volts: dict[str, np.ndarray]) -> "Netlist":
         """Coupling capacitors replaced by sources at the given voltages (a − b, V).
@@ -143,11 +143,20 @@ class Netlist:
     def take(self, rows) -> "Netlist":
         """Only the batch rows picked by an integer index array."""
         rows = np.asarray(rows)
-        return Netlist(tuple(_take_element(e, self.batch, rows) for e in self.elements), rows.size)
+        return self._same_shape(tuple(_take_element(e, self.batch, rows) for e in self.elements), rows.size)
 
     def repeat(self, n: int) -> "Netlist":
         """Each batch row repeated ``n`` times in a row: a sweep of n points per design."""
-        return Netlist(tuple(_repeat_element(e, self.batch, n) for e in self.elements), self.batch * n)
+        return self._same_shape(tuple(_repeat_element(e, self.batch, n) for e in self.elements), self.batch * n)
+
+    def _same_shape(self, elements: tuple, batch: int) -> "Netlist":
+        """A netlist of the same shape as this one with other values: the
+        shape's cached properties carry over (a plan is looked up by them)."""
+        out = Netlist(elements, batch)
+        for name in ("signature", "nodes"):
+            if name in self.__dict__:
+                out.__dict__[name] = self.__dict__[name]
+        return out
 
 
 def terminals(e) -> tuple[str, ...]:
