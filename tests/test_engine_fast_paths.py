@@ -146,6 +146,28 @@ def test_python_float_loop_is_the_numpy_loop(seed, batch, kick):
         _assert_same_result(solve.newton(red.r, red.u0, red.dev, u), _newton_with(red, u, _SCALAR_UPTO=0))
 
 
+@SETTINGS
+@given(st.integers(0, 2**32 - 1), st.integers(1, 6), st.floats(0.0, 1.5))
+def test_python_float_start_and_last_step_are_the_numpy_ones(seed, batch, kick):
+    """The forward-active start and the last linearised step of a few rows
+    on Python floats: the same floats as the numpy code (exact)."""
+    red, rng = _reduced_designs(seed, batch)
+    saved = solve._SCALAR_UPTO
+    try:
+        solve._SCALAR_UPTO = 0
+        start = solve.active_start(red.r, red.u0, red.dev)
+        u = start + kick * rng.uniform(0.0, 1.0, (batch, 1, 2))
+        with np.errstate(all="ignore"):
+            step, i = solve.newton_step(red.r, red.u0, red.dev, u)
+    finally:
+        solve._SCALAR_UPTO = saved
+    np.testing.assert_array_equal(solve.active_start(red.r, red.u0, red.dev), start)
+    with np.errstate(all="ignore"):
+        got_step, got_i = solve.newton_step(red.r, red.u0, red.dev, u)
+    np.testing.assert_array_equal(got_step, step)
+    np.testing.assert_array_equal(got_i, i)
+
+
 def test_the_kicked_starts_reach_the_limiting():
     """Some kicked starts above are limited: else the exact check would not
     cover the written-out limiting."""

@@ -160,10 +160,7 @@ def _scalar_loop(pack, u, done, iterations: int, max_iter: int):
 def _scalar_iteration(p, vbe: float, vbc: float):
     """:func:`_one_iteration` for one row of newton's pack ``p`` (a list of
     floats): (new VBE, new VBC, largest move, whether either was limited)."""
-    try:
-        s0, s1 = _scalar_step(p, vbe, vbc)
-    except ZeroDivisionError:  # numpy's quotient by zero (inf or nan) on numpy scalars
-        s0, s1 = _scalar_step([np.float64(x) for x in p], np.float64(vbe), np.float64(vbc))
+    s0, s1 = _scalar_linearised(p, vbe, vbc)[:2]
     vt, v_crit = p[10], p[12]
     new_e, new_c = vbe + s0, vbc + s1
     limited = False
@@ -181,9 +178,19 @@ def _scalar_iteration(p, vbe: float, vbc: float):
     return new_e, new_c, _nan_max(abs(new_e - vbe), abs(new_c - vbc)), limited
 
 
+def _scalar_linearised(p, vbe: float, vbc: float):
+    """:func:`_one_transistor` for one row of newton's pack ``p``: the step,
+    (IC, IB), ∂IC/∂(VBE, VBC) and ∂IB/∂(VBE, VBC), as floats."""
+    try:
+        return _scalar_step(p, vbe, vbc)
+    except ZeroDivisionError:  # numpy's quotient by zero (inf or nan), on numpy scalars
+        return tuple(float(x) for x in _scalar_step([np.float64(x) for x in p], np.float64(vbe), np.float64(vbc)))
+
+
 def _scalar_step(p, vbe, vbc):
-    """:func:`_one_transistor`'s step for one row: the same device
-    equations and 2 × 2 solve, term for term in the same order."""
+    """:func:`_scalar_linearised` without the guard: the same device
+    equations and 2 × 2 solve as :func:`_one_transistor`, term for term in
+    the same order."""
     r00, r01, r10, r11, u0e, u0c, i_s, beta_f, beta_r, va, vt = p[:11]
     (e_e, slope_e), (e_c, slope_c) = _scalar_exp(vbe / vt), _scalar_exp(vbc / vt)
     i_f, i_r = i_s * (e_e - 1.0), i_s * (e_c - 1.0)
@@ -202,7 +209,7 @@ def _scalar_step(p, vbe, vbc):
     m10 = r10 * d_vbe + r11 * gf_beta
     m11 = (r10 * d_vbc + r11 * gr_beta) + 1.0
     det = m00 * m11 - m01 * m10
-    return (m11 * f0 - m01 * f1) / det, (m00 * f1 - m10 * f0) / det
+    return (m11 * f0 - m01 * f1) / det, (m00 * f1 - m10 * f0) / det, ic, ib, d_vbe, d_vbc, gf_beta, gr_beta
 
 
 def _scalar_exp(x):
@@ -290,6 +297,11 @@ def active_start(r, u0, dev: device.DeviceParams):
     out = np.empty((u0.shape[0], count, 2))
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         crit = device.critical_voltage(dev)
+        if count == 1 and u0.shape[0] <= _SCALAR_UPTO:
+            try:
+                return _scalar_start(r, u0, dev, crit)
+            except ZeroDivisionError:  # a row with no resistance to its base: the arrays give inf or nan
+                pass
         for t in range(count):
             e, c = 2 * t, 2 * t + 1
             beta, vt, i_s = dev.beta_f[:, t], dev.vt[:, t], dev.i_s[:, t]
@@ -304,9 +316,38 @@ def active_start(r, u0, dev: device.DeviceParams):
         return np.where(np.isfinite(out), out, 0.0)
 
 
+def _scalar_start(r, u0, dev, crit):
+    """:func:`active_start` for one transistor on Python floats, row by row
+    (the same operations in the same order, numpy's logarithms)."""
+    rows = np.concatenate([r.reshape(-1, 4), u0, dev.beta_f, dev.vt, dev.i_s, crit], axis=1).tolist()
+    out = []
+    for r_ee, r_ec, r_ce, r_cc, u0_e, u0_c, beta, vt, i_s, v_crit in rows:
+        per_ib_e = r_ee * beta + r_ec
+        vbe = vt * float(np.log(_START_CURRENT / i_s))
+        for _ in range(3):
+            ib = _nan_max((u0_e - vbe) / per_ib_e, 0.0)
+            vbe = vt * float(np.log1p(beta * ib / i_s)) if ib > 0.0 else u0_e
+        vbc = u0_c - (r_ce * beta + r_cc) * ib
+        out.append([[_nan_min(vbe, v_crit), _nan_min(vbc, v_crit)]])
+    out = np.array(out)
+    return np.where(np.isfinite(out), out, 0.0)
+
+
+def _nan_min(a, b):
+    """np.minimum of two floats: NaN if either is."""
+    return a if a < b or a != a else b
+
+
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
+    if u.shape[1] == 1 and u.shape[0] <= _SCALAR_UPTO:
+        rows = np.concatenate([r.reshape(-1, 4), u0, dev.i_s, dev.beta_f, dev.beta_r, dev.va, dev.vt], axis=1)
+        out = [_scalar_linearised(p, vbe, vbc) for p, (vbe, vbc) in zip(rows.tolist(), u[:, 0].tolist())]
+        step = np.array([[s0, s1] for s0, s1, *_ in out])
+        i = np.array([[ic + (dv0 * s0 + dv1 * s1), ib + (gb0 * s0 + gb1 * s1)]
+                      for s0, s1, ic, ib, dv0, dv1, gb0, gb1 in out])
+        return step[:, None], i
     if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
         # Contiguous entry-major copies: strided reads cost more than the copies
         # (the device fields, (batch, 1), transpose contiguous as they are).
