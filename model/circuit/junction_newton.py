@@ -111,8 +111,9 @@ def _one_loop(r, u0, dev, u, vt, v_crit, betas, done, iterations: int, max_iter:
     working = done.size
     for iterations in range(iterations + 1, max_iter + 1):
         u_new, moved, limited = _one_iteration(r, u0, dev, u, vt, v_crit, betas)
-        done |= (moved <= _V_TOL * (1.0 + np.abs(u_new).max(axis=(0, 1)))) & ~limited
-        u = np.where(frozen, u, u_new)
+        magnitude = np.abs(u_new[0])  # the larger of the two, as a maximum over both axes
+        done |= (moved <= _V_TOL * (1.0 + np.maximum(magnitude[0], magnitude[1]))) & ~limited
+        u = np.where(frozen, u, u_new) if working < done.size else u_new
         if iterations == 1:
             continue
         n_done = np.count_nonzero(done) - (done.size - working)

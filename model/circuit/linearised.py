@@ -175,7 +175,7 @@ class Factored:
     """
 
     def __init__(self, net: Netlist, op: OperatingPoint):
-        self.net, self.op, self.variant = net, op, net
+        self.net, self.op, self._edits = net, op, ()
         self.plan = plan_for(net, MIDBAND)
         g, v = admittance_values(net, self.plan, excite={})
         a, _ = _linearised(net, op, self.plan, g, v)
@@ -190,7 +190,8 @@ class Factored:
         out = object.__new__(Factored)
         out.__dict__ = dict(self.__dict__)
         group = [e for e in full.elements if tag in e.tags]
-        out.variant = self.variant.without(tag) if remove else self.variant.with_elements(*group)
+        # The changed netlist itself is built only if a row needs a direct solve.
+        out._edits = self._edits + ((tag, remove, tuple(group)),)
         parts = _conductances(group, self.plan)
         if parts is None or (remove and any(np.isinf(g).any() for _, g in parts)):
             out.exact = False
@@ -201,6 +202,13 @@ class Factored:
                 (ends, (-1.0 if remove else 1.0) / batch_rows(g, batch), remove)
                 for ends, g in parts if ends[0] != ends[1])
         return out
+
+    def variant(self) -> Netlist:
+        """The netlist with this network's parts added and removed."""
+        net = self.net
+        for tag, remove, group in self._edits:
+            net = net.without(tag) if remove else net.with_elements(*group)
+        return net
 
     def _z(self, i: int, j: int):
         return self.z[i, j] if i >= 0 and j >= 0 else 0.0
@@ -240,7 +248,7 @@ class Factored:
 
     def _direct(self, into, rows, fast):
         """The rows ``rows`` solved directly on the changed netlist."""
-        sol = small_signal(self.variant.take(rows), self.op.take(rows), inject={into: 1.0})
+        sol = small_signal(self.variant().take(rows), self.op.take(rows), inject={into: 1.0})
         if fast is None:
             return lambda node: sol[node]
 
