@@ -59,7 +59,8 @@ class StageCircuit:
 def shape_of(topology: str, values: dict) -> tuple:
     """The structural key of each batch row: which optional parts are absent
     (zero resistors, capacitors not fitted, an open load) and the polarity."""
-    v = {k: np.atleast_1d(np.asarray(x, dtype=float)) for k, x in values.items()}
+    keys = (*_OPTIONAL[topology], "load.rl", "transistor.sign")
+    v = {k: np.atleast_1d(np.asarray(values[k], dtype=float)) for k in keys}
     flags = [v[k] == 0 for k in _OPTIONAL[topology]]
     flags += [np.isinf(v["load.rl"]), v["transistor.sign"] < 0]
     return np.stack(np.broadcast_arrays(*flags), axis=-1)
