@@ -134,7 +134,7 @@ def test_one_transistor_loop_stops_every_row_where_the_general_loop_does(seed, b
 
 
 @SETTINGS
-@given(st.integers(0, 2**32 - 1), st.integers(1, 6), st.floats(0.0, 1.5))
+@given(st.integers(0, 2**32 - 1), st.integers(1, 16), st.floats(0.0, 1.5))
 def test_python_float_loop_is_the_numpy_loop(seed, batch, kick):
     """A few rows run on Python floats: the same operations in the same
     order as the numpy loop, with numpy's exp and log, so the same floats.
@@ -147,7 +147,7 @@ def test_python_float_loop_is_the_numpy_loop(seed, batch, kick):
 
 
 @SETTINGS
-@given(st.integers(0, 2**32 - 1), st.integers(1, 6), st.floats(0.0, 1.5))
+@given(st.integers(0, 2**32 - 1), st.integers(1, 16), st.floats(0.0, 1.5))
 def test_python_float_start_and_last_step_are_the_numpy_ones(seed, batch, kick):
     """The forward-active start and the last linearised step of a few rows
     on Python floats: the same floats as the numpy code (exact)."""
