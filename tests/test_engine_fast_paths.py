@@ -187,6 +187,40 @@ def _pack_rows(red):
     return np.concatenate(cols, axis=1).tolist()
 
 
+@SETTINGS
+@given(st.integers(0, 2**32 - 1), st.integers(1, 16), st.booleans())
+def test_midband_corrections_on_python_floats_are_the_numpy_ones(seed, batch, unloaded):
+    """The Woodbury corrections of a few rows on Python floats: the same
+    floats as the numpy code (exact), open load or not."""
+    import model.circuit.linearised as lin
+    from model.analyses.figures import design_values
+    from model.analyses.midband import midband_figures
+    from model.circuit.newton import operating_point
+    from model.circuit.topologies import build
+    from model.design.stage import default_design
+
+    rng = np.random.default_rng(seed)
+    values = {k: np.repeat(v, batch) for k, v in design_values([default_design("common-emitter")]).items()}
+    for key, lo, hi in (("bias.r1", 3, 6), ("bias.r2", 2, 5), ("stage.rc", 2, 5), ("stage.re1", 1, 3),
+                        ("load.rl", 2, 6), ("source.rs", 1, 5)):
+        values[key] = 10 ** rng.uniform(lo, hi, batch)
+    if unloaded:
+        values["load.rl"] = np.full(batch, np.inf)
+    stage = build("common-emitter", values)
+    op = operating_point(stage.net)
+    assert batch <= lin._FEW_ROWS  # else both runs below would take the numpy code
+    with np.errstate(all="ignore"):
+        fast = midband_figures(stage, op, values["source.rs"])
+        saved = lin._FEW_ROWS
+        try:
+            lin._FEW_ROWS = 0
+            slow = midband_figures(stage, op, values["source.rs"])
+        finally:
+            lin._FEW_ROWS = saved
+    for name in fast.__dataclass_fields__:
+        np.testing.assert_array_equal(getattr(fast, name), getattr(slow, name), err_msg=name)
+
+
 def _stage_with_device(d):
     """A single design's built stage with Cπ and Cμ in place, and its
     operating point (None when it does not solve)."""

@@ -6,6 +6,8 @@ solve in :mod:`model.circuit.newton`; nothing here knows which topology it solve
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from model.circuit.assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
@@ -159,6 +161,8 @@ class FrequencySweep:
 #: part's 1/g is redone as a direct solve: the correction's relative error is
 #: then at most a few float epsilons over this ratio, about 1e-12.
 _CANCELLATION = 1e-3
+#: Up to this many rows, Factored.response runs on Python floats.
+_FEW_ROWS = 16
 
 
 class Factored:
@@ -224,6 +228,9 @@ class Factored:
         if not self.exact or j < 0:
             return self._direct(into, np.arange(batch), None)
         parts = self.parts
+        if batch <= _FEW_ROWS and len(parts) <= 2:
+            at, bad = self._few_rows(j)
+            return self._direct(into, np.flatnonzero(bad), at) if any(bad) else at
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             s = [[self._zu(ends[0], other) - self._zu(ends[1], other) + (cinv if k == m else 0.0)
                   for m, (other, _, _) in enumerate(parts)] for k, (ends, cinv, _) in enumerate(parts)]
@@ -245,6 +252,55 @@ class Factored:
         if bad.any():
             return self._direct(into, np.flatnonzero(bad), at)
         return at
+
+    def _few_rows(self, j: int):
+        """:meth:`response` row by row on Python floats, for a few rows and at
+        most two changed parts: the same products, sums and closed-form
+        solve in the same order (numpy's per-call cost is most of the time
+        on a design and its β variants).  Returns (at, bad rows)."""
+        z = self.z.transpose(2, 0, 1).tolist()
+        parts = [(ends, cinv.tolist(), removed) for ends, cinv, removed in self.parts]
+        coefs, bad = [], []
+        for b, zb in enumerate(z):
+            def entry(i, k):
+                return zb[i][k] if i >= 0 and k >= 0 else 0.0
+
+            def zu(i, ends):
+                return entry(i, ends[0]) - entry(i, ends[1])
+
+            s = [[zu(ends[0], other) - zu(ends[1], other) + (cinv[b] if k == m else 0.0)
+                  for m, (other, _, _) in enumerate(parts)] for k, (ends, cinv, _) in enumerate(parts)]
+            y = [entry(ends[0], j) - entry(ends[1], j) for ends, _, _ in parts]
+            try:
+                if len(y) == 1:
+                    coef = [y[0] / s[0][0]]
+                elif len(y) == 2:
+                    det = s[0][0] * s[1][1] - s[0][1] * s[1][0]
+                    coef = [(s[1][1] * y[0] - s[0][1] * y[1]) / det, (s[0][0] * y[1] - s[1][0] * y[0]) / det]
+                else:
+                    coef = []
+                wrong = not all(math.isfinite(c) for c in coef)
+            except ZeroDivisionError:  # numpy's quotient would be inf or nan: solved directly
+                coef, wrong = [0.0] * len(y), True
+            for k, (_, cinv, removed) in enumerate(parts):
+                wrong = wrong or (removed and abs(s[k][k]) < _CANCELLATION * abs(cinv[b]))
+            coefs.append(coef)
+            bad.append(wrong)
+
+        def at(node: str):
+            i = self.plan.index.get(node, -1)
+            if i < 0:
+                return np.zeros(len(z))
+            out = []
+            for zb, coef in zip(z, coefs):
+                acc = 0.0
+                for (ends, _, _), c in zip(parts, coef):
+                    a, b = ends
+                    acc = acc + ((zb[i][a] if a >= 0 else 0.0) - (zb[i][b] if b >= 0 else 0.0)) * c
+                out.append(zb[i][j] - acc)
+            return np.array(out)
+
+        return at, bad
 
     def _direct(self, into, rows, fast):
         """The rows ``rows`` solved directly on the changed netlist."""
