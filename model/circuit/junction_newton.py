@@ -136,8 +136,9 @@ def _one_loop(pack, r, u0, dev, u, vt, v_crit, betas, done, iterations: int, max
 
 def _scalar_loop(pack, u, done, iterations: int, max_iter: int):
     """:func:`_one_loop` on Python floats, for a working set of a few rows
-    (a design's operating point and its β variants: three), where even one
-    numpy call per operation costs more than the arithmetic of every row.
+    (a design's operating point and its β variants, the last unconverged
+    points of a sweep), where one numpy call per operation costs more than
+    the arithmetic of every row.
     Each row goes through the same operations in the same order as in
     :func:`_one_iteration` (exp and log from numpy, which give the same
     floats on a scalar as on an array; the rest IEEE arithmetic either
