@@ -13,10 +13,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from model.analyses.capacitance import DeviceCapacitance
-from model.circuit.linearised import small_signal, transfer_impedances
+from model.circuit.linearised import impedance_matrix, small_signal, transfer_impedances
 from model.circuit.netlist import GROUND, Capacitor
 from model.circuit.newton import OperatingPoint
-from model.circuit.plan import MIDBAND, plan_for
+from model.circuit.plan import DC, MIDBAND, plan_for
 from model.circuit.topologies import EMF, StageCircuit
 
 
@@ -70,12 +70,76 @@ def _resistance_across(net, op, a: str, b: str, z=None) -> float:
 
 def short_circuit_parts(stage: StageCircuit, op: OperatingPoint) -> tuple:
     """Short-circuit time constant of each coupling and bypass capacitor."""
+    caps = [cap for cap in stage.net.of_type(Capacitor) if cap.coupling]
+    shared = _shorted_resistances(stage.net, op, caps)
     out = []
-    for cap in stage.net.of_type(Capacitor):
-        if cap.coupling:
+    for cap, r in zip(caps, shared):
+        if r is None:
             r = _resistance_across(stage.net.drop(cap.name), op, cap.a, cap.b)
-            out.append(PartEstimate(cap.name, r, float(cap.c[0])))
+        out.append(PartEstimate(cap.name, r, float(cap.c[0])))
     return tuple(out)
+
+
+#: A resistance that keeps less than this fraction of what the capacitor saw
+#: with every capacitor open is solved directly instead: the correction's
+#: relative error is then at most a few float epsilons over this ratio.
+_CANCELLATION = 1e-3
+
+
+def _shorted_resistances(net, op: OperatingPoint, caps) -> list:
+    """The resistance (Ω) across each coupling capacitor of a single design
+    with the others shorted, from one inversion of the network with every
+    capacitor open: each short is an infinite conductance, a rank-one
+    (Woodbury) correction, so R = z_kk − xᵀS⁻¹y, with S the transfer
+    impedances between the shorted ports, y theirs for a current across
+    port k and x port k's for a current across each of them (Z is not
+    symmetric: the transistor's gm is not reciprocal).  None for a capacitor
+    this cannot answer with confidence (a node with no DC path to a known
+    one, a short that does nothing or cancels most of z_kk): it is solved
+    directly."""
+    plan = plan_for(net, DC)
+    if net.batch != 1 or plan.floating or not caps:
+        return [None] * len(caps)
+    _, z = impedance_matrix(net, op, DC)
+    z = z[0].tolist()
+    ports = [(plan.index.get(c.a, -1), plan.index.get(c.b, -1)) for c in caps]
+
+    def entry(i, j):
+        return z[i][j] if i >= 0 and j >= 0 else 0.0
+
+    def across(p, q):
+        return entry(p[0], q[0]) - entry(p[0], q[1]) - entry(p[1], q[0]) + entry(p[1], q[1])
+
+    zp = [[across(p, q) for q in ports] for p in ports]
+    out = []
+    for k in range(len(caps)):
+        others = [j for j in range(len(caps)) if j != k]
+        s = [[zp[i][j] for j in others] for i in others]
+        coef = _small_solve(s, [zp[i][k] for i in others])
+        r = zp[k][k] - sum(zp[k][i] * c for i, c in zip(others, coef)) if coef is not None else math.nan
+        ok = all(zp[j][j] > 0.0 for j in others) and math.isfinite(r) and r >= _CANCELLATION * abs(zp[k][k])
+        out.append(abs(r) if ok else None)
+    return out
+
+
+def _small_solve(s, y):
+    """x with s·x = y for a small dense system of Python floats (Gaussian
+    elimination with partial pivoting); None if it is singular."""
+    n = len(y)
+    m = [list(row) + [b] for row, b in zip(s, y)]
+    for k in range(n):
+        p = max(range(k, n), key=lambda i: abs(m[i][k]))
+        if m[p][k] == 0.0:
+            return None
+        m[k], m[p] = m[p], m[k]
+        for i in range(k + 1, n):
+            f = m[i][k] / m[k][k]
+            for j in range(k, n + 1):
+                m[i][j] -= f * m[k][j]
+    x = [0.0] * n
+    for k in range(n - 1, -1, -1):
+        x[k] = (m[k][n] - sum(m[k][j] * x[j] for j in range(k + 1, n))) / m[k][k]
+    return x
 
 
 def open_circuit_parts(stage: StageCircuit, op: OperatingPoint, z=None) -> tuple:

@@ -33,6 +33,7 @@ _KEYS = (
     "transistor.xti", "transistor.eg", "transistor.xtb", "environment.ambient",
     "transistor.ft", "transistor.cmu", "transistor.theta_ja",  # the response and tj of analyse_many
 )
+_KEY_PARTS = tuple(tuple(key.split(".")) for key in _KEYS)
 
 #: The keys of ``Figures.to_dict()`` that every consumer may rely on.
 FIGURE_KEYS = (
@@ -47,8 +48,7 @@ FIGURE_KEYS = (
 def design_values(designs: Sequence[Design]) -> dict:
     """Design keys as arrays with one entry per design, ready for a builder."""
     values = {}
-    for key in _KEYS:
-        table, name = key.split(".")
+    for key, (table, name) in zip(_KEYS, _KEY_PARTS):
         values[key] = np.array([getattr(getattr(d, table), name) for d in designs], dtype=float)
     values["transistor.sign"] = np.array([1.0 if d.transistor.polarity == "npn" else -1.0 for d in designs])
     return values

@@ -32,7 +32,7 @@ def dissipation(stage: StageCircuit, op: OperatingPoint) -> Dissipation:
     st = op.states[TRANSISTOR]
     vbe, vbc = op.junctions[:, 0, 0], op.junctions[:, 0, 1]
     p_q = (vbe - vbc) * st.ic + vbe * st.ib
-    i_supply = node_outflows(net, v, op.states)[stage.supply]
+    i_supply = node_outflows(net, v, op.states, currents)[stage.supply]
     return Dissipation(p_q, v[stage.supply] * i_supply, i_supply, p_res)
 
 
@@ -49,13 +49,14 @@ def branch_currents(net: Netlist, v: dict, states: dict) -> dict:
     return out
 
 
-def node_outflows(net: Netlist, v: dict, states: dict) -> dict:
+def node_outflows(net: Netlist, v: dict, states: dict, currents: dict | None = None) -> dict:
     """Current (A) leaving each node through resistors and transistors.
 
     For a node driven by one voltage source this is the current that source
-    delivers; at any other node KCL makes it zero.
+    delivers; at any other node KCL makes it zero.  ``currents``: the
+    :func:`branch_currents` already found, if at hand.
     """
-    currents = branch_currents(net, v, states)
+    currents = branch_currents(net, v, states) if currents is None else currents
     total = {n: np.zeros(net.batch) for n in (*net.nodes, GROUND)}
     for r in net.of_type(Resistor):
         total[r.a] = total[r.a] + currents[r.name]

@@ -117,12 +117,21 @@ def _period(vpk: float):
     """One period of vpk·sin at FFT_POINTS phases as (distinct EMFs, index of
     each sample into them): sin(π − x) = sin x, so samples k and N/2 − k are
     the same point and only N/2 + 1 need solving."""
+    return vpk * _UNIT_WAVE, _FOLDED
+
+
+def _unit_period():
+    """sin at the N/2 + 1 distinct phases −π/2 … π/2, and each of the N
+    samples' index into them (see :func:`_period`)."""
     quarter = FFT_POINTS // 4
     k = np.arange(-quarter, quarter + 1)
-    wave = vpk * np.sin(2.0 * np.pi * k / FFT_POINTS)
     n = np.arange(FFT_POINTS)
     folded = np.where(n <= quarter, n, np.where(n < 3 * quarter, FFT_POINTS // 2 - n, n - FFT_POINTS))
-    return wave, folded + quarter
+    return np.sin(2.0 * np.pi * k / FFT_POINTS), folded + quarter
+
+
+_UNIT_WAVE, _FOLDED = _unit_period()
+_UNIT_WAVE.flags.writeable = _FOLDED.flags.writeable = False
 
 
 @dataclass(frozen=True)

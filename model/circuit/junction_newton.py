@@ -24,6 +24,9 @@ _START_CURRENT = 1e-3
 MAX_ITER = 200
 #: From this batch size on, one Newton step copies its inputs entry-major.
 _COPY_FROM = 256
+#: Up to this many rows, one transistor's Newton runs on Python floats
+#: (about 2 µs a row and iteration, against some 35 µs for a numpy iteration).
+_SCALAR_UPTO = 16
 
 
 def entry_major(a):
@@ -66,13 +69,19 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
         for iterations in range(1, max_iter + 1):
             # Written out for one transistor where numpy's per-call cost
             # dominates; on big batches the general step's memory traffic is less.
+            if count == 1 and rows.size <= _SCALAR_UPTO:
+                u_one, done_one, iterations = _scalar_loop(pack, u, done, iterations - 1, max_iter)
+                u_out[..., rows], done_out[rows] = u_one, done_one
+                break
             if count == 1 and rows.size < _COPY_FROM:
-                u_new, moved, limited = _one_iteration(r, u0, dev, u, vt_j, v_crit, pack[betas])
-            else:
-                step, _ = _step(r, u0, dev, u, currents=False)
-                u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
-                moved = np.abs(u_new - u).max(axis=(0, 1))
-                limited = limited.any(axis=(0, 1))
+                u_one, done_one, iterations = _one_loop(pack, r, u0, dev, u, vt_j, v_crit, pack[betas], done,
+                                                        iterations - 1, max_iter)
+                u_out[..., rows], done_out[rows] = u_one, done_one
+                break
+            step, _ = _step(r, u0, dev, u, currents=False)
+            u_new, limited = device.limit_junction(u + step, u, vt_j, v_crit)
+            moved = np.abs(u_new - u).max(axis=(0, 1))
+            limited = limited.any(axis=(0, 1))
             size = np.abs(u_new).max(axis=(0, 1))
             done |= (moved <= _V_TOL * (1.0 + size)) & ~limited
             u = u_new
@@ -89,6 +98,144 @@ def newton(r, u0, dev: device.DeviceParams, u, max_iter: int = MAX_ITER):
         else:
             u_out[..., rows] = u
     return u_out.transpose(2, 0, 1).copy(), done_out, iterations
+
+
+def _one_loop(pack, r, u0, dev, u, vt, v_crit, betas, done, iterations: int, max_iter: int):
+    """:func:`newton`'s loop for one transistor on fewer than _COPY_FROM rows,
+    from iteration ``iterations`` + 1 on (inputs as :func:`_one_iteration`
+    takes them, ``pack`` and ``done`` as newton has them).  Rows leave the
+    working set as in newton, but are frozen where they are instead of moved
+    out: on a design's few hundred rows the copies of a shrinking working set
+    cost more than iterating every row.  The last few rows go on in
+    :func:`_scalar_loop`.  Every row stops at the same iterate as in newton.
+    Returns (u, converged, iterations)."""
+    frozen = np.zeros_like(done)
+    working = done.size
+    for iterations in range(iterations + 1, max_iter + 1):
+        if working <= _SCALAR_UPTO:
+            rest = np.flatnonzero(~frozen)
+            u_rest, frozen[rest], iterations = _scalar_loop(pack[:, rest], u[..., rest], done[rest],
+                                                            iterations - 1, max_iter)
+            u = u.copy()
+            u[..., rest] = u_rest
+            break
+        u_new, moved, limited = _one_iteration(r, u0, dev, u, vt, v_crit, betas)
+        magnitude = np.abs(u_new[0])  # the larger of the two, as a maximum over both axes
+        done |= (moved <= _V_TOL * (1.0 + np.maximum(magnitude[0], magnitude[1]))) & ~limited
+        u = np.where(frozen, u, u_new) if working < done.size else u_new
+        if iterations == 1:
+            continue
+        n_done = np.count_nonzero(done) - (done.size - working)
+        if 4 * n_done >= working:
+            frozen = done.copy()
+            working -= n_done
+            if working == 0:
+                break
+    return u, frozen, iterations
+
+
+def _scalar_loop(pack, u, done, iterations: int, max_iter: int):
+    """:func:`_one_loop` on Python floats, for a working set of a few rows
+    (a design's operating point and its β variants, the last unconverged
+    points of a sweep), where one numpy call per operation costs more than
+    the arithmetic of every row.
+    Each row goes through the same operations in the same order as in
+    :func:`_one_iteration` (exp and log from numpy, which give the same
+    floats on a scalar as on an array; the rest IEEE arithmetic either
+    way), and rows are retired by the same rule, so every row stops on the
+    same iterate.  ``pack``, ``u`` and ``done`` as newton has them."""
+    rows = pack.T.tolist()
+    us = u[0].T.tolist()
+    done = done.tolist()
+    frozen = [False] * len(us)
+    working = len(us)
+    for iterations in range(iterations + 1, max_iter + 1):
+        for j, (p, (vbe, vbc)) in enumerate(zip(rows, us)):
+            if frozen[j]:
+                continue
+            new_e, new_c, moved, limited = _scalar_iteration(p, vbe, vbc)
+            size = _nan_max(abs(new_e), abs(new_c))
+            done[j] = done[j] or (moved <= _V_TOL * (1.0 + size) and not limited)
+            us[j] = [new_e, new_c]
+        if iterations == 1:
+            continue
+        n_done = sum(done) - (len(us) - working)
+        if 4 * n_done >= working:
+            frozen = list(done)
+            working -= n_done
+            if working == 0:
+                break
+    return np.array(us).T[None], np.array(frozen, dtype=bool), iterations
+
+
+def _scalar_iteration(p, vbe: float, vbc: float):
+    """:func:`_one_iteration` for one row of newton's pack ``p`` (a list of
+    floats): (new VBE, new VBC, largest move, whether either was limited)."""
+    s0, s1 = _scalar_linearised(p, vbe, vbc)[:2]
+    vt, v_crit = p[10], p[12]
+    new_e, new_c = vbe + s0, vbc + s1
+    limited = False
+    out = []
+    for new, old in ((new_e, vbe), (new_c, vbc)):
+        if new > v_crit and abs(new - old) > 2.0 * vt:  # device.limit_junction, written out
+            limited = True
+            if old > 0.0:
+                arg = 1.0 + (new - old) / vt
+                new = old + vt * float(np.log(max(arg, 1e-300))) if arg > 0.0 else v_crit
+            else:
+                new = vt * float(np.log(max(new / vt, 1e-300)))
+        out.append(float(new))
+    new_e, new_c = out
+    return new_e, new_c, _nan_max(abs(new_e - vbe), abs(new_c - vbc)), limited
+
+
+def _scalar_linearised(p, vbe: float, vbc: float):
+    """:func:`_one_transistor` for one row of newton's pack ``p``: the step,
+    (IC, IB), ∂IC/∂(VBE, VBC) and ∂IB/∂(VBE, VBC), as floats."""
+    try:
+        return _scalar_step(p, vbe, vbc)
+    except ZeroDivisionError:  # numpy's quotient by zero (inf or nan), on numpy scalars
+        return tuple(float(x) for x in _scalar_step([np.float64(x) for x in p], np.float64(vbe), np.float64(vbc)))
+
+
+def _scalar_step(p, vbe, vbc):
+    """:func:`_scalar_linearised` without the guard: the same device
+    equations and 2 × 2 solve as :func:`_one_transistor`, term for term in
+    the same order."""
+    r00, r01, r10, r11, u0e, u0c, i_s, beta_f, beta_r, va, vt = p[:11]
+    (e_e, slope_e), (e_c, slope_c) = _scalar_exp(vbe / vt), _scalar_exp(vbc / vt)
+    i_f, i_r = i_s * (e_e - 1.0), i_s * (e_c - 1.0)
+    g_f, g_r = i_s * slope_e / vt, i_s * slope_c / vt
+    f_beta, r_beta, gf_beta, gr_beta = i_f / beta_f, i_r / beta_r, g_f / beta_f, g_r / beta_r
+    early = 1.0 - vbc / va
+    net = i_f - i_r
+    ic = net * early - r_beta
+    ib = f_beta + r_beta
+    d_vbe = g_f * early
+    d_vbc = -(g_r * early) - net / va - gr_beta
+    f0 = (u0e - vbe) - (r00 * ic + r01 * ib)
+    f1 = (u0c - vbc) - (r10 * ic + r11 * ib)
+    m00 = (r00 * d_vbe + r01 * gf_beta) + 1.0
+    m01 = r00 * d_vbc + r01 * gr_beta
+    m10 = r10 * d_vbe + r11 * gf_beta
+    m11 = (r10 * d_vbc + r11 * gr_beta) + 1.0
+    det = m00 * m11 - m01 * m10
+    return (m11 * f0 - m01 * f1) / det, (m00 * f1 - m10 * f0) / det, ic, ib, d_vbe, d_vbc, gf_beta, gr_beta
+
+
+def _scalar_exp(x):
+    """(exp, slope) of device._exp_limited for one float: exp(x) itself up to
+    the linear continuation (NaN stays NaN)."""
+    if x <= device._EXP_LIMIT:
+        e = float(np.exp(x))
+        return e, e
+    slope = float(np.exp(x if x != x else device._EXP_LIMIT))
+    return slope * (1.0 + _nan_max(x - device._EXP_LIMIT, 0.0)), slope
+
+
+def _nan_max(a, b):
+    """np.maximum of two floats: NaN if either is."""
+    return a if a > b or a != a else b
 
 
 def _unpack(pack, count: int):
@@ -161,6 +308,11 @@ def active_start(r, u0, dev: device.DeviceParams):
     out = np.empty((u0.shape[0], count, 2))
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         crit = device.critical_voltage(dev)
+        if count == 1 and u0.shape[0] <= _SCALAR_UPTO:
+            try:
+                return _scalar_start(r, u0, dev, crit)
+            except ZeroDivisionError:  # a row with no resistance to its base: the arrays give inf or nan
+                pass
         for t in range(count):
             e, c = 2 * t, 2 * t + 1
             beta, vt, i_s = dev.beta_f[:, t], dev.vt[:, t], dev.i_s[:, t]
@@ -175,12 +327,43 @@ def active_start(r, u0, dev: device.DeviceParams):
         return np.where(np.isfinite(out), out, 0.0)
 
 
+def _scalar_start(r, u0, dev, crit):
+    """:func:`active_start` for one transistor on Python floats, row by row
+    (the same operations in the same order, numpy's logarithms)."""
+    rows = np.concatenate([r.reshape(-1, 4), u0, dev.beta_f, dev.vt, dev.i_s, crit], axis=1).tolist()
+    out = []
+    for r_ee, r_ec, r_ce, r_cc, u0_e, u0_c, beta, vt, i_s, v_crit in rows:
+        per_ib_e = r_ee * beta + r_ec
+        vbe = vt * float(np.log(_START_CURRENT / i_s))
+        for _ in range(3):
+            ib = _nan_max((u0_e - vbe) / per_ib_e, 0.0)
+            vbe = vt * float(np.log1p(beta * ib / i_s)) if ib > 0.0 else u0_e
+        vbc = u0_c - (r_ce * beta + r_cc) * ib
+        out.append([[_nan_min(vbe, v_crit), _nan_min(vbc, v_crit)]])
+    out = np.array(out)
+    return np.where(np.isfinite(out), out, 0.0)
+
+
+def _nan_min(a, b):
+    """np.minimum of two floats: NaN if either is."""
+    return a if a < b or a != a else b
+
+
 def newton_step(r, u0, dev: device.DeviceParams, u):
     """The Newton step (batch, k, 2) from junction voltages u (batch, k, 2), and
     the forward-sense (IC, IB) (batch, 2k) the linearised devices carry after it."""
+    if u.shape[1] == 1 and u.shape[0] <= _SCALAR_UPTO:
+        rows = np.concatenate([r.reshape(-1, 4), u0, dev.i_s, dev.beta_f, dev.beta_r, dev.va, dev.vt], axis=1)
+        out = [_scalar_linearised(p, vbe, vbc) for p, (vbe, vbc) in zip(rows.tolist(), u[:, 0].tolist())]
+        step = np.array([[s0, s1] for s0, s1, *_ in out])
+        i = np.array([[ic + (dv0 * s0 + dv1 * s1), ib + (gb0 * s0 + gb1 * s1)]
+                      for s0, s1, ic, ib, dv0, dv1, gb0, gb1 in out])
+        return step[:, None], i
     if u.shape[1] == 1 and u.shape[0] < _COPY_FROM:
+        # Contiguous entry-major copies: strided reads cost more than the copies
+        # (the device fields, (batch, 1), transpose contiguous as they are).
         step, (ic, ib), d_ic, g_beta = _one_transistor(
-            r.transpose(1, 2, 0), u0.T, dev.map(lambda a: a.T), u[:, 0].T)
+            entry_major(r), entry_major(u0), dev.map(lambda a: a.T), entry_major(u[:, 0]))
         i = np.empty((u.shape[0], 2))
         i[:, 0] = ic + (d_ic[0] * step[0] + d_ic[1] * step[1])
         i[:, 1] = ib + (g_beta[0] * step[0] + g_beta[1] * step[1])

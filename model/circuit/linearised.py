@@ -6,11 +6,13 @@ solve in :mod:`model.circuit.newton`; nothing here knows which topology it solve
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from model.circuit.assembly import admittance_values, assemble_linear, index_dot, node_dict, terminal_conductance
-from model.circuit.dense import solve_batched
-from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.dense import _LAPACK_BELOW, solve_batched
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource, batch_rows
 from model.circuit.newton import OperatingPoint
 from model.circuit.plan import AC, DC, MIDBAND, Plan, plan_for
 
@@ -62,15 +64,33 @@ def small_signal(
     return node_dict(plan, x, v)
 
 
-def transfer_impedances(net: Netlist, op: OperatingPoint):
-    """Midband transfer impedances with every source at zero: ``z(a, b)`` is
-    the voltage (batch,) at node a for 1 A into node b (Ω), from one solve
-    with the identity as right-hand sides.  Known nodes read 0 V and take
-    current without effect."""
-    plan = plan_for(net, MIDBAND)
+def impedance_matrix(net: Netlist, op: OperatingPoint, kind: str = MIDBAND):
+    """(plan, Z): the inverse (batch, n, n) of the linearised nodal matrix of
+    ``net`` at ``op`` for a MIDBAND or DC (every capacitor open) analysis,
+    every source at zero; Z[:, i, j] is the voltage at unknown i for 1 A into
+    unknown j (Ω).  A singular row comes out non-finite."""
+    plan = plan_for(net, kind)
     g, v = admittance_values(net, plan, excite={})
     a, _ = _linearised(net, op, plan, g, v)
-    z = solve_batched(a, np.broadcast_to(np.eye(plan.n), a.shape).copy())
+    return plan, _inverse(a)
+
+
+def _inverse(a):
+    """a⁻¹ for every batch row: on small batches one LAPACK inversion (a
+    third of a solve against the identity) unless some row is singular."""
+    if 0 < a.shape[0] < _LAPACK_BELOW and a.shape[-1] > 0:
+        try:
+            return np.linalg.inv(a)
+        except np.linalg.LinAlgError:
+            pass
+    return solve_batched(a, np.broadcast_to(np.eye(a.shape[-1]), a.shape).copy())
+
+
+def transfer_impedances(net: Netlist, op: OperatingPoint):
+    """Midband transfer impedances with every source at zero: ``z(a, b)`` is
+    the voltage (batch,) at node a for 1 A into node b (Ω), from one
+    inversion.  Known nodes read 0 V and take current without effect."""
+    plan, z = impedance_matrix(net, op)
     zero = np.zeros(net.batch)
 
     def lookup(at: str, into: str):
@@ -141,6 +161,8 @@ class FrequencySweep:
 #: part's 1/g is redone as a direct solve: the correction's relative error is
 #: then at most a few float epsilons over this ratio, about 1e-12.
 _CANCELLATION = 1e-3
+#: Up to this many rows, Factored.response runs on Python floats.
+_FEW_ROWS = 16
 
 
 class Factored:
@@ -157,11 +179,11 @@ class Factored:
     """
 
     def __init__(self, net: Netlist, op: OperatingPoint):
-        self.net, self.op, self.variant = net, op, net
+        self.net, self.op, self._edits = net, op, ()
         self.plan = plan_for(net, MIDBAND)
         g, v = admittance_values(net, self.plan, excite={})
         a, _ = _linearised(net, op, self.plan, g, v)
-        z = solve_batched(a, np.broadcast_to(np.eye(self.plan.n), a.shape).copy())
+        z = _inverse(a)
         # Entry-major: each Z[i, j] below is then one contiguous (batch,) row.
         self.z = np.ascontiguousarray(z.transpose(1, 2, 0))
         self.parts, self.exact = (), True
@@ -172,7 +194,8 @@ class Factored:
         out = object.__new__(Factored)
         out.__dict__ = dict(self.__dict__)
         group = [e for e in full.elements if tag in e.tags]
-        out.variant = self.variant.without(tag) if remove else self.variant.with_elements(*group)
+        # The changed netlist itself is built only if a row needs a direct solve.
+        out._edits = self._edits + ((tag, remove, tuple(group)),)
         parts = _conductances(group, self.plan)
         if parts is None or (remove and any(np.isinf(g).any() for _, g in parts)):
             out.exact = False
@@ -180,9 +203,16 @@ class Factored:
         batch = self.net.batch
         with np.errstate(divide="ignore"):
             out.parts = self.parts + tuple(
-                (ends, (-1.0 if remove else 1.0) / np.broadcast_to(np.asarray(g, dtype=float), (batch,)), remove)
+                (ends, (-1.0 if remove else 1.0) / batch_rows(g, batch), remove)
                 for ends, g in parts if ends[0] != ends[1])
         return out
+
+    def variant(self) -> Netlist:
+        """The netlist with this network's parts added and removed."""
+        net = self.net
+        for tag, remove, group in self._edits:
+            net = net.without(tag) if remove else net.with_elements(*group)
+        return net
 
     def _z(self, i: int, j: int):
         return self.z[i, j] if i >= 0 and j >= 0 else 0.0
@@ -198,6 +228,9 @@ class Factored:
         if not self.exact or j < 0:
             return self._direct(into, np.arange(batch), None)
         parts = self.parts
+        if batch <= _FEW_ROWS and len(parts) <= 2:
+            at, bad = self._few_rows(j)
+            return self._direct(into, np.flatnonzero(bad), at) if any(bad) else at
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             s = [[self._zu(ends[0], other) - self._zu(ends[1], other) + (cinv if k == m else 0.0)
                   for m, (other, _, _) in enumerate(parts)] for k, (ends, cinv, _) in enumerate(parts)]
@@ -214,15 +247,64 @@ class Factored:
             if i < 0:
                 return np.zeros(batch)
             out = self.z[i, j] - sum((self._zu(i, ends) * c for (ends, _, _), c in zip(parts, coef)), 0.0)
-            return np.broadcast_to(out, (batch,))
+            return batch_rows(out, batch)
 
         if bad.any():
             return self._direct(into, np.flatnonzero(bad), at)
         return at
 
+    def _few_rows(self, j: int):
+        """:meth:`response` row by row on Python floats, for a few rows and at
+        most two changed parts: the same products, sums and closed-form
+        solve in the same order (numpy's per-call cost is most of the time
+        on a design and its β variants).  Returns (at, bad rows)."""
+        z = self.z.transpose(2, 0, 1).tolist()
+        parts = [(ends, cinv.tolist(), removed) for ends, cinv, removed in self.parts]
+        coefs, bad = [], []
+        for b, zb in enumerate(z):
+            def entry(i, k):
+                return zb[i][k] if i >= 0 and k >= 0 else 0.0
+
+            def zu(i, ends):
+                return entry(i, ends[0]) - entry(i, ends[1])
+
+            s = [[zu(ends[0], other) - zu(ends[1], other) + (cinv[b] if k == m else 0.0)
+                  for m, (other, _, _) in enumerate(parts)] for k, (ends, cinv, _) in enumerate(parts)]
+            y = [entry(ends[0], j) - entry(ends[1], j) for ends, _, _ in parts]
+            try:
+                if len(y) == 1:
+                    coef = [y[0] / s[0][0]]
+                elif len(y) == 2:
+                    det = s[0][0] * s[1][1] - s[0][1] * s[1][0]
+                    coef = [(s[1][1] * y[0] - s[0][1] * y[1]) / det, (s[0][0] * y[1] - s[1][0] * y[0]) / det]
+                else:
+                    coef = []
+                wrong = not all(math.isfinite(c) for c in coef)
+            except ZeroDivisionError:  # numpy's quotient would be inf or nan: solved directly
+                coef, wrong = [0.0] * len(y), True
+            for k, (_, cinv, removed) in enumerate(parts):
+                wrong = wrong or (removed and abs(s[k][k]) < _CANCELLATION * abs(cinv[b]))
+            coefs.append(coef)
+            bad.append(wrong)
+
+        def at(node: str):
+            i = self.plan.index.get(node, -1)
+            if i < 0:
+                return np.zeros(len(z))
+            out = []
+            for zb, coef in zip(z, coefs):
+                acc = 0.0
+                for (ends, _, _), c in zip(parts, coef):
+                    a, b = ends
+                    acc = acc + ((zb[i][a] if a >= 0 else 0.0) - (zb[i][b] if b >= 0 else 0.0)) * c
+                out.append(zb[i][j] - acc)
+            return np.array(out)
+
+        return at, bad
+
     def _direct(self, into, rows, fast):
         """The rows ``rows`` solved directly on the changed netlist."""
-        sol = small_signal(self.variant.take(rows), self.op.take(rows), inject={into: 1.0})
+        sol = small_signal(self.variant().take(rows), self.op.take(rows), inject={into: 1.0})
         if fast is None:
             return lambda node: sol[node]
 
@@ -237,7 +319,7 @@ class Factored:
 def _small_solve(s, y, batch):
     """Solve the c × c system s·x = y of (batch,) entries, c ≤ 2 in closed form."""
     c = len(y)
-    s = [[np.broadcast_to(e, (batch,)) for e in row] for row in s]
+    s = [[batch_rows(e, batch) for e in row] for row in s]
     if c == 0:
         return []
     if c == 1:
@@ -246,7 +328,7 @@ def _small_solve(s, y, batch):
         det = s[0][0] * s[1][1] - s[0][1] * s[1][0]
         return [(s[1][1] * y[0] - s[0][1] * y[1]) / det, (s[0][0] * y[1] - s[1][0] * y[0]) / det]
     m = np.stack([np.stack(row, axis=-1) for row in s], axis=1)
-    x = solve_batched(m, np.stack([np.broadcast_to(v, (batch,)) for v in y], axis=-1))
+    x = solve_batched(m, np.stack([batch_rows(v, batch) for v in y], axis=-1))
     return [x[:, k] for k in range(c)]
 
 

@@ -77,9 +77,8 @@ class Netlist:
     batch: int
 
     def __post_init__(self):
-        names = [e.name for e in self.elements]
-        if len(set(names)) != len(names):
-            raise ValueError(f"duplicate element names in {names}")
+        if len(self._by_name) != len(self.elements):
+            raise ValueError(f"duplicate element names in {[e.name for e in self.elements]}")
 
     @cached_property
     def signature(self) -> tuple:
@@ -88,7 +87,7 @@ class Netlist:
         return tuple((type(e).__name__, e.name, terminals(e), getattr(e, "coupling", None))
                      for e in self.elements)
 
-    @property
+    @cached_property
     def nodes(self) -> tuple[str, ...]:
         """Every node name except ground, in first-seen order."""
         seen: dict[str, None] = {}
@@ -102,10 +101,11 @@ class Netlist:
         return [e for e in self.elements if isinstance(e, kind)]
 
     def element(self, name: str):
-        for e in self.elements:
-            if e.name == name:
-                return e
-        raise KeyError(name)
+        return self._by_name[name]
+
+    @cached_property
+    def _by_name(self) -> dict:
+        return {e.name: e for e in self.elements}
 
     def without(self, *tags: str) -> "Netlist":
         """The same circuit with every element carrying one of ``tags`` removed."""
@@ -123,7 +123,7 @@ class Netlist:
     def with_source(self, name: str, v) -> "Netlist":
         """The same circuit with voltage source ``name`` set to ``v`` volts."""
         out = [replace(e, v=_batch_array(v, self.batch)) if e.name == name else e for e in self.elements]
-        return Netlist(tuple(out), self.batch)
+        return self._same_shape(tuple(out), self.batch)
 
     def coupling_as_sources(self, volts: dict[str, np.ndarray]) -> "Netlist":
         """Coupling capacitors replaced by sources at the given voltages (a − b, V).
@@ -143,11 +143,20 @@ class Netlist:
     def take(self, rows) -> "Netlist":
         """Only the batch rows picked by an integer index array."""
         rows = np.asarray(rows)
-        return Netlist(tuple(_take_element(e, self.batch, rows) for e in self.elements), rows.size)
+        return self._same_shape(tuple(_take_element(e, self.batch, rows) for e in self.elements), rows.size)
 
     def repeat(self, n: int) -> "Netlist":
         """Each batch row repeated ``n`` times in a row: a sweep of n points per design."""
-        return Netlist(tuple(_repeat_element(e, self.batch, n) for e in self.elements), self.batch * n)
+        return self._same_shape(tuple(_repeat_element(e, self.batch, n) for e in self.elements), self.batch * n)
+
+    def _same_shape(self, elements: tuple, batch: int) -> "Netlist":
+        """A netlist of the same shape as this one with other values: the
+        shape's cached properties carry over (a plan is looked up by them)."""
+        out = Netlist(elements, batch)
+        for name in ("signature", "nodes"):
+            if name in self.__dict__:
+                out.__dict__[name] = self.__dict__[name]
+        return out
 
 
 def terminals(e) -> tuple[str, ...]:
@@ -159,7 +168,16 @@ def terminals(e) -> tuple[str, ...]:
 
 
 def _batch_array(v, batch: int) -> np.ndarray:
-    return np.broadcast_to(np.asarray(v, dtype=float), (batch,)).copy()
+    return batch_rows(v, batch).copy()
+
+
+def batch_rows(v, batch: int) -> np.ndarray:
+    """``v`` as (batch,) floats: itself when it already is such an array (a
+    design's netlist is built and cut many times, and np.broadcast_to costs
+    a few times the arithmetic on its few rows), else a broadcast view."""
+    if type(v) is np.ndarray and v.shape == (batch,) and v.dtype == np.float64:
+        return v
+    return np.broadcast_to(np.asarray(v, dtype=float), (batch,))
 
 
 _VALUE = {Resistor: "r", Capacitor: "c", VoltageSource: "v"}
@@ -169,14 +187,14 @@ def _repeat_element(e, batch: int, n: int):
     if isinstance(e, Bjt):
         return _with(e, "params", e.params.repeat(n))
     attr = _VALUE[type(e)]
-    return _with(e, attr, np.repeat(np.broadcast_to(np.asarray(getattr(e, attr), dtype=float), (batch,)), n))
+    return _with(e, attr, np.repeat(batch_rows(getattr(e, attr), batch), n))
 
 
 def _take_element(e, batch: int, rows):
     if isinstance(e, Bjt):
         return _with(e, "params", e.params.take(rows))
     attr = _VALUE[type(e)]
-    return _with(e, attr, np.broadcast_to(np.asarray(getattr(e, attr), dtype=float), (batch,))[rows])
+    return _with(e, attr, batch_rows(getattr(e, attr), batch)[rows])
 
 
 def _with(e, attr: str, value):

@@ -281,9 +281,9 @@ def _kcl_residual(plan, g, volts, signs, states):
     into = np.stack([c for s, st in zip(signs, states.values()) for c in _terminal_currents(s, st)], axis=1)
     drops = index_dot(np.stack([volts[n] for n in plan.nodes], axis=1), plan.adm_incidence)
     branch = g * drops
-    r = index_dot(branch, plan.adm_unknown) + index_dot(into, plan.term_pick.T)
+    r = index_dot(branch, plan.adm_unknown) + index_dot(into, plan.pick_term)
     slopes = np.stack([c for st in states.values() for c in _terminal_conductances(st)], axis=1)
-    allowed = _V_TOL * (index_dot(np.abs(g), np.abs(plan.adm_unknown)) + index_dot(slopes, np.abs(plan.term_pick.T)))
+    allowed = _V_TOL * (index_dot(np.abs(g), plan.adm_unknown_abs) + index_dot(slopes, plan.pick_term_abs))
     balanced = np.all(np.abs(r) <= allowed, axis=1)
     scale = np.maximum(row_max(np.abs(branch)), row_max(np.abs(into)))
     worst = row_max(np.abs(r))

@@ -119,6 +119,19 @@ class Plan:
         end; branch currents @ it are the currents leaving each (super)node."""
         return self.adm_incidence.T @ self.node_pick.T
 
+    @cached_property
+    def adm_unknown_abs(self) -> np.ndarray:
+        return np.abs(self.adm_unknown)
+
+    @cached_property
+    def pick_term(self) -> np.ndarray:
+        """(3k, n): terminal currents @ it are the currents into each unknown."""
+        return np.ascontiguousarray(self.term_pick.T)
+
+    @cached_property
+    def pick_term_abs(self) -> np.ndarray:
+        return np.abs(self.pick_term)
+
 
 def plan_for(net: Netlist, kind: str) -> Plan:
     """The (cached) plan of ``net``'s shape for a DC, MIDBAND or AC analysis."""

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from model.circuit.device import params_at
-from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource
+from model.circuit.netlist import GROUND, Bjt, Capacitor, Netlist, Resistor, VoltageSource, batch_rows
 
 #: Element names the analyses look up.
 SUPPLY, EMF, TRANSISTOR = "vcc", "vs", "q1"
@@ -59,7 +59,8 @@ class StageCircuit:
 def shape_of(topology: str, values: dict) -> tuple:
     """The structural key of each batch row: which optional parts are absent
     (zero resistors, capacitors not fitted, an open load) and the polarity."""
-    v = {k: np.atleast_1d(np.asarray(x, dtype=float)) for k, x in values.items()}
+    keys = (*_OPTIONAL[topology], "load.rl", "transistor.sign")
+    v = {k: np.atleast_1d(np.asarray(values[k], dtype=float)) for k in keys}
     flags = [v[k] == 0 for k in _OPTIONAL[topology]]
     flags += [np.isinf(v["load.rl"]), v["transistor.sign"] < 0]
     return np.stack(np.broadcast_arrays(*flags), axis=-1)
@@ -78,7 +79,7 @@ class _Parts:
     """Collects elements for a builder, mirroring rails for a PNP stage."""
 
     def __init__(self, values: dict, batch: int):
-        self.v = {k: np.broadcast_to(np.asarray(x, dtype=float), (batch,)) for k, x in values.items()}
+        self.v = {k: batch_rows(x, batch) for k, x in values.items()}
         self.batch = batch
         self.pnp = bool(self.v["transistor.sign"][0] < 0)
         self.elements: list = []
