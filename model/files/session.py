@@ -29,6 +29,7 @@ def ledger_yield(design: Design) -> float | None:
     y = quick_yield(design, LEDGER_SAMPLES)
     return None if y is None else y.value
 
+
 #: Refused alike by a commit and by its dry run, so the two agree.
 NOTHING_TO_COMMIT = "nothing to commit: every value is already as given"
 
