@@ -169,7 +169,12 @@ def _finish(design, engine, line, ranges, present, series) -> AimResult:
 
 def snap(engine: Engine, keys: tuple, exact: dict, series: str) -> tuple:
     """Every series combination around ``exact``, solved in one call."""
-    rows = search.snap_rows(engine.design, keys, exact, series)
+    return solve_rows(engine, search.snap_rows(engine.design, keys, exact, series))
+
+
+def solve_rows(engine: Engine, rows: list) -> tuple:
+    """The aimed figure of each row of values (dicts with the same keys), in one call."""
+    keys = tuple(rows[0])
     out = engine.figures({k: np.array([r[k] for r in rows]) for k in keys})
     miss = engine.miss(out)
     return tuple(Snap(r, float(f), float(m)) for r, f, m in zip(rows, out[engine.target.figure], miss))
