@@ -186,3 +186,20 @@ def test_unreachable_is_a_stageledger_error():
     from model.errors import StageledgerError
 
     assert issubclass(Unreachable, StageledgerError)
+
+
+def test_a_pnp_twin_aims_to_the_same_value(demo):
+    # README "PNP": a PNP stage is the mirror of its NPN twin, with the same
+    # magnitudes, so the same target needs the same rc.
+    npn = aim(demo, "av_loaded", "33dB", ("stage.rc",))
+    pnp = aim(with_values(demo, {"transistor.polarity": "pnp"}), "av_loaded", "33dB", ("stage.rc",))
+    assert pnp.exact["stage.rc"] == pytest.approx(npn.exact["stage.rc"], rel=1e-6)
+
+
+def test_a_target_already_met_changes_nothing(tmp_path, capsys, demo):
+    path = copy(tmp_path)
+    before = path.read_bytes()
+    now = db(analyse(demo).av_loaded)
+    assert main(["aim", str(path), f"av_loaded={now:.6f}dB", "--vary", "stage.rc"]) == 0
+    assert "nothing to change" in capsys.readouterr().out
+    assert path.read_bytes() == before

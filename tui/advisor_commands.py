@@ -53,7 +53,10 @@ def cmd_aim(path: str, item: str, vary: list, series: str | None, dry_run: bool,
         if not result.reached:
             raise result.unreachable()
         lines = aim_lines(result, series or s.design.parts.series)
-        values = result.chosen.values
+        values = result.changes(s.design)
+        if not values:
+            print("\n".join([*lines, "the present value is already the closest on the series: nothing to change"]))
+            return 0
         if dry_run:
             p = s.preview(values)
             if not p.changes:

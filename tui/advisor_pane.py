@@ -40,7 +40,12 @@ class AdvisorActions:
                 self._say(str(err), error=True)
                 return
             t = result.target
-            self._take(result.chosen.values)
+            values = result.changes(self._on_show_design())
+            if not values:
+                self._say(f"{key} is already the closest series value for {t.figure} at {t.words()}: "
+                          f"{t.shown(result.chosen.figure)}")
+                return
+            self._take(values)
             self._say(f"aimed {t.figure} at {t.words()} by {key}: {t.shown(result.chosen.figure)} "
                       "(Enter commits, Esc drops)")
 

@@ -27,7 +27,8 @@ import numpy as np
 
 from model.advisor import search
 from model.advisor.search import Engine, Line, Target, Unreachable
-from model.design.stage import Design, with_values
+from model.design.fields import FIELDS
+from model.design.stage import Design, get_value, with_values
 from model.design.units import format_si
 from model.errors import DesignError
 
@@ -74,6 +75,12 @@ class AimResult:
     def keys(self) -> tuple:
         return self.line.keys
 
+    def changes(self, design: Design) -> dict:
+        """The chosen values that differ from ``design``'s (empty: already there)."""
+        if self.chosen is None:
+            return {}
+        return {k: v for k, v in self.chosen.values.items() if v != float(get_value(design, k))}
+
     def note(self) -> str:
         """The generated ledger note, e.g. "aimed av_loaded at -20 dB by stage.rc"."""
         return f"aimed {self.target.figure} at {self.target.words()} by {', '.join(self.keys)}"
@@ -89,8 +96,6 @@ class AimResult:
 
 
 def _value(key: str, value: float) -> str:
-    from model.design.fields import FIELDS
-
     unit = FIELDS[key].unit
     return format_si(value, unit, 4) if unit not in ("", "°C") else f"{value:.4g} {unit}".rstrip()
 
@@ -103,30 +108,17 @@ def aim(design: Design, figure: str | Target, target: float | str | None = None,
     or text as the command line takes it ("-20dB", "15k").  ``series``
     defaults to the design's ``parts.series``.
     """
-    tgt = _target(figure, target)
+    tgt = search.as_target(figure, target)
     vary = tuple(dict.fromkeys(vary))
     if not vary:
         raise DesignError("--vary", None, "needs at least one key to vary")
     series = series or design.parts.series
     engine = Engine(design, tgt)
-    present_out = engine.figures({vary[0]: np.array([float(_get(design, vary[0]))])})
+    present_out = engine.figures({vary[0]: np.array([float(get_value(design, vary[0]))])})
     present = float(present_out[tgt.figure][0])
     line = _line(design, engine, vary) if len(vary) > 1 else search.scale_line(design, vary, (1.0,), vary[0])
     ranges = tuple((k, *search.knob_range(design, k)[1:]) for k in vary)
     return _finish(design, engine, line, ranges, present, series)
-
-
-def _target(figure, target) -> Target:
-    if isinstance(figure, Target):
-        return figure
-    text = target if isinstance(target, str) else repr(float(target))
-    return search.parse_target(f"{figure}={text}")
-
-
-def _get(design: Design, key: str):
-    from model.design.stage import get_value
-
-    return get_value(design, key)
 
 
 def _line(design: Design, engine: Engine, vary: tuple) -> Line:
@@ -135,7 +127,7 @@ def _line(design: Design, engine: Engine, vary: tuple) -> Line:
     for j in range(len(vary)):
         for sign in (1.0, -1.0):
             for i, k in enumerate(vary):
-                x = float(_get(design, k))
+                x = float(get_value(design, k))
                 cols[k].append(x * math.exp(sign * GRADIENT_STEP) if i == j else x)
     miss = engine.miss(engine.figures({k: np.array(v) for k, v in cols.items()}))
     grad = (miss[0::2] - miss[1::2]) / (2 * GRADIENT_STEP)

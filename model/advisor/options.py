@@ -37,6 +37,7 @@ from model.design.fields import FIELDS
 from model.design.stage import Design, get_value, keys_for, with_values
 from model.design.units import format_si
 from model.errors import DesignError
+from model.files.session import ledger_yield
 
 #: The figures a way may give up, and the direction that is better for each (+1 higher).
 COST_FIGURES = {"swing_up": 1, "swing_down": 1, "rin": 1, "rout": -1, "p_supply": -1,
@@ -140,10 +141,7 @@ def options(design: Design, figure: str | Target, target: float | str | None = N
     ``yield_of(design) -> fraction | None`` gives the yield cost (the ledger's
     :func:`model.files.session.ledger_yield` by default, when the design has specs).
     """
-    from model.advisor.aim import _target
-    from model.files.session import ledger_yield
-
-    tgt = _target(figure, target)
+    tgt = search.as_target(figure, target)
     series = series or design.parts.series
     yield_of = yield_of or ledger_yield
     engine = Engine(design, tgt)

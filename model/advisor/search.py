@@ -112,6 +112,15 @@ def parse_target(text: str) -> Target:
     return Target(name, limit.low, limit.db)
 
 
+def as_target(figure, target=None) -> Target:
+    """A Target as given, or from a figure name and a target (SI number, or
+    text as the command line takes it: "-20dB", "15k")."""
+    if isinstance(figure, Target):
+        return figure
+    text = target if isinstance(target, str) else repr(float(target))
+    return parse_target(f"{figure}={text}")
+
+
 def knob_range(design: Design, key: str) -> tuple[float, float, float]:
     """(present, low, high): the physical range a knob is searched over,
     present / SPAN to present × SPAN clipped to its rule; DesignError for a
