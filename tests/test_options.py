@@ -102,6 +102,7 @@ def test_the_command_prints_and_the_json_parses(capsys):
     assert main(["options", str(DEMO), "av_loaded=-40", "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
     assert data["figure"] == "av_loaded" and data["options"][0]["reached"]
+    assert data["options"][0]["words"].startswith(("raise", "lower"))
 
 
 def test_a_bad_target_exits_2(capsys):

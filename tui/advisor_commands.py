@@ -82,7 +82,7 @@ def cmd_options(path: str, item: str, as_json: bool) -> int:
         ways = options(design, target, yield_of=s.yield_of)
     if as_json:
         data = {"figure": target.figure, "target": target.value, "db": target.db, "present": present,
-                "options": [o.to_dict() for o in ways]}
+                "options": [{**o.to_dict(), "words": o.words(design)} for o in ways]}
         print(plain_json.dumps(data))
         return 0
     print("\n".join(options_lines(design, target, present, ways)))
