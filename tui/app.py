@@ -30,6 +30,7 @@ from model.files.savefile import atomic_write
 from model.files.session import DesignSession
 from model.spread.analysis import LEDGER_SAMPLES, quick_yield
 
+from .advisor_pane import AdvisorActions
 from .editing import Editing
 from .messages import LargeSignalReady, YieldReady
 from .pictures_pane import PicturesPane
@@ -59,7 +60,7 @@ class WorkbenchFault(RuntimeError):
     traceback); raised from ``run`` so that the command line exits 3, not 0."""
 
 
-class Workbench(Editing, PicturesPane, App):
+class Workbench(Editing, PicturesPane, AdvisorActions, App):
     """Tune one design from the keyboard and keep the record."""
 
     CSS_PATH = "app.tcss"
@@ -82,6 +83,9 @@ class Workbench(Editing, PicturesPane, App):
         # Esc's twin: a terminal joins a lone Esc to a key typed soon after it.
         Binding("f9", "abandon", "abandon", id="abandon", show=False),
         Binding("f10", "quit", "quit", id="quit", priority=True),
+        # Priority, as F2: the prompt must be up before the target typed behind the key.
+        Binding("ctrl+t", "aim", "aim", id="aim", show=False, priority=True),
+        Binding("ctrl+o", "options", "options", id="options", show=False, priority=True),
     ]
 
     def __init__(self, design: Design, *, session: DesignSession | None, source: str,
@@ -318,6 +322,8 @@ class Workbench(Editing, PicturesPane, App):
          "abandon"),
         ("Undo", "the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
         ("Redo", "the last undone change, logged (F8 or Ctrl+Y)", "redo"),
+        ("Aim the knob at a target", "FIGURE=TARGET by the knob under the cursor, as a candidate (Ctrl+T)", "aim"),
+        ("Options for a target", "every usual way to FIGURE=TARGET, cheapest first (Ctrl+O)", "options"),
     )
 
     def get_system_commands(self, screen):

@@ -13,6 +13,7 @@ import argparse
 import os
 import sys
 
+from model.design.fields import SERIES
 from model.design.stage import TOPOLOGIES
 from model.errors import StageledgerError
 
@@ -70,6 +71,20 @@ def _parser() -> argparse.ArgumentParser:
     out.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
     out.add_argument("--csv", action="store_true", help="one row per build: varied values, then figures")
 
+    am = sub.add_parser("aim", help="find the value of a knob that brings a figure to a target, snapped to the series")
+    am.add_argument("file")
+    am.add_argument("target", metavar="FIGURE=TARGET", help="for example av_loaded=30dB or rin=20k")
+    am.add_argument("--vary", action="append", required=True, metavar="KEY", help="a key to vary (repeatable)")
+    am.add_argument("--series", choices=SERIES, help="preferred series to snap to (default: the design's)")
+    am.add_argument("--dry-run", action="store_true", help="show the result without saving")
+    am.add_argument("--note", default="", help="added to the generated note")
+    am.add_argument("--drop-comments", action="store_true", help="allow the save to drop # comments")
+
+    opt = sub.add_parser("options", help="every usual way to bring a figure to a target, cheapest first")
+    opt.add_argument("file")
+    opt.add_argument("target", metavar="FIGURE=TARGET")
+    opt.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
+
     diff = sub.add_parser("diff", help="parameter and figure differences between two designs")
     diff.add_argument("a", help="FILE or FILE@N (the design after history entry N)")
     diff.add_argument("b", help="FILE or FILE@N")
@@ -119,6 +134,13 @@ def _dispatch(args) -> int:
         return subcommands.cmd_history(args.file, args.json)
     if args.command == "diff":
         return subcommands.cmd_diff(args.a, args.b)
+    if args.command in ("aim", "options"):
+        from . import advisor_commands
+
+        if args.command == "aim":
+            return advisor_commands.cmd_aim(args.file, args.target, args.vary, args.series, args.dry_run,
+                                            args.note, args.drop_comments)
+        return advisor_commands.cmd_options(args.file, args.target, args.json)
     if args.command == "spread":
         return _spread(args.file, args.samples, args.seed, args.json, args.csv)
     from .launch import run
@@ -170,7 +192,7 @@ def _spread(path: str, samples: int, seed: int | None, as_json: bool, as_csv: bo
 
 
 #: The subcommands; anything else in first place is a design file for the workbench.
-COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread")
+COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread", "aim", "options")
 
 
 def _workbench_parser() -> argparse.ArgumentParser:

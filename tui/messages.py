@@ -32,3 +32,12 @@ class YieldReady(Message):
     def __init__(self, design: Design, result):
         super().__init__()
         self.design, self.result = design, result
+
+
+class OptionsReady(Message):
+    """The options worker's ways to ``target`` from ``design`` (a list of
+    Options), or None with ``error`` in words."""
+
+    def __init__(self, design: Design, target, ways, error: str):
+        super().__init__()
+        self.design, self.target, self.ways, self.error = design, target, ways, error
