@@ -203,3 +203,13 @@ def test_a_target_already_met_changes_nothing(tmp_path, capsys, demo):
     assert main(["aim", str(path), f"av_loaded={now:.6f}dB", "--vary", "stage.rc"]) == 0
     assert "nothing to change" in capsys.readouterr().out
     assert path.read_bytes() == before
+
+
+def test_a_negative_db_target_on_a_gain_stage_is_refused_with_the_likely_meaning():
+    # −20 dB is |gain| = 0.1 (20·log10 of an amplitude ratio); on a stage with
+    # gain that is almost always a slip for an inverting gain of 10.
+    from model.design.stage import default_design
+
+    with pytest.raises(DesignError) as err:
+        aim(default_design(), "av_loaded", "-20dB", ("stage.rc",))
+    assert "'20dB'" in err.value.rule and "attenuation" in err.value.rule

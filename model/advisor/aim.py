@@ -105,7 +105,7 @@ def aim(design: Design, figure: str | Target, target: float | str | None = None,
     """Bring ``figure`` to ``target`` by the keys in ``vary``.
 
     ``figure`` is a Target, or a figure name with ``target`` a number (SI)
-    or text as the command line takes it ("-20dB", "15k").  ``series``
+    or text as the command line takes it ("20dB", "15k").  ``series``
     defaults to the design's ``parts.series``.
     """
     tgt = search.as_target(figure, target)
@@ -116,6 +116,7 @@ def aim(design: Design, figure: str | Target, target: float | str | None = None,
     engine = Engine(design, tgt)
     present_out = engine.figures({vary[0]: np.array([float(get_value(design, vary[0]))])})
     present = float(present_out[tgt.figure][0])
+    search.check_sense(tgt, present)
     line = _line(design, engine, vary) if len(vary) > 1 else search.scale_line(design, vary, (1.0,), vary[0])
     ranges = tuple((k, *search.knob_range(design, k)[1:]) for k in vary)
     return _finish(design, engine, line, ranges, present, series)

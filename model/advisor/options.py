@@ -142,6 +142,8 @@ def options(design: Design, figure: str | Target, target: float | str | None = N
     :func:`model.files.session.ledger_yield` by default, when the design has specs).
     """
     tgt = search.as_target(figure, target)
+    if tgt.db:
+        search.check_sense(tgt, getattr(analyse(design, large_signal=tgt.large_signal), tgt.figure))
     series = series or design.parts.series
     yield_of = yield_of or ledger_yield
     engine = Engine(design, tgt)

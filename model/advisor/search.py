@@ -92,12 +92,12 @@ class Target:
 
 
 def parse_target(text: str) -> Target:
-    """``"av_loaded=-20dB"`` → Target; the value is read by the spec rules
+    """``"av_loaded=20dB"`` → Target; the value is read by the spec rules
     (units, SI prefixes, dB for gains, per cent for distortions)."""
     name, sep, value = text.partition("=")
     name = name.strip()
     if not sep or not value.strip():
-        raise StageledgerError(f"{text!r}: expected FIGURE=TARGET, for example av_loaded=-20dB")
+        raise StageledgerError(f"{text!r}: expected FIGURE=TARGET, for example av_loaded=20dB")
     if name not in AIMABLE:
         raise DesignError(name, None, "is not a figure to aim at; expected one of " + ", ".join(AIMABLE))
     try:
@@ -112,9 +112,22 @@ def parse_target(text: str) -> Target:
     return Target(name, limit.low, limit.db)
 
 
+def check_sense(target: Target, present: float) -> None:
+    """Refuse a negative dB target on a stage that has gain: −20 dB is an
+    attenuation (|gain| = 0.1), and a gain stage aimed there almost always
+    means an inverting gain of 10, which is +20 dB; better said than solved."""
+    if target.db and target.value < 0 and math.isfinite(present) and abs(present) >= 1.0:
+        now = 20.0 * math.log10(abs(present))
+        raise DesignError(target.figure, f"{target.value:g} dB",
+                          f"is an attenuation (|{target.figure}| = {10 ** (target.value / 20):.3g}) and the stage "
+                          f"has {now:+.1f} dB now; a dB target bounds the gain's size, so an inverting gain of "
+                          f"{10 ** (-target.value / 20):.3g} is '{-target.value:g}dB' (or "
+                          f"'-{10 ** (-target.value / 20):.3g}' in V/V)")
+
+
 def as_target(figure, target=None) -> Target:
     """A Target as given, or from a figure name and a target (SI number, or
-    text as the command line takes it: "-20dB", "15k")."""
+    text as the command line takes it: "20dB", "15k")."""
     if isinstance(figure, Target):
         return figure
     text = target if isinstance(target, str) else repr(float(target))
