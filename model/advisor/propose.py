@@ -54,9 +54,9 @@ from model.errors import DesignError
 from model.spread.analysis import quick_yield
 
 #: E6 steps either side of each starting value in the coarse grid.
-GRID_STEPS = 4
+GRID_STEPS = 5
 #: Grid rows evaluated in full after the quick pass.
-SHORTLIST = 150
+SHORTLIST = 300
 #: Designs whose neighbours each refinement round evaluates.
 REFINE_SEEDS = 4
 MAX_ROUNDS = 10
