@@ -18,6 +18,7 @@ from .safe_text import visible
 
 SPEC_FORMS = "KEY=MIN..MAX or KEY=[MIN,MAX] (either end 'none'; gains may be in dB, e.g. 20dB)"
 _CAPACITORS = ("stage.ce", "stage.cin", "stage.cout")
+NONE_WORD = "none"
 
 
 def parse_specs(items: list, topology: str) -> tuple:
@@ -110,5 +111,8 @@ def _figure(limit, value: float) -> str:
 
 
 def _limit_text(limit) -> str:
-    low, high = file_value(limit)
+    if limit.db:
+        low, high = file_value(limit)
+    else:
+        low, high = (NONE_WORD if x is None else _figure(limit, x) for x in (limit.low, limit.high))
     return f"[{low}, {high}]"

@@ -186,7 +186,7 @@ def _swing_estimate(design: Design, rows: dict, fig: dict) -> dict:
 def _quick_scores(design: Design, rows: dict, fig: dict) -> tuple:
     quick_specs = tuple(s for s in design.spec if s.key not in LARGE_FIGURES or s.key.startswith("swing"))
     figures = {**fig, **_swing_estimate(design, rows, fig)}
-    return _scores(design, rows, figures, quick_specs or design.spec[:0])
+    return _scores(design, rows, figures, quick_specs)
 
 
 def _scores(design: Design, rows: dict, fig: dict, specs: tuple) -> tuple:
