@@ -75,6 +75,9 @@ def test_a_common_emitter_proposal_meets_its_specs_when_reanalysed():
     for limit in specs:
         assert inside(limit, getattr(f, limit.key)), limit
     assert best.design.supply.vcc == 12.0 and set(best.design.spec) == set(specs)  # in the table's order
+    # The grid is a full factorial: five E6 values for each of rc, re2, r1 and r2, and six for re1 (0 too).
+    s = best.search
+    assert s.grid == 5 ** 4 * 6 and s.grid < s.evaluated < s.grid + s.full and s.rounds >= 1
 
 
 def test_a_follower_proposal_meets_its_specs_in_e12_values():
@@ -143,7 +146,7 @@ def test_the_command_writes_a_design_that_report_finds_within_its_specs(tmp_path
     path = tmp_path / "preamp.toml"
     assert main(["propose", str(path), "--topology", CE, *SPECS, "--supply", "12"]) == 0
     out = capsys.readouterr().out
-    assert out.count("worst margin") == 3 and "meets every spec" in out
+    assert out.count("worst margin") == 3 and "meets every spec" in out and "analysed in full" in out
     assert main(["report", str(path), "--json"]) == 0
     fig = json.loads(capsys.readouterr().out)
     design = read_design(path)

@@ -64,13 +64,13 @@ def cmd_propose(path: str, topology: str, items: list, supply: float | None, ser
             f"{best.binding} by {-best.worst:.1%} (margin {best.worst:+.1%})")
     s = best.search
     note = (f"proposed from {len(specs)} spec(s) on {vcc:g} V, {series.upper()} values: grid of {s.grid:,} designs, "
-            f"{s.evaluated:,} evaluated in all, {s.rounds} refinement round(s); best worst-case margin "
+            f"{s.evaluated:,} evaluated in all ({s.full:,} in full), {s.rounds} refinement round(s); best worst-case margin "
             f"{best.worst:+.1%} ({best.binding})")
     design = best.design
     design = with_values(design, {"name": "proposed from specs" if design.name == "untitled" else design.name})
     create(path, design, origin=origin, note=note)
     print(f"created {visible(path)}: the best of {s.evaluated:,} designs ({s.grid:,} on the grid, "
-          f"{s.rounds} refinement round(s))")
+          f"{s.full:,} analysed in full, {s.rounds} refinement round(s))")
     print("\n".join(lines))
     return 0
 

@@ -71,11 +71,13 @@ VCE_EDGE = 0.3
 
 @dataclass(frozen=True)
 class Search:
-    """The size of a search: grid rows, designs evaluated in all (grid,
-    shortlist and refinement), refinement rounds run."""
+    """The size of a search: grid rows (quick figures), distinct designs
+    evaluated in all (the grid and the refinement's neighbours), designs
+    analysed in full (the shortlist and the neighbours), refinement rounds run."""
 
     grid: int
     evaluated: int
+    full: int
     rounds: int
 
 
@@ -122,7 +124,7 @@ def propose(topology: str, specs: tuple[Limit, ...], vcc: float, series: str = "
     quick = analyse_many(topology, _values(design, rows), large_signal=False)
     order = _rank(_quick_scores(design, rows, quick))
     pool = _Pool(design)
-    pool.add({k: v[order[:shortlist]] for k, v in rows.items()})
+    shortlisted = pool.add({k: v[order[:shortlist]] for k, v in rows.items()})
     rounds = 0
     seeds = pool.best(REFINE_SEEDS)
     while rounds < MAX_ROUNDS:
@@ -133,7 +135,7 @@ def propose(topology: str, specs: tuple[Limit, ...], vcc: float, series: str = "
             break
         seeds = new
     ranked = pool.best(max(keep, YIELD_CANDIDATES if design.tolerance != Tolerance() else keep))
-    search = Search(grid, grid + pool.count, rounds)
+    search = Search(grid, grid + pool.count - shortlisted, pool.count, rounds)
     out = [pool.candidate(i, search) for i in ranked]
     if design.tolerance != Tolerance():
         out = [dataclasses.replace(c, yield_=quick_yield(c.design, YIELD_SAMPLES).value) for c in out]
