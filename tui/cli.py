@@ -84,6 +84,15 @@ def _parser() -> argparse.ArgumentParser:
     opt.add_argument("file")
     opt.add_argument("target", metavar="FIGURE=TARGET")
     opt.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
+    prop = sub.add_parser("propose", help="propose a design in preferred values from specs and a supply")
+    prop.add_argument("file", help="the new design file to write (never overwritten)")
+    prop.add_argument("--topology", choices=TOPOLOGIES, default=TOPOLOGIES[0])
+    prop.add_argument("--spec", action="append", required=True, metavar="KEY=MIN..MAX",
+                      help="a figure's range, also KEY=[MIN,MAX]; repeat for each spec")
+    prop.add_argument("--supply", type=_volts, default=None, metavar="V", help="supply voltage (default: the topology's)")
+    prop.add_argument("--series", default="E24", help="preferred series of the resistors (default E24)")
+    prop.add_argument("--from", dest="origin", metavar="OTHER",
+                      help="keep this design's source, load, transistor and tolerance (FILE or FILE@N)")
 
     diff = sub.add_parser("diff", help="parameter and figure differences between two designs")
     diff.add_argument("a", help="FILE or FILE@N (the design after history entry N)")
@@ -117,6 +126,15 @@ def _per_decade(text: str) -> int:
     return n
 
 
+def _volts(text: str) -> float:
+    from model.design.fields import check_value
+
+    try:
+        return check_value("supply.vcc", TOPOLOGIES[0], text)
+    except StageledgerError as exc:
+        raise argparse.ArgumentTypeError(f"--supply {exc}") from None
+
+
 def _dispatch(args) -> int:
     from . import subcommands
 
@@ -141,6 +159,10 @@ def _dispatch(args) -> int:
             return advisor_commands.cmd_aim(args.file, args.target, args.vary, args.series, args.dry_run,
                                             args.note, args.drop_comments)
         return advisor_commands.cmd_options(args.file, args.target, args.json)
+    if args.command == "propose":
+        from .propose_text import cmd_propose
+
+        return cmd_propose(args.file, args.topology, args.spec, args.supply, args.series, args.origin)
     if args.command == "spread":
         return _spread(args.file, args.samples, args.seed, args.json, args.csv)
     from .launch import run
@@ -192,7 +214,8 @@ def _spread(path: str, samples: int, seed: int | None, as_json: bool, as_csv: bo
 
 
 #: The subcommands; anything else in first place is a design file for the workbench.
-COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread", "aim", "options")
+COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread", "aim", "options",
+            "propose")
 
 
 def _workbench_parser() -> argparse.ArgumentParser:
