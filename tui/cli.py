@@ -70,6 +70,12 @@ def _parser() -> argparse.ArgumentParser:
     out.add_argument("--json", action="store_true", help="one JSON object with plain SI numbers")
     out.add_argument("--csv", action="store_true", help="one row per build: varied values, then figures")
 
+    sens = sub.add_parser("sensitivity", help="what a 1 % rise of each knob does to each figure")
+    sens.add_argument("file", help="design file (TOML)")
+    sens.add_argument("--json", action="store_true", help="one JSON object: method, step, columns, rows")
+    sens.add_argument("--yield", dest="with_yield", action="store_true",
+                      help="add the yield against the specs (a few seconds: a Monte Carlo per knob)")
+
     diff = sub.add_parser("diff", help="parameter and figure differences between two designs")
     diff.add_argument("a", help="FILE or FILE@N (the design after history entry N)")
     diff.add_argument("b", help="FILE or FILE@N")
@@ -121,6 +127,8 @@ def _dispatch(args) -> int:
         return subcommands.cmd_diff(args.a, args.b)
     if args.command == "spread":
         return _spread(args.file, args.samples, args.seed, args.json, args.csv)
+    if args.command == "sensitivity":
+        return _sensitivity(args.file, args.json, args.with_yield)
     from .launch import run
 
     return run(args.file, args.read_only)
@@ -169,8 +177,24 @@ def _spread(path: str, samples: int, seed: int | None, as_json: bool, as_csv: bo
     return 0
 
 
+def _sensitivity(path: str, as_json: bool, with_yield: bool) -> int:
+    import model
+    from model.advisor.sensitivity import sensitivity_matrix
+    from model.files import plain_json
+
+    from .sensitivity_text import render_sensitivity
+
+    design = model.read_design(path)
+    sens = sensitivity_matrix(design, with_yield=with_yield)
+    if as_json:
+        print(plain_json.dumps(sens.to_dict()))
+    else:
+        sys.stdout.write(render_sensitivity(sens, design, path))
+    return 0
+
+
 #: The subcommands; anything else in first place is a design file for the workbench.
-COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread")
+COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread", "sensitivity")
 
 
 def _workbench_parser() -> argparse.ArgumentParser:
