@@ -341,6 +341,7 @@ class Workbench(Editing, PicturesPane, App):
         if self.screen is self._home and self.focused is knobs.editor:
             knobs.select(knobs.keys[0] if first else knobs.keys[-1])
             self.state.checkpoint(knobs.key)
+            self._knob_changed()
 
     def action_abandon(self) -> None:
         self.on_knob_abandoned(KnobAbandoned(self._knobs.key))

@@ -109,8 +109,8 @@ def knob_effect_lines(sens: Sensitivity, design: Design, knob: str, height: int)
     needed).  At most ``height`` lines."""
     lines = []
     if knob in sens.rows:
-        per = "+1 K" if knob == AMBIENT else "+1 %"
-        lines.append(f"{MARK} {knob}, {per}:")
+        per = "K" if knob == AMBIENT else "%"
+        lines.append(f"{MARK} {knob}: a 1 {per} rise moves")
         for c in sens.columns:
             v = sens.rows[knob][c]
             unit = unit_of(c).split()[0]
