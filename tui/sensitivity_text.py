@@ -58,7 +58,7 @@ def render_sensitivity(sens: Sensitivity, design: Design, path: str) -> str:
     h = sens.step
     lines = [
         f"knob effects of {visible(path)}",
-        f"{sens.method}, ±h with h = {100 * h:g} % (every knob's ± pair in one batched solve)",
+        *_wrap(f"{sens.method}, ±h with h = {100 * h:g} % (all knobs' ± pairs in one batched solve)"),
         *_wrap("Each cell: the % change of the figure for a 1 % rise of the knob (ambient: per +1 K); "
                "av dB: the change of 20·log10|av_loaded| in dB; swg↑ swg↓: swing_up, swing_down; "
                "p_tr: p_transistor; f_hi: f_high."),
