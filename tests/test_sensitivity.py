@@ -62,10 +62,10 @@ def _cells(design, step):
 
 def test_the_central_difference_converges_as_h_squared():
     """Central differences: error C·h² (Taylor; e.g. Press et al., Numerical
-    Recipes, §5.7), so against a reference at h = 1e-4 the error at 1e-2 is
-    (1e-2/3e-3)² ≈ 11 times the error at 3e-3 (a one-sided difference, O(h),
-    would give 3.3); and at h = 1e-3 the matrix agrees with h = 1e-4 to
-    well within the two places the table prints."""
+    Recipes, numerical derivatives), so against a reference at h = 1e-4 the
+    error at 1e-2 is (1e-2/3e-3)² ≈ 11 times the error at 3e-3 (a one-sided
+    difference, O(h), would give 3.3); and at h = 1e-3 the matrix agrees
+    with h = 1e-4 to well within the two places the table prints."""
     design = read_design(DEMO)
     ref, mid, coarse = _cells(design, 1e-4), _cells(design, 3e-3), _cells(design, 1e-2)
     assert np.array_equal(np.isfinite(ref), np.isfinite(coarse))
