@@ -156,3 +156,13 @@ def test_cli_bad_file_is_one_line_and_status_2(tmp_path, capsys):
     assert main(["sensitivity", str(path)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "stage.rc" in err and "Traceback" not in err
+
+
+def test_movers_rank_by_magnitude_and_leave_the_per_kelvin_row_out():
+    sens = sensitivity_matrix(read_design(DEMO))
+    movers = sens.movers("av_loaded", 5)
+    sizes = [abs(v) for _, v in movers]
+    assert len(movers) == 5 and sizes == sorted(sizes, reverse=True)
+    assert AMBIENT not in dict(movers)
+    others = [abs(r["av_loaded"]) for k, r in sens.rows.items() if k not in dict(movers) and k != AMBIENT]
+    assert max(others) <= sizes[-1]

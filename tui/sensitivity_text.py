@@ -124,7 +124,7 @@ def knob_effect_lines(sens: Sensitivity, design: Design, knob: str, height: int)
         lines.append("")
         lines.append(f"most on {WATCHED} (dB per +1 %):")
         for k, v in movers[:min(5, room)]:
-            lines.append(f"{MARK if k == knob else ' '} {short(k):<10}{cell(v):>6}" + (" per K" if k == AMBIENT else ""))
+            lines.append(f"{MARK if k == knob else ' '} {short(k):<10}{cell(v):>6}")
     return lines[:height]
 
 

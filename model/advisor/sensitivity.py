@@ -87,8 +87,10 @@ class Sensitivity:
 
     def movers(self, column: str, count: int = 5) -> list:
         """The ``count`` (knob, value) pairs that move ``column`` most, by
-        magnitude (the ambient's per-kelvin row included as it stands)."""
-        cells = [(k, v[column]) for k, v in self.rows.items() if math.isfinite(v[column]) and v[column] != 0]
+        magnitude; the ambient is left out, its row being per kelvin, not
+        per cent, so not comparable."""
+        cells = [(k, v[column]) for k, v in self.rows.items()
+                 if k != AMBIENT and math.isfinite(v[column]) and v[column] != 0]
         return sorted(cells, key=lambda kv: -abs(kv[1]))[:count]
 
     def to_dict(self) -> dict:
