@@ -315,7 +315,7 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         ("Help", "list every key (F1)", "help"),
         ("Note for the next commit", "F2 or Ctrl+N", "note"),
         ("Show ledger / readout", "switch on a narrow screen (F3)", "toggle_ledger"),
-        ("Show pictures / next picture", "Bode, load lines, transfer (F6)", "picture"),
+        ("Show pictures / next picture", "Bode, load lines, transfer, spread, knob effects (F6)", "picture"),
         ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
         ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
         ("Abandon", "this row's pending value, or on a row with none the whole candidate (Esc or F9)",
@@ -347,6 +347,7 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         if self.screen is self._home and self.focused is knobs.editor:
             knobs.select(knobs.keys[0] if first else knobs.keys[-1])
             self.state.checkpoint(knobs.key)
+            self._knob_changed()
 
     def action_abandon(self) -> None:
         self.on_knob_abandoned(KnobAbandoned(self._knobs.key))

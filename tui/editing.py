@@ -60,6 +60,7 @@ class Editing:
 
     def on_knob_moved(self, message: KnobMoved) -> None:
         self._apply(self.state.move(message.old, message.new))
+        self._knob_changed()
 
     def on_knob_abandoned(self, message: KnobAbandoned) -> None:
         self._apply(self.state.abandon(message.key))

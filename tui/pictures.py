@@ -1,5 +1,6 @@
 """The workbench's pictures as charts: Bode plot, load lines, transfer curve
-and the spread (in :mod:`tui.spread_picture`).
+and the spread (in :mod:`tui.spread_picture`); the knob effects are a table
+of text rows (:mod:`tui.sensitivity_text`), drawn by the pictures pane.
 
 Each builder turns the engine's results into :class:`~tui.chart.Chart`
 objects: the Bode plot from the figures' response, the load lines and the
@@ -22,8 +23,9 @@ from .chart import Axis, Chart, Marker, Series, Spot
 from .spread_picture import spread_chart
 
 BODE, LOAD_LINES, TRANSFER, SPREAD = "Bode", "load lines", "transfer", "spread"
+KNOB_EFFECTS = "knob effects"
 #: The pictures in the order F6 steps through them.
-PICTURES = (BODE, LOAD_LINES, TRANSFER, SPREAD)
+PICTURES = (BODE, LOAD_LINES, TRANSFER, SPREAD, KNOB_EFFECTS)
 _REGION_MARK = {"saturation": ("S", "saturation edge"), "cutoff": ("X", "cut-off edge")}
 
 

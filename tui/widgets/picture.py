@@ -1,8 +1,10 @@
-"""The Picture: charts from :mod:`tui.chart` drawn at the widget's size."""
+"""The Picture: charts from :mod:`tui.chart` drawn at the widget's size, or
+a table's rows of text (:class:`Rows`) shown as they are."""
 
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 from rich.segment import Segment
 from textual.strip import Strip
@@ -15,8 +17,20 @@ EMPTY = "no picture yet"
 Charts = Sequence[Chart]
 
 
+@dataclass(frozen=True)
+class Rows:
+    """A picture that is a table, not a chart: its lines of text, cut or
+    padded to the widget's size (nothing to rasterise)."""
+
+    lines: tuple
+
+    def fit(self, width: int, height: int) -> list[str]:
+        return [line[:width].ljust(width) for line in self.lines[:height]]
+
+
 class Picture(Widget, can_focus=False):
-    """One chart, or several stacked top to bottom sharing the height.
+    """One chart, or several stacked top to bottom sharing the height (or
+    the Rows of a table).
 
     The workbench's picture worker hands over the charts already drawn at
     the widget's size; the widget draws them itself only at another size.
@@ -36,7 +50,7 @@ class Picture(Widget, can_focus=False):
         self._cache_key: tuple | None = None
         self._lines: list[str] = []
 
-    def show(self, content: Charts, rendered: tuple | None = None) -> None:
+    def show(self, content: Charts | Rows, rendered: tuple | None = None) -> None:
         """Replace the charts and redraw.
 
         ``rendered`` is (width, height, lines) already drawn elsewhere (a
@@ -54,9 +68,11 @@ class Picture(Widget, can_focus=False):
         width, height = self.size
         key = (self._version, width, height)
         if key != self._cache_key:
-            charts = tuple(self._content)
-            if charts:
-                self._lines = render_stack(charts, width, height)
+            content = self._content
+            if isinstance(content, Rows):
+                self._lines = content.fit(width, height)
+            elif tuple(content):
+                self._lines = render_stack(tuple(content), width, height)
             else:
                 self._lines = [EMPTY[:width].ljust(width)] if height else []
             self._cache_key = key
