@@ -154,7 +154,7 @@ def evaluate(p: DeviceParams, vbe, vbc) -> JunctionState:
 def limit_junction(v_new, v_old, vt, v_crit):
     """Limit a Newton step of junction voltages (volts, forward sense).
 
-    The logarithmic damping used by SPICE-family simulators (Nagel's pnjlim):
+    The logarithmic damping of junction voltages published by L. W. Nagel (1975):
     above the critical voltage ``v_crit``, a step of more than 2·VT is
     replaced by one whose exponential grows only linearly.  This is what keeps
     Newton from overflowing on a junction that starts far from its final

@@ -2,7 +2,7 @@
 F(u) = u − u₀ + R·i(u) = 0, with R and u₀ from :mod:`model.circuit.newton`.
 
 The iteration, its closed-form 2×2 steps per transistor (2k×2k for k),
-the forward-active start and the SPICE-family junction limiting; a
+the forward-active start and the logarithmic junction limiting; a
 written-out path for one transistor on small working sets, which performs
 the same operations in the same order as the general one.
 """
