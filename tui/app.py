@@ -289,6 +289,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
             self._say(f"not saved: {internal_error(err)}", error=True)
             self.notify(internal_error(err), title="not saved", severity="error", timeout=8, markup=False)
             return
+        if session.design.spec:  # the session judged it for the ledger: no second Monte Carlo
+            self._yields[session.design] = session.yield_result(session.design)
         outcome = self.state.saved(save, entry, session.design, session.figures, session.path, self._knobs.key)
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()

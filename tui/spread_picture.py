@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from model.analyses.figures import Figures
-from model.design.spread_tables import SPEC_UNITS
+from model.design.spread_tables import figure_unit
 from model.design.stage import Design
 from model.spread.analysis import LEDGER_SAMPLES, sample, yield_of
 from model.spread.statistics import DC_FIGURES, usable
@@ -51,7 +51,7 @@ def spread_chart(design: Design, fig: Figures, key: str) -> tuple:
     if left_out:
         why = "unsolved" if key in DC_FIGURES else "not active"
         title += f" · {left_out:,} {why}"
-    unit = _unit(key)
+    unit = figure_unit(key)
     limit = next((s for s in design.spec if s.key == key), None)
     nominal = float(getattr(fig, key))
     markers = [Marker(nominal, "N", "nominal")] if np.isfinite(nominal) else []
@@ -72,9 +72,3 @@ def spread_chart(design: Design, fig: Figures, key: str) -> tuple:
     steps = np.concatenate([[0.0], np.repeat(share, 2), [0.0]])
     return (Chart(title, Axis(key, unit, lo=lo, hi=hi), Axis("builds", "%", lo=0.0),
                   series=(Series(x, steps, "share of builds per bin"),), markers=tuple(markers)),)
-
-
-def _unit(key: str) -> str:
-    if key.startswith(("av_", "gain")):
-        return "V/V"
-    return "°C" if key == "tj" else SPEC_UNITS.get(key, "")

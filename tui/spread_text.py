@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 import textwrap
 
-from model.design.spread_tables import FRACTIONS, SPEC_UNITS
+from model.design.spread_tables import FRACTIONS, figure_unit
 from model.design.units import format_si
 from model.spread.analysis import SpreadReport
 
@@ -26,10 +26,8 @@ def _wrapped(text: str) -> list:
 
 
 def _unit(key: str) -> str:
-    unit = SPEC_UNITS.get(key, "")
-    if key in FRACTIONS:
-        return "%"
-    return unit or ("V/V" if key.startswith(("av_", "gain")) else "")
+    """As the text shows a figure: distortions in per cent."""
+    return "%" if key in FRACTIONS else figure_unit(key)
 
 
 def number(key: str, x: float) -> str:

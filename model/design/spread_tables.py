@@ -45,6 +45,11 @@ SPEC_UNITS = {
 }
 #: Gains: their limits may be given in dB ("20 dB"), which bound 20·log10|gain|.
 GAINS = ("av_open", "av_loaded", "av_source", "gain_at_freq")
+
+
+def figure_unit(key: str) -> str:
+    """The unit a figure is shown in: SPEC_UNITS', with V/V for the gains."""
+    return "V/V" if key in GAINS else SPEC_UNITS.get(key, "")
 #: Fractions: their limits may be given in per cent ("1 %").
 FRACTIONS = ("thd", "hd2", "hd3")
 

@@ -26,7 +26,10 @@ def ledger_yield(design: Design) -> float | None:
     """The yield the ledger records (a fraction; None without specs): from
     LEDGER_SAMPLES builds drawn with the fixed seed, so that before and
     after a change see the same draws and the change itself is sharp."""
-    y = quick_yield(design, LEDGER_SAMPLES)
+    return _value(quick_yield(design, LEDGER_SAMPLES))
+
+
+def _value(y) -> float | None:
     return None if y is None else y.value
 
 
@@ -129,8 +132,12 @@ class DesignSession:
 
     def yield_of(self, design: Design) -> float | None:
         """:func:`ledger_yield`, kept for the designs this session has seen."""
+        return _value(self.yield_result(design))
+
+    def yield_result(self, design: Design):
+        """The Yield behind :meth:`yield_of` (with its interval), or None without specs."""
         if design not in self._yields:
-            self._yields[design] = ledger_yield(design)
+            self._yields[design] = quick_yield(design, LEDGER_SAMPLES)
         return self._yields[design]
 
     def commit(self, values: dict, note: str = "", known: tuple | None = None) -> Entry:
