@@ -7,7 +7,7 @@ import math
 import pytest
 
 from model.design import stage as dm
-from model.design.stage import CE, EF, FIELDS, TOPOLOGIES, default_design, keys_for
+from model.design.stage import CB, CE, CE_SPLIT, CEF, CF, EF, EF_SPLIT, FIELDS, TOPOLOGIES, default_design, keys_for
 from model.errors import DesignError
 
 # (key, topology, rejected, accepted, words the rule must contain). The
@@ -51,6 +51,14 @@ BOUNDARIES = [
     ("parts.resistor_power", CE, 0.0, 1e-3, "greater than 0 W"),
     ("estimate.vbe", CE, 0.0, 1e-3, "greater than 0 V"),
     ("estimate.vbe", EF, 2.0, 1.999, "less than 2 V"),
+    ("supply.vee", CE_SPLIT, 0.0, -1e-3, "less than 0 V"),
+    ("supply.vee", EF_SPLIT, -1000.001, -1000.0, "at least -1000 V"),
+    ("bias.rb", CE_SPLIT, 0.0, 1e-3, "greater than 0 Ω"),
+    ("bias.rf", CF, 0.0, 1e-3, "greater than 0 Ω"),
+    ("bias.r2", CF, 0.0, 1e-3, "greater than 0 Ω"),
+    ("stage.rc", CB, 0.0, 1e-3, "greater than 0 Ω"),
+    ("stage.cb", CB, -1e-15, 0.0, "greater than 0 F, or 0 or 'none'"),
+    ("transistor2.beta", CEF, 0.0, 1e-3, "greater than 0"),
 ]
 CHOICES = [
     ("transistor.polarity", "nnp", ("npn", "pnp"), "'npn' or 'pnp'"),
@@ -71,8 +79,8 @@ def test_defaults_validate_and_use_only_their_topology_keys(topology):
 
 
 def test_unknown_default_topology_is_refused():
-    with pytest.raises(DesignError, match="'common-emitter' or 'emitter-follower'"):
-        default_design("common-base")
+    with pytest.raises(DesignError, match="topology.*'common-emitter'.*'emitter-follower-split'"):
+        default_design("common-collector")
 
 
 def test_every_number_rule_has_a_boundary_case():
@@ -195,9 +203,21 @@ def test_text_keys():
         dm.with_value(design, "notes", ["a"])
 
 
-def test_topology_cannot_change_in_place():
-    with pytest.raises(DesignError, match="default_design"):
-        dm.with_value(default_design(), "topology", EF)
+def test_a_new_topology_keeps_the_shared_keys_and_starts_the_rest():
+    design = dm.with_values(default_design(CE), {"supply.vcc": 15.0, "bias.r1": 68e3})
+    follower = dm.with_value(design, "topology", EF)
+    assert follower.topology == EF
+    assert (follower.supply.vcc, follower.bias.r1) == (15.0, 68e3)
+    assert follower.stage.re == default_design(EF).stage.re
+    # Back again: the keys only a common-emitter stage has start from its
+    # defaults (the ledger, not the model, remembers what they were).
+    back = dm.with_value(follower, "topology", CE)
+    assert back.stage.re1 == default_design(CE).stage.re1 and back.supply.vcc == 15.0
+
+
+def test_a_new_topology_refuses_a_key_it_lacks_set_alongside():
+    with pytest.raises(DesignError, match="stage.re1"):
+        dm.with_values(default_design(CE), {"topology": EF, "stage.re1": 100.0})
 
 
 def test_with_values_sets_several_at_once():
@@ -242,10 +262,11 @@ def test_design_to_dict_layout():
     data = dm.design_to_dict(dm.with_value(default_design(EF), "load.rl", "open"))
     assert list(data)[:4] == ["format", "name", "topology", "notes"]
     assert data["format"] == 1
-    assert list(data)[4:] == list(dm.TABLES)
+    # A table no key of the topology uses (transistor2 here) is left out.
+    assert list(data)[4:] == [t for t in dm.TABLES if t != "transistor2"]
     assert data["load"]["rl"] == "open"
     assert list(data["stage"]) == ["rc", "re", "cin", "cout"]
-    numbers = [v for t in dm.TABLES for v in data[t].values() if not isinstance(v, str)]
+    numbers = [v for t in dm.TABLES if t in data for v in data[t].values() if not isinstance(v, str)]
     assert numbers and all(type(v) is float for v in numbers)
 
 

@@ -39,13 +39,13 @@ def _four_solves(stage, op):
     no_source = net.without(SOURCE)
     loaded = small_signal(no_source, op, inject={stage.input: 1.0})
     unloaded = small_signal(no_source.without(LOAD), op, inject={stage.input: 1.0})
-    base = small_signal(no_source.without(BIAS), op, inject={stage.base: 1.0})
+    base = small_signal(no_source.without(BIAS), op, inject={stage.device_input: 1.0})
     back = small_signal(net.without(LOAD), op, inject={stage.output: 1.0}, excite={EMF: 0.0})
     return {
         "rin": loaded[stage.input],
         "av_loaded": loaded[stage.output] / loaded[stage.input],
         "av_open": unloaded[stage.output] / unloaded[stage.input],
-        "rin_base": base[stage.base],
+        "rin_base": base[stage.device_input],
         "rout": back[stage.output],
     }
 

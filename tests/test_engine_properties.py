@@ -24,8 +24,8 @@ from model import analyse
 from model.analyses.figures import analyse_batch, design_values
 from model.circuit.netlist import GROUND, Resistor
 from model.circuit.newton import operating_point
-from model.circuit.topologies import EMF, SUPPLY, TRANSISTOR, build
-from model.design.stage import TOPOLOGIES, default_design, with_values
+from model.circuit.topologies import EMF, FOLLOWER, NEGATIVE, SUPPLY, TRANSISTOR, build
+from model.design.stage import CB, CF, FOLLOWERS, TOPOLOGIES, default_design, keys_for, with_values
 
 SETTINGS = settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
@@ -52,10 +52,9 @@ def designs(draw, topology=None):
     """A random design that passes validation."""
     if topology is None:
         topology = draw(st.sampled_from(TOPOLOGIES))
+    keys = keys_for(topology)
     values = {
         "supply.vcc": draw(st.floats(3.0, 48.0)),
-        "bias.r1": draw(RESISTOR),
-        "bias.r2": draw(RESISTOR),
         "transistor.polarity": draw(st.sampled_from(("npn", "pnp"))),
         "transistor.beta": draw(_decades(20.0, 800.0)),
         "transistor.beta_r": draw(_decades(0.1, 20.0)),
@@ -67,32 +66,43 @@ def designs(draw, topology=None):
         "source.rs": draw(_maybe_zero(RESISTOR)),
         "source.vpk": draw(st.one_of(st.just(0.0), _decades(1e-4, 2.0))),
     }
-    if topology == "common-emitter":
-        values["stage.rc"] = draw(RESISTOR)
+    if "supply.vee" in keys:
+        values["supply.vee"] = -draw(st.floats(3.0, 48.0))
+    for key in ("bias.r1", "bias.rf", "bias.rb", "stage.re"):
+        if key in keys:
+            values[key] = draw(RESISTOR)
+    if "bias.r2" in keys:
+        # Collector feedback may leave r2 off the board.
+        values["bias.r2"] = draw(st.one_of(st.just("open"), RESISTOR) if topology == CF else RESISTOR)
+    values["stage.rc"] = draw(_maybe_zero(RESISTOR) if topology in FOLLOWERS[:2] else RESISTOR)
+    if "stage.re1" in keys:
         values["stage.re1"] = draw(_maybe_zero(RESISTOR))
         values["stage.re2"] = draw(_maybe_zero(RESISTOR))
-    else:
-        values["stage.rc"] = draw(_maybe_zero(RESISTOR))
-        values["stage.re"] = draw(RESISTOR)
+        if default_design(topology).stage.cin == 0 and values["source.rs"] == 0:
+            # No cin and no rs: the emitter must have a resistance (stage._check_wiring).
+            values["stage.re1"] = draw(RESISTOR)
+    if "transistor2.beta" in keys:
+        values["transistor2.beta"] = draw(_decades(20.0, 800.0))
     return with_values(default_design(topology), values)
 
 
 # ------------------------------------------------ our own device equations
-def _params(d):
-    """(IS, βF, βR, VA, VT) at the design's ambient, from REFERENCES.md."""
+def _params(d, name=TRANSISTOR):
+    """(IS, βF, βR, VA, VT) of transistor ``name`` at the design's ambient, from REFERENCES.md."""
     t = d.transistor
     kelvin = sc.zero_Celsius + d.environment.ambient
     t0 = sc.zero_Celsius + 25.0
     vt = sc.k * kelvin / sc.e
     ratio = kelvin / t0
     i_s = t.i_s * ratio**t.xti * math.exp((t.eg / vt) * (ratio - 1.0))
-    beta_f = t.beta * ratio**t.xtb
+    beta = d.transistor2.beta if name == FOLLOWER else t.beta
+    beta_f = beta * ratio**t.xtb
     return i_s, beta_f, t.beta_r, t.va, vt
 
 
-def _device(d, vbe, vbc):
+def _device(d, vbe, vbc, name=TRANSISTOR):
     """Forward-sense (IC, IB) by Ebers–Moll transport with the Early factor."""
-    i_s, beta_f, beta_r, va, vt = _params(d)
+    i_s, beta_f, beta_r, va, vt = _params(d, name)
     i_f = i_s * math.expm1(vbe / vt)
     i_r = i_s * math.expm1(vbc / vt)
     ic = (i_f - i_r) * (1.0 - vbc / va) - i_r / beta_r
@@ -113,12 +123,22 @@ def test_every_valid_design_solves(d):
     assert f.region in ("active", "saturation", "cutoff")
     for name in ("ic", "ib", "vbe", "vce", "vb", "ve", "vc", "p_transistor", "p_supply", "tj",
                  "av_open", "av_loaded", "av_source", "rin", "rin_base"):
+        if name == "rin_base" and d.topology == CB and f.region == "cutoff" and d.stage.cin == 0:
+            # The emitter's only path left is the cut-off junction: no
+            # finite resistance to report (README "Figures", rin_base).
+            continue
         assert math.isfinite(getattr(f, name)), name
     # Every node voltage lies between the rails: the stage has no source of
-    # energy other than the supply at DC (the EMF is zero at rest).
-    vcc = d.supply.vcc
+    # energy other than the supplies at DC (the EMF is zero at rest).
+    vcc, vee = d.supply.vcc, d.supply.vee
     for v in (f.vb, f.ve, f.vc):
-        assert -1e-9 * vcc <= v <= vcc * (1 + 1e-9)
+        assert vee - 1e-9 * vcc <= v <= vcc * (1 + 1e-9)
+    if d.topology in TWO:
+        assert f.region2 in ("active", "saturation", "cutoff")
+        assert all(math.isfinite(getattr(f, k)) for k in ("ic2", "vce2", "p_transistor2", "tj2"))
+
+
+TWO = ("ce-follower",)
 
 
 @SETTINGS
@@ -131,14 +151,17 @@ def test_kcl_recomputed_independently(d):
     assert bool(op.converged[0])
     v = {n: float(x[0]) for n, x in op.voltages.items()}
     s = _sign(d)
-    q = stage.net.element(TRANSISTOR)
-    ic, ib = _device(d, s * (v[q.b] - v[q.e]), s * (v[q.b] - v[q.c]))
-    into = {q.c: 0.0, q.b: 0.0, q.e: 0.0}
-    into[q.c] += s * ic
-    into[q.b] += s * ib
-    into[q.e] += -s * (ic + ib)
+    into = {n: 0.0 for n in v}
+    branch = []
+    for name in stage.transistors:
+        q = stage.net.element(name)
+        ic, ib = _device(d, s * (v[q.b] - v[q.e]), s * (v[q.b] - v[q.c]), name)
+        into[q.c] += s * ic
+        into[q.b] += s * ib
+        into[q.e] += -s * (ic + ib)
+        branch += [abs(ic), abs(ib), abs(ic + ib)]
+    assert len(stage.transistors) == (2 if d.topology in TWO else 1)
     outflow = {n: 0.0 for n in v}
-    branch = [abs(ic), abs(ib), abs(ic + ib)]
     for r in stage.net.of_type(Resistor):
         i = (v[r.a] - v[r.b]) / float(r.r[0])
         outflow[r.a] += i
@@ -148,9 +171,11 @@ def test_kcl_recomputed_independently(d):
         outflow[node] += i
     scale = max(branch)
     assert scale > 0
-    # Ground, the supply node and the source node are held by voltage sources.
-    free = [n for n in v if n not in (GROUND, SUPPLY, stage.net.element(EMF).plus)]
-    assert stage.base in free  # r1 and r2 are never zero, so the base always floats
+    # Ground, the supply nodes and the source node are held by voltage sources.
+    free = [n for n in v if n not in (GROUND, SUPPLY, NEGATIVE, stage.net.element(EMF).plus)]
+    # The bias resistors are never zero, so the base floats unless the source
+    # is wired straight to it (no cin, no rs).
+    assert stage.base in free or stage.base == stage.net.element(EMF).plus
     worst = max(abs(outflow[n]) for n in free)
     assert worst <= 1e-9 * scale, {n: outflow[n] for n in free}
 
@@ -199,10 +224,13 @@ def test_energy_balance(d):
     """Tellegen at rest: the supply's power goes into the transistor and the
     resistors (the EMF is zero and the capacitors carry no DC current)."""
     f = analyse(d)
-    total = f.p_transistor + sum(f.p_resistors.values())
-    assert f.p_supply > 0  # the divider alone draws current from the supply
+    follower = f.p_transistor2 if d.topology in TWO else 0.0
+    total = f.p_transistor + follower + sum(f.p_resistors.values())
+    assert f.p_supply > 0
     assert f.p_supply == pytest.approx(total, rel=1e-9)
-    assert f.p_supply == pytest.approx(d.supply.vcc * f.i_supply, rel=1e-12)
+    if d.supply.vee == 0:
+        assert f.p_supply == pytest.approx(d.supply.vcc * f.i_supply, rel=1e-12)
+    assert follower >= 0
     assert all(p >= 0 for p in f.p_resistors.values())
     # Forward-sense dissipation of the transistor is positive in every region.
     assert f.p_transistor >= 0
@@ -253,7 +281,8 @@ def test_swing_and_distortion_are_non_negative(d):
         value = getattr(f, name)
         assert math.isfinite(value) and value >= 0, name
     # The load voltage cannot move beyond the supply span.
-    assert f.swing_up <= d.supply.vcc * (1 + 1e-6) and f.swing_down <= d.supply.vcc * (1 + 1e-6)
+    span = d.supply.vcc - d.supply.vee
+    assert f.swing_up <= span * (1 + 1e-6) and f.swing_down <= span * (1 + 1e-6)
     assert f.hd2 <= f.thd * (1 + 1e-12) and f.hd3 <= f.thd * (1 + 1e-12)
 
 

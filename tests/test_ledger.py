@@ -33,7 +33,7 @@ from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 DEMOS = sorted((ROOT / "saved_designs").glob("*.toml"))
-CE, EF = TOPOLOGIES
+CE, EF = TOPOLOGIES[:2]
 
 # Rounding to 6 significant figures moves a value by at most half a unit in
 # the sixth digit: 5e-6 of it (a hair more for the float's own error).

@@ -27,7 +27,7 @@ from model.files.session import create
 from tui.cli import main
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
-CE, EF = TOPOLOGIES
+CE, EF = TOPOLOGIES[:2]
 
 # How each headline figure is labelled and in what unit it is printed.
 LABEL = {"ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),

@@ -12,7 +12,7 @@ against closed forms.
 import math
 
 import pytest
-from hypothesis import given
+from hypothesis import assume, given
 from test_engine_properties import SETTINGS, designs
 
 from model import analyse
@@ -21,7 +21,7 @@ from model.analyses.figures import design_values
 from model.analyses.loadlines import load_lines
 from model.circuit.newton import operating_point
 from model.circuit.topologies import build
-from model.design.stage import default_design, with_values
+from model.design.stage import default_design, keys_for, with_values
 
 
 def _par(a, b):
@@ -38,12 +38,20 @@ def _lines(d):
 @given(d=designs())
 @SETTINGS
 def test_load_line_resistances_are_the_closed_forms(d):
+    # Collector feedback and ce-follower have no such closed form: rf, or
+    # the follower, couples the collector back into the network.
+    assume(d.topology not in ("collector-feedback", "ce-follower"))
     ll, _ = _lines(d)
-    s, rl = d.stage, d.load.rl
-    assert ll.vce_open == pytest.approx(d.supply.vcc, rel=1e-9)
-    if d.topology == "common-emitter":
+    s, rl, rs = d.stage, d.load.rl, d.source.rs
+    assert ll.vce_open == pytest.approx(d.supply.vcc - d.supply.vee, rel=1e-9)
+    if d.topology in ("common-emitter", "common-emitter-split"):
         assert ll.r_dc == pytest.approx(s.rc + s.re1 + s.re2, rel=1e-9)
         assert ll.r_ac == pytest.approx(_par(s.rc, rl) + s.re1, rel=1e-9)
+    elif d.topology == "common-base":
+        # The source drives the emitter: rs shunts re at midband, and at DC
+        # too when no cin blocks it.
+        assert ll.r_dc == pytest.approx(s.rc + (_par(s.re, rs) if s.cin == 0 else s.re), rel=1e-9)
+        assert ll.r_ac == pytest.approx(_par(s.rc, rl) + _par(s.re, rs), rel=1e-9)
     else:
         assert ll.r_dc == pytest.approx(s.rc + s.re, rel=1e-9)
         assert ll.r_ac == pytest.approx(s.rc + _par(s.re, rl), rel=1e-9)
@@ -55,9 +63,10 @@ def test_q_point_is_off_the_dc_line_by_the_base_current_only(d):
     """KVL: VCE = VCC − IC·RC − (IC + IB)·RE, so the Q-point sits below the
     IE ≈ IC line by exactly IB·RE (in VCE), to the solver's KCL tolerance
     (1e-9 of the largest branch current, so allow 1e-7 of vcc)."""
+    assume(d.topology not in ("collector-feedback", "ce-follower", "common-base"))
     fig = analyse(d, large_signal=False)
     ll, _ = _lines(d)
-    r_e = d.stage.re1 + d.stage.re2 if d.topology == "common-emitter" else d.stage.re
+    r_e = d.stage.re1 + d.stage.re2 if "stage.re1" in keys_for(d.topology) else d.stage.re
     on_line = ll.vce_open - fig.ic * ll.r_dc
     assert ll.vce_q == pytest.approx(on_line - fig.ib * r_e, abs=1e-7 * d.supply.vcc)
 

@@ -31,7 +31,7 @@ from test_engine_properties import _decades, designs
 from model import analyse
 from model.analyses.figures import analyse_batch, design_values
 from model.analyses.hand import hand_estimate
-from model.design.stage import CE, EF, default_design, design_to_dict, get_value, with_values
+from model.design.stage import CB, CE, EF, WITH_BYPASS, default_design, design_to_dict, get_value, with_values
 from model.design.stepping import step, step_decade
 from model.errors import DesignError
 from model.files.designfile import dumps_design, loads_design, read_document
@@ -342,6 +342,18 @@ def test_a_source_across_the_junction_is_refused(polarity):
         analyse(_design(**{**wired, key: 100.0}))  # solves
 
 
+def test_a_source_holding_a_common_base_emitter_is_refused():
+    """A common-base stage with cin not fitted and rs = 0: the source holds
+    the emitter at 0 V while the divider holds the base, so VBE is fixed and
+    nothing limits the current; any source resistance makes it a circuit."""
+    wired = {"stage.cin": "none", "source.rs": 0.0}
+    with pytest.raises(DesignError) as caught:
+        with_values(default_design(CB), wired)
+    assert (caught.value.field, caught.value.value) == ("stage.cin", "none")
+    assert "common-base" in caught.value.rule
+    analyse(with_values(default_design(CB), {**wired, "source.rs": 1e3}))  # solves
+
+
 def test_batches_with_and_without_each_part_group_by_shape():
     """analyse_batch groups rows by their shape: every mix of fitted and
     not-fitted capacitors gives the same figures as each design alone."""
@@ -360,8 +372,10 @@ def _parts_left_off(draw, topology=None):
     """A random valid design (tests/test_engine_properties.py) with any of
     its capacitors not fitted."""
     d = draw(designs(topology))
-    keys = ["stage.cin", "stage.cout", "load.cl"] + (["stage.ce"] if d.topology == CE else [])
-    if d.topology == CE and d.source.rs == d.stage.re1 == d.stage.re2 == 0:
+    keys = ["stage.cin", "stage.cout", "load.cl"] + (["stage.ce"] if d.topology in WITH_BYPASS else []) + (
+        ["stage.cb"] if d.topology == CB else [])
+    if (d.topology in WITH_BYPASS and d.source.rs == d.stage.re1 == d.stage.re2 == 0) or (
+            d.topology == CB and d.source.rs == 0):
         keys.remove("stage.cin")  # refused (see test_a_source_across_the_junction_is_refused)
     return with_values(d, {k: "none" for k in draw(st.lists(st.sampled_from(keys), unique=True))})
 

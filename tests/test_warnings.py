@@ -145,9 +145,9 @@ def test_vce_over_and_under():
 @pytest.mark.parametrize("polarity", POLARITIES)
 @pytest.mark.parametrize("topology", TOPOLOGIES)
 def test_vce_never_over_a_vceo_above_the_supply(topology, polarity):
-    # Collector and emitter both sit between the rails, so |VCE| ≤ VCC.
+    # Collector and emitter both sit between the rails, so |VCE| ≤ VCC − VEE.
     d = _design(topology, polarity)
-    assert "VCE-OVER" not in _codes(with_values(d, {"transistor.vceo": d.supply.vcc + 0.01}))
+    assert "VCE-OVER" not in _codes(with_values(d, {"transistor.vceo": d.supply.vcc - d.supply.vee + 0.01}))
 
 
 def test_resistor_overload_names_the_hot_parts():
@@ -214,7 +214,17 @@ def test_hazardous_voltage_above_60_v(topology):
 @pytest.mark.parametrize("vcc", [59.0, 60.0])
 @pytest.mark.parametrize("topology", TOPOLOGIES)
 def test_no_hazard_warning_at_or_below_60_v(topology, vcc):
-    assert "HAZARDOUS-VOLTAGE" not in _codes(_design(topology, supply__vcc=vcc))
+    # A split supply is judged rail to rail: vcc − vee.
+    split = {"supply.vcc": vcc - 9.0, "supply.vee": -9.0} if topology.endswith("-split") else {"supply.vcc": vcc}
+    assert "HAZARDOUS-VOLTAGE" not in _codes(with_values(default_design(topology), split))
+
+
+@pytest.mark.parametrize("topology", ["common-emitter-split", "emitter-follower-split"])
+def test_a_split_supply_is_hazardous_by_its_span(topology):
+    # ±31 V: each rail below 60 V, but 62 V between them.
+    d = with_values(default_design(topology), {"supply.vcc": 31.0, "supply.vee": -31.0})
+    messages = _messages(d, "HAZARDOUS-VOLTAGE")
+    assert len(messages) == 1 and "62 V rail to rail" in messages[0]
 
 
 def test_every_message_is_one_readable_line():

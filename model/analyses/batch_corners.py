@@ -33,14 +33,14 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from model.analyses.capacitance import CMU, CPI, DEVICE, DeviceCapacitance
+from model.analyses.capacitance import DeviceCapacitance, device_capacitance, device_capacitors
 from model.analyses.corner_search import _HALF_POWER_DB, _HIGHEST_DECADE, _LOWEST_DECADE, frequency_response
 from model.circuit.dense import solve_batched
 from model.circuit.linearised import FrequencySweep, small_signal
 from model.circuit.netlist import GROUND, Capacitor
 from model.circuit.newton import OperatingPoint
 from model.circuit.plan import MIDBAND, plan_for
-from model.circuit.topologies import EMF, TRANSISTOR, StageCircuit
+from model.circuit.topologies import EMF, FOLLOWER, TRANSISTOR, StageCircuit
 
 #: Width (decades) of the final bracket around each crossing.
 _WIDTH = 1e-6
@@ -63,13 +63,18 @@ class BatchResponse:
     gain_at_freq: np.ndarray
 
 
-def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband, signal_freq) -> BatchResponse:
+def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband, signal_freq,
+                  gm2=None) -> BatchResponse:
     """The corners of every row of a built stage at its converged ``op``, with
     Cπ = gm/(2π·fT) − Cμ (floored at 0) and Cμ across the transistor.
-    gm (S), ft (Hz), cmu (F), midband av_source (V/V), signal_freq (Hz) per row."""
+    gm (S), ft (Hz), cmu (F), midband av_source (V/V), signal_freq (Hz) per
+    row; ``gm2`` (S) the follower's, for a stage with one."""
     total = gm / (2.0 * np.pi * ft)
     c_pi = np.maximum(total - cmu, 0.0)
-    full = _with_device(stage, c_pi, cmu)
+    values = [(TRANSISTOR, c_pi, cmu)]
+    if gm2 is not None:
+        values.append((FOLLOWER, np.maximum(gm2 / (2.0 * np.pi * ft) - cmu, 0.0), cmu))
+    full = replace(stage, net=stage.net.with_elements(*device_capacitors(stage, values)))
     est_low, est_high = _estimates(full, op)
     at = _Response(full, op)
     reference = np.abs(midband)
@@ -94,19 +99,13 @@ def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband,
         f_low[rows], f_high[rows] = corner[:, 0], corner[:, 1]
         settled[rows] = ok
     for r in np.flatnonzero(~settled):
+        followers = () if gm2 is None else (
+            (FOLLOWER, device_capacitance(float(gm2[r]), float(ft[r]), float(cmu[r]))),)
         one = frequency_response(replace(stage, net=stage.net.take(np.array([r]))), op.take(np.array([r])),
                                  DeviceCapacitance(float(c_pi[r]), float(cmu[r]), bool(total[r] < cmu[r])),
-                                 float(midband[r]), float(signal_freq[r]))
+                                 float(midband[r]), float(signal_freq[r]), followers=followers)
         f_low[r], f_high[r], gain_at_freq[r] = one.f_low, one.f_high, abs(one.gain_at_freq)
     return BatchResponse(f_low, f_high, gain_at_freq)
-
-
-def _with_device(stage: StageCircuit, c_pi, c_mu) -> StageCircuit:
-    """capacitance.with_device_capacitance with a Cπ and Cμ per row."""
-    q = stage.net.element(TRANSISTOR)
-    extra = (Capacitor(CPI, q.b, q.e, c_pi, coupling=False, tags=frozenset((DEVICE,))),
-             Capacitor(CMU, q.b, q.c, c_mu, coupling=False, tags=frozenset((DEVICE,))))
-    return replace(stage, net=stage.net.with_elements(*extra))
 
 
 def _estimates(stage: StageCircuit, op: OperatingPoint):

@@ -55,7 +55,7 @@ from model.analyses.transfer import (
 )
 from model.circuit.device import critical_voltage
 from model.circuit.newton import OperatingPoint, SweepReduction
-from model.circuit.topologies import TRANSISTOR, StageCircuit
+from model.circuit.topologies import StageCircuit
 
 #: Phases of the short distortion period (a divisor of FFT_POINTS).
 QUICK_POINTS = 16
@@ -111,18 +111,19 @@ class _HeldRows:
         self.red = _held(stage, op)
         self.output = stage.output
         self.out_q = op.voltages[stage.output]
-        self.u_q = op.junctions[:, 0]
-        self.slope = self.red.slope(op)[:, 0]
-        crit = critical_voltage(stage.net.element(TRANSISTOR).params)
-        self.ceiling = np.stack([crit, np.minimum(crit, self.u_q[:, 0])], axis=1)
+        self.names = stage.transistors
+        self.u_q = op.junctions  # (batch, transistor, 2)
+        self.slope = self.red.slope(op)
+        crit = np.stack([critical_voltage(stage.net.element(n).params) for n in self.names], axis=1)
+        self.ceiling = np.stack([crit, np.minimum(crit, self.u_q[:, :, 0])], axis=2)
 
     def solve(self, rows, emf):
         """Rows ``rows`` (k,) at EMFs ``emf`` (k, m) V: the load voltage's
         excursion (V), the margin, whether each point is forward-active and
         whether it converged."""
         k, m = emf.shape
-        start = self.u_q[rows, None] + emf[:, :, None] * self.slope[rows, None]
-        start = np.minimum(start, self.ceiling[rows, None]).reshape(k * m, 1, 2)
+        start = self.u_q[rows, None] + emf[:, :, None, None] * self.slope[rows, None]
+        start = np.minimum(start, self.ceiling[rows, None]).reshape(k * m, len(self.names), 2)
         sol = _subset(self.red, rows).solve(emf, start)
         out = sol.voltages[self.output].reshape(k, m) - self.out_q[rows, None]
         margin = _margin(sol).reshape(k, m)
@@ -147,15 +148,19 @@ def _subset(red: SweepReduction, rows) -> SweepReduction:
 
 def _first_guess(held: _HeldRows, op: OperatingPoint, rows, direction):
     """|EMF| (V) where the linearised stage reaches an edge going ``direction``
-    (±1 per lane): VBC at VBC_SATURATION or IC extrapolated to 0 A, the nearer."""
-    st = op.states[TRANSISTOR]
-    s_be, s_bc = held.slope[rows, 0], held.slope[rows, 1]
-    vbc_rate = direction * s_bc
-    ic_rate = direction * (st.dic_dvbe[rows] * s_be + st.dic_dvbc[rows] * s_bc)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        sat = np.where(vbc_rate > 0, (VBC_SATURATION - held.u_q[rows, 1]) / vbc_rate, np.inf)
-        cut = np.where(ic_rate < 0, (st.ic[rows] - IC_CUTOFF) / -ic_rate, np.inf)
-    return np.minimum(sat, cut)
+    (±1 per lane): VBC at VBC_SATURATION or IC extrapolated to 0 A, the
+    nearer, for whichever transistor gets there first."""
+    nearest = np.full(rows.size, np.inf)
+    for k, name in enumerate(held.names):
+        st = op.states[name]
+        s_be, s_bc = held.slope[rows, k, 0], held.slope[rows, k, 1]
+        vbc_rate = direction * s_bc
+        ic_rate = direction * (st.dic_dvbe[rows] * s_be + st.dic_dvbc[rows] * s_bc)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sat = np.where(vbc_rate > 0, (VBC_SATURATION - held.u_q[rows, k, 1]) / vbc_rate, np.inf)
+            cut = np.where(ic_rate < 0, (st.ic[rows] - IC_CUTOFF) / -ic_rate, np.inf)
+        nearest = np.minimum(nearest, np.minimum(sat, cut))
+    return nearest
 
 
 def _swing(held: _HeldRows, op: OperatingPoint, rows, vcc, span):

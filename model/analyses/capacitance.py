@@ -38,12 +38,21 @@ def device_capacitance(gm: float, ft: float, cmu: float) -> DeviceCapacitance:
     return DeviceCapacitance(max(total - cmu, 0.0), cmu, total < cmu)
 
 
-def with_device_capacitance(stage: StageCircuit, caps: DeviceCapacitance) -> StageCircuit:
-    """The stage with Cπ (b–e) and Cμ (b–c) across its transistor."""
-    q = stage.net.element(TRANSISTOR)
+def with_device_capacitance(stage: StageCircuit, caps: DeviceCapacitance, followers: tuple = ()) -> StageCircuit:
+    """The stage with Cπ (b–e) and Cμ (b–c) across its transistor, and
+    ``followers``' own (transistor name, DeviceCapacitance) across theirs."""
     batch = stage.net.batch
-    extra = (
-        Capacitor(CPI, q.b, q.e, np.full(batch, caps.c_pi), coupling=False, tags=frozenset((DEVICE,))),
-        Capacitor(CMU, q.b, q.c, np.full(batch, caps.c_mu), coupling=False, tags=frozenset((DEVICE,))),
-    )
-    return replace(stage, net=stage.net.with_elements(*extra))
+    return replace(stage, net=stage.net.with_elements(*device_capacitors(
+        stage, [(TRANSISTOR, np.full(batch, caps.c_pi), np.full(batch, caps.c_mu))]
+        + [(name, np.full(batch, c.c_pi), np.full(batch, c.c_mu)) for name, c in followers])))
+
+
+def device_capacitors(stage: StageCircuit, values) -> tuple:
+    """Cπ and Cμ capacitors from (transistor name, Cπ per row, Cμ per row);
+    the gain transistor's are named cpi and cmu, a follower's cpi2 and cmu2."""
+    out = []
+    for k, (name, c_pi, c_mu) in enumerate(values):
+        q, suffix = stage.net.element(name), "" if k == 0 else str(k + 1)
+        out += [Capacitor(CPI + suffix, q.b, q.e, c_pi, coupling=False, tags=frozenset((DEVICE,))),
+                Capacitor(CMU + suffix, q.b, q.c, c_mu, coupling=False, tags=frozenset((DEVICE,)))]
+    return tuple(out)

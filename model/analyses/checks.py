@@ -33,11 +33,14 @@ def _v(x, unit):
 
 def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
                    p_transistor, tj, p_resistors, ic_beta_half, ic_beta_double, device, ft,
-                   band=None) -> tuple:
+                   band=None, follower=None, swing_limits=("", "")) -> tuple:
     """All warnings for one analysed design (scalars in SI units).
 
     ``band`` is (f_low, f_high, gain at source.freq over midband) from the
-    frequency response, or None where that was not computed.
+    frequency response, or None where that was not computed.  ``follower``:
+    the second transistor's Figures fields (region2, ic2, vce2, p_transistor2,
+    tj2, ...) of a two-transistor stage; ``swing_limits`` what ends the swing
+    up and down ("q2 cutoff").
     """
     t = d.transistor
     out = []
@@ -89,10 +92,45 @@ def stage_warnings(d, *, region, ic, vce, vbc, swing_up, swing_down, wanted_out,
             out.append(Warning_("OUT-OF-BAND", f"source.freq {_v(d.source.freq, 'Hz')} is {where} "
                                 f"{_v(corner, 'Hz')}: the gain there is {20 * math.log10(max(relative, 1e-300)):.1f} dB "
                                 "from midband"))
-    if d.supply.vcc > SAFE_DC_VOLTS:
-        out.append(Warning_("HAZARDOUS-VOLTAGE", f"supply {_v(d.supply.vcc, 'V')} exceeds 60 V DC: a shock "
+    if follower:
+        out += _follower_warnings(d, follower, region, short if wanted_out > 0 else (), swing_limits)
+    span = d.supply.vcc - d.supply.vee
+    if span > SAFE_DC_VOLTS:
+        shown = (f"supply {_v(d.supply.vcc, 'V')}" if d.supply.vee == 0 else
+                 f"split supply {_v(d.supply.vcc, 'V')} / {_v(d.supply.vee, 'V')} ({_v(span, 'V')} rail to rail)")
+        out.append(Warning_("HAZARDOUS-VOLTAGE", f"{shown} exceeds 60 V DC: a shock "
                             "hazard; follow local codes and licensed practice"))
     return tuple(out)
+
+
+def _follower_warnings(d, f: dict, region: str, short, swing_limits) -> list:
+    """The follower's own failures: not active at rest, past its ratings, or
+    clipping the output before the gain stage does."""
+    t, out = d.transistor, []
+    if f["region2"] == "saturation":
+        out.append(Warning_("Q2-SATURATED", f"follower q2 saturated at rest (VCE {_v(f['vce2'], 'V')}): "
+                            "the gain stage's collector sits too close to the supply"))
+    elif f["region2"] == "cutoff":
+        out.append(Warning_("Q2-CUTOFF", f"follower q2 cut off at rest (IC {_v(f['ic2'], 'A')}): "
+                            "its emitter resistor re carries no current"))
+    if f["tj2"] >= t.tj_max:
+        out.append(Warning_("Q2-TJ-OVER", f"follower junction temperature {f['tj2']:.1f} °C at or above "
+                            f"tj_max {t.tj_max:g} °C"))
+    if f["p_transistor2"] > t.pd_max:
+        out.append(Warning_("Q2-PD-OVER", f"follower q2 dissipates {_v(f['p_transistor2'], 'W')}, above "
+                            f"pd_max {_v(t.pd_max, 'W')}"))
+    if f["vce2"] > t.vceo:
+        out.append(Warning_("Q2-VCE-OVER", f"follower VCE {_v(f['vce2'], 'V')} above vceo {_v(t.vceo, 'V')}"))
+    # Worth saying only where the output falls short of the request: then
+    # the follower, not the gain stage, is what to change.
+    if region == "active" and f["region2"] == "active":
+        for side, s in short:
+            why = swing_limits[0] if side == "up" else swing_limits[1]
+            if why.startswith("q2 "):
+                out.append(Warning_("Q2-CLIPS-FIRST", f"the follower q2 reaches {why.split()[1]} before the "
+                                    f"gain stage going {side} (swing_{side} {_v(s, 'V')}): lower re or "
+                                    "raise the follower's current"))
+    return out
 
 
 def _dc_coupled(d) -> str:
@@ -103,5 +141,6 @@ def _dc_coupled(d) -> str:
         parts.append(f"with cin none the source's 0 V through rs {_v(d.source.rs, 'Ω')} is part of the bias")
     if d.stage.cout == 0 and math.isfinite(d.load.rl):
         parts.append(f"with cout none rl {_v(d.load.rl, 'Ω')} carries DC from the "
-                     + ("emitter" if d.topology == "emitter-follower" else "collector"))
+                     + ("emitter" if d.topology in ("emitter-follower", "emitter-follower-split", "ce-follower")
+                        else "collector"))
     return "".join(f"; {p}" for p in parts)

@@ -152,15 +152,23 @@ def open_circuit_parts(stage: StageCircuit, op: OperatingPoint, z=None) -> tuple
 
 
 def miller_estimate(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, z=None) -> float:
-    """f_high (Hz) from the input pole alone, each device capacitance moved
-    to the base by the Miller theorem: C = Cπ(1 − ve/vb) + Cμ(1 − vc/vb), with
-    the midband node gains, against the resistance from base to ground."""
+    """f_high (Hz) from the input pole alone: each device capacitance of the
+    gain transistor that touches its input node x (the base; a common base's
+    emitter) moved to x by the Miller theorem, C(1 − vy/vx) for a capacitance
+    from x to y, with the midband node gains, against the resistance from x
+    to ground.  For a common emitter: Cπ(1 − ve/vb) + Cμ(1 − vc/vb)."""
     z = z or transfer_impedances(stage.net, op)
     drive = small_signal(stage.net, op, excite={EMF: 1.0})
-    vb = drive[stage.base][0]
-    c = (device.c_pi * (1.0 - drive[stage.emitter][0] / vb)
-         + device.c_mu * (1.0 - drive[stage.collector][0] / vb)).real
-    r_base = float(z(stage.base, stage.base)[0])
+    x = stage.device_input
+    vx = drive[x][0]
+    if vx == 0:
+        return math.inf
+    c = 0.0
+    for value, (a, b) in ((device.c_pi, (stage.base, stage.emitter)), (device.c_mu, (stage.base, stage.collector))):
+        if x in (a, b):
+            c += value * (1.0 - drive[b if x == a else a][0] / vx)
+    c = c.real if isinstance(c, complex) else float(np.real(c))
+    r_base = float(z(x, x)[0])
     if not r_base * c > 0:
         return math.inf
     # A base held by a near-zero resistance (bias.r2 = 1e-300 Ω is valid) has

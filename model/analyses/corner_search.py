@@ -120,16 +120,18 @@ class Response:
 
 
 def frequency_response(stage: StageCircuit, op: OperatingPoint, device: DeviceCapacitance, midband_gain: float,
-             signal_freq: float, *, per_decade: int = POINTS_PER_DECADE, points: int | None = None) -> Response:
+             signal_freq: float, *, per_decade: int = POINTS_PER_DECADE, points: int | None = None,
+             followers: tuple = ()) -> Response:
     """The response of a single-design stage with ``device`` capacitances
     across its transistor.
 
     ``midband_gain`` is av_source at midband (V/V); ``signal_freq`` (Hz) the
     frequency of ``gain_at_freq``.  The sweep spans whole decades from one
     below the lower corner to one above the upper, ``per_decade`` points a
-    decade, or ``points`` points in all when that is given.
+    decade, or ``points`` points in all when that is given.  ``followers``:
+    (transistor name, DeviceCapacitance) of each transistor after the first.
     """
-    stage = with_device_capacitance(stage, device)
+    stage = with_device_capacitance(stage, device, followers)
     z = transfer_impedances(stage.net, op)
     low, high = short_circuit_parts(stage, op), open_circuit_parts(stage, op, z)
     # The corners are searched on a grid of fixed density, so they do not

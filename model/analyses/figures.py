@@ -19,19 +19,20 @@ from model.analyses.power import dissipation
 from model.analyses.transfer import LargeSignal, region_of, swing_and_distortion
 from model.analyses.unsolved import unsolved_message
 from model.circuit.newton import operating_point
-from model.circuit.topologies import TRANSISTOR, StageCircuit, build, shape_of
+from model.circuit.topologies import FOLLOWER, TRANSISTOR, StageCircuit, build, shape_of
 from model.design.stage import Design
 from model.errors import SolveError
 from model.files.plain_json import plain
 
 #: Design keys fed to the builders, as "table.key"; transistor.sign is derived.
 _KEYS = (
-    "supply.vcc", "bias.r1", "bias.r2",
-    "stage.rc", "stage.re1", "stage.re2", "stage.ce", "stage.re", "stage.cin", "stage.cout",
+    "supply.vcc", "supply.vee", "bias.r1", "bias.r2", "bias.rf", "bias.rb",
+    "stage.rc", "stage.re1", "stage.re2", "stage.ce", "stage.cb", "stage.re", "stage.cin", "stage.cout",
     "source.rs", "source.vpk", "source.freq", "load.rl", "load.cl",
     "transistor.beta", "transistor.beta_r", "transistor.va", "transistor.i_s",
     "transistor.xti", "transistor.eg", "transistor.xtb", "environment.ambient",
     "transistor.ft", "transistor.cmu", "transistor.theta_ja",  # the response and tj of analyse_many
+    "transistor2.beta",
 )
 _KEY_PARTS = tuple(tuple(key.split(".")) for key in _KEYS)
 
@@ -43,6 +44,10 @@ FIGURE_KEYS = (
     "p_transistor", "p_supply", "i_supply", "tj",
     "f_low", "f_high", "bandwidth", "gain_at_freq", "phase_at_freq", "c_pi",
 )
+
+
+#: The follower's figures in ``Figures.to_dict()``, for a stage with one.
+FOLLOWER_KEYS = ("region2", "ic2", "ib2", "vbe2", "vce2", "gm2", "p_transistor2", "tj2")
 
 
 def design_values(designs: Sequence[Design]) -> dict:
@@ -110,6 +115,22 @@ class Figures:
     response: Response | None = None
     #: Source EMFs (V) where the stage leaves forward-active, going down and up.
     emf_edges: tuple = (math.nan, math.nan)
+    #: What ends the swing up and down ("q1 saturation", "q2 cutoff", "").
+    swing_limits: tuple = ("", "")
+    #: The follower (q2) of a two-transistor stage, forward sense as ic, vce;
+    #: "" and NaN for a stage without one.
+    region2: str = ""
+    ic2: float = math.nan
+    ib2: float = math.nan
+    vbe2: float = math.nan
+    vce2: float = math.nan
+    gm2: float = math.nan
+    p_transistor2: float = math.nan
+    tj2: float = math.nan
+
+    @property
+    def two_transistors(self) -> bool:
+        return bool(self.region2)
 
     def to_dict(self) -> dict:
         """The ``report --json`` object: FIGURE_KEYS, then gains in dB and extras.
@@ -126,6 +147,9 @@ class Figures:
         out["p_resistors"] = dict(self.p_resistors)
         for k in ("vout_wanted", "ic_beta_half", "ic_beta_double", "kcl_residual", "newton_iterations"):
             out[k] = getattr(self, k)
+        out["swing_up_by"], out["swing_down_by"] = (x or None for x in self.swing_limits)
+        if self.two_transistors:
+            out.update({k: getattr(self, k) for k in FOLLOWER_KEYS})
         out["gain_at_freq_db"] = float(decibels(self.gain_at_freq))
         r = self.response
         if r is not None:
@@ -163,13 +187,20 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     # Where the swing search first looks: the output can move at most about vcc,
     # plus room for the ~0.5 V base-emitter excursion that reaches cut-off.
     rs, rin = design.source.rs, float(mid.rin[0])
-    span = 3.0 * design.supply.vcc / max(abs(float(mid.av_source[0])), 1e-6) + 1.0 * (1.0 + rs / rin)
-    big = (swing_and_distortion(nominal, op, design.supply.vcc, design.source.vpk, span) if large_signal
+    rails = design.supply.vcc - design.supply.vee
+    span = 3.0 * rails / max(abs(float(mid.av_source[0])), 1e-6) + 1.0 * (1.0 + rs / rin)
+    big = (swing_and_distortion(nominal, op, rails, design.source.vpk, span) if large_signal
            else LargeSignal(*(math.nan,) * 5, (math.nan, math.nan), np.zeros(0), np.zeros(0)))
     caps = device_capacitance(float(dev.gm[0]), t.ft, t.cmu)
-    resp = (frequency_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq, per_decade=per_decade)
+    follower = _follower(design, nominal, op) if FOLLOWER in nominal.transistors else {}
+    followers = ((FOLLOWER, device_capacitance(follower["gm2"], t.ft, t.cmu)),) if follower else ()
+    resp = (frequency_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq,
+                               per_decade=per_decade, followers=followers)
             if large_signal else None)
     power = dissipation(nominal, op)
+    if follower:
+        follower["p_transistor2"] = p2 = float(power.p_transistors[FOLLOWER][0])
+        follower["tj2"] = design.environment.ambient + p2 * t.theta_ja
     p_q = float(power.p_transistor[0])
     tj = design.environment.ambient + p_q * t.theta_ja
     ic = float(st.ic[0])
@@ -185,6 +216,7 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
         p_transistor=p_q, tj=tj, p_resistors=p_res,
         ic_beta_half=ic_half, ic_beta_double=ic_double, device=caps, ft=t.ft,
         band=(resp.f_low, resp.f_high, abs(resp.gain_at_freq) / max(abs(av_source), 1e-300)) if resp else None,
+        follower=follower, swing_limits=big.limits if large_signal else ("", ""),
     )
     v = op.voltages
     nan = math.nan
@@ -204,7 +236,18 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
         ic_beta_half=ic_half, ic_beta_double=ic_double,
         kcl_residual=float(op.residual[0]), newton_iterations=op3.iterations,
         large_signal=large_signal, emf_edges=big.emf_edges,
+        swing_limits=big.limits if large_signal else ("", ""), **follower,
     )
+
+
+def _follower(design: Design, stage: StageCircuit, op) -> dict:
+    """The follower's operating point and gm, as Figures' ``*2`` fields."""
+    k = stage.transistors.index(FOLLOWER)
+    st = op.states[FOLLOWER]
+    vbe, vbc = float(op.junctions[0, k, 0]), float(op.junctions[0, k, 1])
+    return dict(region2=str(region_of(st.ic, op.junctions[:, k, 1])[0]), ic2=float(st.ic[0]),
+                ib2=float(st.ib[0]), vbe2=vbe, vce2=vbe - vbc,
+                gm2=float(device_small_signal(op, FOLLOWER).gm[0]))
 
 
 def dc_midband(stage: StageCircuit, rs: np.ndarray):

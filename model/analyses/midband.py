@@ -33,12 +33,14 @@ class DeviceSmallSignal:
     beta_ac: np.ndarray
 
 
-def device_small_signal(op: OperatingPoint) -> DeviceSmallSignal:
-    st = op.states[TRANSISTOR]
+def device_small_signal(op: OperatingPoint, name: str = TRANSISTOR) -> DeviceSmallSignal:
+    """The hybrid-π parameters of transistor ``name`` (the gain transistor by default)."""
+    st = op.states[name]
     # With VCE held, a change in VBE moves VBC by the same amount.
     gm = st.dic_dvbe + st.dic_dvbc
     g_pi = st.dib_dvbe + st.dib_dvbc
-    with np.errstate(divide="ignore"):
+    # A junction deep in cut-off has derivatives near the smallest float.
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
         return DeviceSmallSignal(gm=gm, r_pi=1.0 / g_pi, ro=-1.0 / st.dic_dvbc, beta_ac=gm / g_pi)
 
 
@@ -64,8 +66,9 @@ def midband_figures(stage: StageCircuit, op: OperatingPoint, rs: np.ndarray) -> 
     # Driving the input terminal with a test current: rin and the terminal gain.
     loaded = base.response(stage.input)
     unloaded = base.changed(net, LOAD, remove=True).response(stage.input)
-    # Looking into the base alone: bias divider and source removed.
-    at_base = base.changed(net, BIAS, remove=True).response(stage.base)
+    # Looking into the transistor alone (its base, or a common base's
+    # emitter): the bias resistors that shunt it and the source removed.
+    at_base = base.changed(net, BIAS, remove=True).response(stage.device_input)
     # Looking back into the output: EMF at zero with rs in place, load removed.
     back = base.changed(net, LOAD, remove=True).changed(net, SOURCE, remove=False).response(stage.output)
     rin = loaded(stage.input)
@@ -78,7 +81,7 @@ def midband_figures(stage: StageCircuit, op: OperatingPoint, rs: np.ndarray) -> 
         av_loaded=av_loaded,
         av_source=av_source,
         rin=rin,
-        rin_base=at_base(stage.base),
+        rin_base=at_base(stage.device_input),
         rout=back(stage.output),
     )
 

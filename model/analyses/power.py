@@ -15,25 +15,31 @@ from model.circuit.topologies import TRANSISTOR, StageCircuit
 class Dissipation:
     """Quiescent powers in W and the supply current in A, per batch row.
 
-    p_transistor = VCE·IC + VBE·IB (forward sense, so PNP and NPN agree);
-    p_resistors maps each resistor's name to I²R.
+    p_transistor = VCE·IC + VBE·IB (forward sense, so PNP and NPN agree) of
+    the gain transistor, ``p_transistors`` the same for each transistor by
+    name; p_supply is what every supply delivers, i_supply the current from
+    the positive one; p_resistors maps each resistor's name to I²R.
     """
 
     p_transistor: np.ndarray
     p_supply: np.ndarray
     i_supply: np.ndarray
     p_resistors: dict
+    p_transistors: dict
 
 
 def dissipation(stage: StageCircuit, op: OperatingPoint) -> Dissipation:
     net, v = stage.net, op.voltages
     currents = branch_currents(net, v, op.states)
     p_res = {name: currents[name] ** 2 * net.element(name).r for name in stage.resistors}
-    st = op.states[TRANSISTOR]
-    vbe, vbc = op.junctions[:, 0, 0], op.junctions[:, 0, 1]
-    p_q = (vbe - vbc) * st.ic + vbe * st.ib
-    i_supply = node_outflows(net, v, op.states, currents)[stage.supply]
-    return Dissipation(p_q, v[stage.supply] * i_supply, i_supply, p_res)
+    p_q = {}
+    for k, name in enumerate(stage.transistors):
+        st, vbe, vbc = op.states[name], op.junctions[:, k, 0], op.junctions[:, k, 1]
+        p_q[name] = (vbe - vbc) * st.ic + vbe * st.ib
+    out = node_outflows(net, v, op.states, currents)
+    i_supply = out[stage.supply]
+    p_supply = sum(v[s] * out[s] for s in stage.supplies)
+    return Dissipation(p_q[TRANSISTOR], p_supply, i_supply, p_res, p_q)
 
 
 def branch_currents(net: Netlist, v: dict, states: dict) -> dict:

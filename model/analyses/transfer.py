@@ -41,14 +41,37 @@ def region_of(ic, vbc) -> np.ndarray:
     return np.where(vbc > VBC_SATURATION, SATURATION, np.where(ic < IC_CUTOFF, CUTOFF, ACTIVE))
 
 
-def _margin(op: OperatingPoint):
-    """How far each row is inside forward-active: the smaller of the saturation
-    margin (V) and the cut-off margin (nepers, clipped); ≥ 0 while active."""
-    st = op.states[TRANSISTOR]
-    vbc = op.junctions[:, 0, 1]
+def _margins(op: OperatingPoint):
+    """(saturation margin (V), cut-off margin (nepers, clipped)), each
+    (row, transistor); both ≥ 0 while that transistor is active."""
+    vbc = op.junctions[:, :, 1]
+    ic = np.stack([op.states[name].ic for name in op.states], axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
-        cut = np.log(np.maximum(st.ic, 1e-300) / IC_CUTOFF)
-    return np.minimum(VBC_SATURATION - vbc, np.clip(cut, -50.0, 50.0))
+        cut = np.log(np.maximum(ic, 1e-300) / IC_CUTOFF)
+    return VBC_SATURATION - vbc, np.clip(cut, -50.0, 50.0)
+
+
+def _margin(op: OperatingPoint):
+    """How far each row is inside forward-active: the smallest over every
+    transistor of the saturation and cut-off margins; ≥ 0 while all are active."""
+    sat, cut = _margins(op)
+    return np.min(np.minimum(sat, cut), axis=1)
+
+
+def limiter(op: OperatingPoint, row: int) -> str:
+    """Which transistor leaves forward-active first at ``row``, and how:
+    "q2 cutoff", "q1 saturation" (the smallest margin there)."""
+    sat, cut = _margins(op)
+    k, kind = divmod(int(np.argmin(np.stack([sat[row], cut[row]], axis=1))), 2)
+    return f"{list(op.states)[k]} {(SATURATION, CUTOFF)[kind]}"
+
+
+def all_active(op: OperatingPoint) -> np.ndarray:
+    """Per row: every transistor forward-active."""
+    ok = np.ones(op.junctions.shape[0], dtype=bool)
+    for k, name in enumerate(op.states):
+        ok &= region_of(op.states[name].ic, op.junctions[:, k, 1]) == ACTIVE
+    return ok
 
 
 def _sweep(span: float) -> np.ndarray:
@@ -62,6 +85,8 @@ class LargeSignal:
 
     ``emf_edges`` are the source EMFs (V) where the stage leaves forward-active
     going down and up; ``curve_emf``/``curve_out`` the sampled transfer (V).
+    ``limits`` says what ends the output's swing up and down ("q1
+    saturation", "q2 cutoff"; "" where no edge was reached).
     """
 
     swing_up: float
@@ -72,6 +97,7 @@ class LargeSignal:
     emf_edges: tuple
     curve_emf: np.ndarray
     curve_out: np.ndarray
+    limits: tuple = ("", "")
 
 
 def swing_and_distortion(stage: StageCircuit, op: OperatingPoint, vcc: float, vpk: float,
@@ -98,7 +124,7 @@ def swing_and_distortion(stage: StageCircuit, op: OperatingPoint, vcc: float, vp
     curve_out = out[: grid.size]
     thd, hd2, hd3 = _harmonics(out[grid.size :][period]) if vpk > 0 else (0.0, 0.0, 0.0)
 
-    if region_of(op.states[TRANSISTOR].ic, op.junctions[:, 0, 1])[0] != ACTIVE:
+    if not all_active(op)[0]:
         return LargeSignal(0.0, 0.0, thd, hd2, hd3, (0.0, 0.0), grid, curve_out)
     coarse = sol.take(slice(0, grid.size))
     brackets = _brackets(coarse, grid)
@@ -107,10 +133,11 @@ def swing_and_distortion(stage: StageCircuit, op: OperatingPoint, vcc: float, vp
         coarse = _solve_at(held, grid, predict(grid))
         curve_out = coarse.voltages[stage.output] - out_q
         brackets = _brackets(coarse, grid)
-    edges, outs = _edges(held, stage, grid, brackets, curve_out, out_q, _between(grid, coarse, predict))
+    edges, outs, why = _edges(held, stage, grid, brackets, curve_out, out_q, _between(grid, coarse, predict))
     up = max(max(outs), 0.0)
     down = max(-min(outs), 0.0)
-    return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out)
+    top, bottom = (1, 0) if outs[1] >= outs[0] else (0, 1)
+    return LargeSignal(up, down, thd, hd2, hd3, tuple(edges), grid, curve_out, (why[top], why[bottom]))
 
 
 def _period(vpk: float):
@@ -177,23 +204,27 @@ def _brackets(coarse: OperatingPoint, grid):
 
 def _edges(held, stage, grid, brackets, curve_out, out_q, predict):
     """Solve a fine grid inside both brackets at once and extrapolate the
-    active side's margin to zero.  Returns (edge EMFs, output excursions)."""
+    active side's margin to zero.  Returns (edge EMFs, output excursions,
+    what ends each: see :func:`limiter`)."""
     fine = np.concatenate([np.linspace(grid[i], grid[j], _FINE) for i, j in brackets])
     fine_sol = _solve_at(held, fine, predict(fine))
     f_margin = _margin(fine_sol)
     f_active = (f_margin >= 0.0) & fine_sol.converged
     f_out = fine_sol.voltages[stage.output] - out_q
-    edges, outs = [], []
+    edges, outs, why = [], [], []
     for k, (i, j) in enumerate(brackets):
         if i == j:  # still active at the end of the span: the edge lies beyond it
             edges.append(float(grid[i]))
             outs.append(float(curve_out[i]))
+            why.append("")
             continue
         part = slice(k * _FINE, (k + 1) * _FINE)
         emf, o = _extrapolate(fine[part], f_margin[part], f_active[part], f_out[part])
         edges.append(emf)
         outs.append(o)
-    return edges, outs
+        outside = np.flatnonzero(~f_active[part] & fine_sol.converged[part])
+        why.append(limiter(fine_sol, k * _FINE + int(outside[0])) if outside.size else "")
+    return edges, outs, why
 
 
 #: Points of the fine grid inside each coarse bracket.
@@ -204,16 +235,18 @@ def _predictor(stage: StageCircuit, op: OperatingPoint, held):
     """Newton starts for the sweep: the junction voltages the linearised stage
     predicts at each EMF, kept below the critical voltage so a point far past
     an edge does not start with a wildly forward-biased junction."""
-    q = stage.net.element(TRANSISTOR)
     slope = held.slope(op)[0]
     # A saturating collector junction ends below the conducting emitter
     # junction's voltage, so it starts no higher than the quiescent VBE.
-    crit = critical_voltage(q.params)[0]
-    ceiling = np.array([crit, min(crit, float(op.junctions[0, 0, 0]))])
+    ceiling = []
+    for k, name in enumerate(stage.transistors):
+        crit = critical_voltage(stage.net.element(name).params)[0]
+        ceiling.append([crit, min(crit, float(op.junctions[0, k, 0]))])
+    ceiling = np.array(ceiling)
 
     def predict(emf):
-        u = op.junctions[0, 0] + np.outer(emf, slope[0])
-        return np.minimum(u, ceiling)[:, None, :]
+        u = op.junctions[0] + emf[:, None, None] * slope
+        return np.minimum(u, ceiling)
 
     return predict
 

@@ -16,10 +16,20 @@ from model.design.units import parse_value
 from model.errors import DesignError, UnitError
 
 FORMAT = 1
-TOPOLOGIES = ("common-emitter", "emitter-follower")
+TOPOLOGIES = ("common-emitter", "emitter-follower", "common-base", "collector-feedback",
+              "ce-follower", "common-emitter-split", "emitter-follower-split")
 SERIES = ("E6", "E12", "E24", "E48", "E96")
 POLARITIES = ("npn", "pnp")
-CE, EF = TOPOLOGIES
+CE, EF, CB, CF, CEF, CE_SPLIT, EF_SPLIT = TOPOLOGIES
+#: Topologies by what they share: an emitter bypass (re1, re2, ce), a base
+#: divider from the supply (r1, r2), a split supply (vee, rb).
+WITH_BYPASS = (CE, CF, CEF, CE_SPLIT)
+WITH_DIVIDER = (CE, EF, CB, CEF)
+SPLIT = (CE_SPLIT, EF_SPLIT)
+#: Topologies whose output is a follower's emitter.
+FOLLOWERS = (EF, EF_SPLIT, CEF)
+#: Topologies with a second transistor (the follower of ce-follower).
+TWO_TRANSISTORS = (CEF,)
 #: The file's words for an infinite resistance and for a part not fitted.
 #: The one place they are spelt: parsing (check_value), the file
 #: (design_to_dict) and the Knobs (file_word) all use these.
@@ -82,7 +92,13 @@ class Field:
 
 
 def _both(unit: str, rule: Rule) -> Field:
+    """A key every topology has, with one rule."""
     return Field(unit, {t: rule for t in TOPOLOGIES})
+
+
+def _some(unit: str, rule: Rule, topologies) -> Field:
+    """A key only ``topologies`` have, with one rule."""
+    return Field(unit, {t: rule for t in topologies})
 
 
 _ANY_TEXT = Rule("must be text", kind="text")
@@ -96,15 +112,25 @@ FIELDS: dict[str, Field] = {
     "topology": _both("", _choice(TOPOLOGIES)),
     "notes": _both("", _ANY_TEXT),
     "supply.vcc": _both("V", _range("V", 0, 1000)),
-    "bias.r1": _both("Ω", _POSITIVE_OHMS),
-    "bias.r2": _both("Ω", _POSITIVE_OHMS),
-    "stage.rc": Field("Ω", {CE: _POSITIVE_OHMS, EF: _range("Ω", 0, low_strict=False)}),
-    "stage.re1": Field("Ω", {CE: _range("Ω", 0, low_strict=False)}),
-    "stage.re2": Field("Ω", {CE: _range("Ω", 0, low_strict=False)}),
-    # Not fitted: ce leaves re2 in the signal path; cin and cout are replaced
-    # by a direct (DC) connection; cl is simply absent. See README "Keys".
-    "stage.ce": Field("F", {CE: _fitted("F")}),
-    "stage.re": Field("Ω", {EF: _POSITIVE_OHMS}),
+    "supply.vee": _some("V", Rule("must be less than 0 V and at least -1000 V", low=-1000.0,
+                                  high=0.0, high_strict=True), SPLIT),
+    "bias.r1": _some("Ω", _POSITIVE_OHMS, WITH_DIVIDER),
+    # Collector feedback: r2 is optional, so "open" leaves it off the board.
+    "bias.r2": Field("Ω", {**{t: _POSITIVE_OHMS for t in WITH_DIVIDER}, CF: _range("Ω", 0, open_ok=True)}),
+    "bias.rf": _some("Ω", _POSITIVE_OHMS, (CF,)),
+    "bias.rb": _some("Ω", _POSITIVE_OHMS, SPLIT),
+    "stage.rc": Field("Ω", {**{t: _POSITIVE_OHMS for t in (CE, CB, CF, CEF, CE_SPLIT)},
+                            **{t: _range("Ω", 0, low_strict=False) for t in (EF, EF_SPLIT)}}),
+    "stage.re1": _some("Ω", _range("Ω", 0, low_strict=False), WITH_BYPASS),
+    "stage.re2": _some("Ω", _range("Ω", 0, low_strict=False), WITH_BYPASS),
+    # Not fitted: ce leaves re2 in the signal path; cb leaves the base of a
+    # common-base stage on its divider; cin and cout are replaced by a direct
+    # (DC) connection; cl is simply absent. See README "Keys".
+    "stage.ce": _some("F", _fitted("F"), WITH_BYPASS),
+    "stage.cb": _some("F", _fitted("F"), (CB,)),
+    # The emitter resistor of a follower, of a common-base stage, and of the
+    # follower that ce-follower adds after its gain stage.
+    "stage.re": _some("Ω", _POSITIVE_OHMS, (EF, EF_SPLIT, CB, CEF)),
     "stage.cin": _both("F", _fitted("F")),
     "stage.cout": _both("F", _fitted("F")),
     "source.rs": _both("Ω", _range("Ω", 0, low_strict=False)),
@@ -126,6 +152,10 @@ FIELDS: dict[str, Field] = {
     "transistor.xti": _both("", _range("")),
     "transistor.eg": _both("eV", _range("eV", 0, 5, high_strict=True)),
     "transistor.xtb": _both("", _range("")),
+    # The follower of ce-follower: the same type of part as the gain
+    # transistor, so it shares every parameter but β, the one that spreads
+    # from part to part.
+    "transistor2.beta": _some("", _range("", 0), TWO_TRANSISTORS),
     "environment.ambient": _both("°C", _range("°C", _ABSOLUTE_ZERO, 300)),
     "parts.resistor_power": _both("W", _range("W", 0)),
     "parts.series": _both("", _choice(SERIES)),

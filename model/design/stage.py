@@ -16,15 +16,25 @@ from dataclasses import dataclass
 # The keys and their rules live in fields.py; they are re-exported here because
 # callers think of them as part of the design.
 from model.design.fields import (  # noqa: F401
+    CB,
     CE,
+    CE_SPLIT,
+    CEF,
+    CF,
     EF,
+    EF_SPLIT,
     FIELDS,
+    FOLLOWERS,
     FORMAT,
     NONE,
     OPEN,
     POLARITIES,
     SERIES,
+    SPLIT,
     TOPOLOGIES,
+    TWO_TRANSISTORS,
+    WITH_BYPASS,
+    WITH_DIVIDER,
     Field,
     Rule,
     _choice,
@@ -49,24 +59,37 @@ from model.errors import DesignError
 
 @dataclass(frozen=True)
 class Supply:
-    """vcc: supply voltage, V."""
+    """vcc: the (positive) supply voltage, V; vee: the negative rail of a
+    split supply, V (below 0; 0 where the topology has none)."""
     vcc: float
+    vee: float = 0.0
 
 
 @dataclass(frozen=True)
 class Bias:
-    """Base divider: r1 from the supply to the base, r2 base to ground, Ω."""
-    r1: float
-    r2: float
+    """The base bias, Ω.
+
+    Divider: r1 from the supply to the base, r2 base to ground.  Collector
+    feedback: rf from the collector to the base, r2 (math.inf = not fitted)
+    base to ground.  Split supply: rb from the base to ground.  A field the
+    topology does not use stays 0.
+    """
+    r1: float = 0.0
+    r2: float = 0.0
+    rf: float = 0.0
+    rb: float = 0.0
 
 
 @dataclass(frozen=True)
 class Stage:
     """The stage's own parts, Ω and F.
 
-    Common emitter: rc, re1 (unbypassed), re2 (bypassed by ce), ce.
-    Emitter follower: rc (0 = collector tied to the supply) and re.
-    Both: cin, cout. A field the topology does not use stays 0.
+    Common emitter (and collector feedback): rc, re1 (unbypassed), re2
+    (bypassed by ce), ce.  Emitter follower: rc (0 = collector tied to the
+    supply) and re.  Common base: rc, re, and cb from the base to ground.
+    ce-follower: the common emitter's parts, and re, the follower's emitter
+    resistor.  Every topology: cin, cout.  A field the topology does not use
+    stays 0.
 
     A capacitor of 0 is not fitted ("none" in the file): without ce, re2 is
     in the signal path too; without cin the source is wired straight to the
@@ -78,6 +101,7 @@ class Stage:
     re1: float = 0.0
     re2: float = 0.0
     ce: float = 0.0
+    cb: float = 0.0
     re: float = 0.0
     cin: float = 0.0
     cout: float = 0.0
@@ -127,6 +151,14 @@ class Transistor:
 
 
 @dataclass(frozen=True)
+class SecondTransistor:
+    """The follower of a ce-follower stage: the same type of part as
+    ``transistor``, so it shares every parameter but its forward β at 25 °C
+    (0 where the topology has no second transistor)."""
+    beta: float = 0.0
+
+
+@dataclass(frozen=True)
 class Environment:
     """ambient: air temperature around the parts, °C."""
     ambient: float = 25.0
@@ -164,34 +196,93 @@ class Design:
     environment: Environment
     parts: Parts
     estimate: Estimate
+    transistor2: SecondTransistor = SecondTransistor()
     tolerance: Tolerance = Tolerance()
     spec: tuple = ()
 
 
 # Table name in the file (also the Design attribute) -> its dataclass, in file order.
 TABLES = {"supply": Supply, "bias": Bias, "stage": Stage, "source": Source, "load": Load,
-          "transistor": Transistor, "environment": Environment, "parts": Parts,
-          "estimate": Estimate}
+          "transistor": Transistor, "transistor2": SecondTransistor, "environment": Environment,
+          "parts": Parts, "estimate": Estimate}
 TEXT_KEYS = ("name", "topology", "notes")
 
+
+
+#: The parts of each topology's starting design: a working stage on the
+#: generic part below, at about 1 mA (common practice for a small-signal stage).
+_STARTS = {
+    CE: (Supply(9.0), Bias(56e3, 10e3),
+         Stage(rc=6.8e3, re1=220.0, re2=1e3, ce=100e-6, cin=10e-6, cout=10e-6),
+         Source(1e3, 10e-3, 1e3), Load(100e3)),
+    EF: (Supply(12.0), Bias(10e3, 10e3), Stage(re=2.2e3, cin=10e-6, cout=100e-6),
+         Source(1e3, 1.0, 1e3), Load(10e3)),
+    # A low-impedance source into the emitter: cin must be large against rin ≈ re.
+    CB: (Supply(12.0), Bias(33e3, 10e3), Stage(rc=4.7e3, re=2.2e3, cb=10e-6, cin=100e-6, cout=10e-6),
+         Source(50.0, 10e-3, 1e3), Load(10e3)),
+    CF: (Supply(9.0), Bias(r2=27e3, rf=82e3),
+         Stage(rc=3.3e3, re1=100.0, re2=560.0, ce=100e-6, cin=10e-6, cout=10e-6),
+         Source(1e3, 10e-3, 1e3), Load(47e3)),
+    CEF: (Supply(12.0), Bias(56e3, 10e3),
+          Stage(rc=6.8e3, re1=220.0, re2=1e3, ce=100e-6, re=1e3, cin=10e-6, cout=100e-6),
+          Source(1e3, 10e-3, 1e3), Load(600.0)),
+    # Split supplies: the base sits near 0 V on rb, so the source is wired
+    # straight to it (no cin), as a DC-coupled front end is.
+    CE_SPLIT: (Supply(9.0, -9.0), Bias(rb=10e3),
+               Stage(rc=3.9e3, re1=220.0, re2=7.5e3, ce=100e-6, cout=10e-6),
+               Source(1e3, 10e-3, 1e3), Load(100e3)),
+    EF_SPLIT: (Supply(12.0, -12.0), Bias(rb=10e3), Stage(re=5.6e3, cout=100e-6),
+               Source(1e3, 1.0, 1e3), Load(10e3)),
+}
 
 
 def default_design(topology: str = CE) -> Design:
     """A sensible starting design of ``topology`` with a generic small-signal NPN."""
     if topology not in TOPOLOGIES:
         raise DesignError("topology", _shown(topology), _choice(TOPOLOGIES).text)
-    if topology == CE:
-        supply, bias = Supply(9.0), Bias(56e3, 10e3)
-        stage = Stage(rc=6.8e3, re1=220.0, re2=1e3, ce=100e-6, cin=10e-6, cout=10e-6)
-        source, load = Source(1e3, 10e-3, 1e3), Load(100e3, 0.0)
-    else:
-        supply, bias = Supply(12.0), Bias(10e3, 10e3)
-        stage = Stage(rc=0.0, re=2.2e3, cin=10e-6, cout=100e-6)
-        source, load = Source(1e3, 1.0, 1e3), Load(10e3, 0.0)
+    supply, bias, stage, source, load = _STARTS[topology]
     transistor = Transistor("npn", beta=200.0, beta_r=2.0, va=100.0, i_s=1e-14, ft=250e6,
                             cmu=3e-12, vceo=40.0, pd_max=0.5, theta_ja=200.0, tj_max=150.0)
+    second = SecondTransistor(200.0) if topology in TWO_TRANSISTORS else SecondTransistor()
     return Design("untitled", topology, "", supply, bias, stage, source, load,
-                  transistor, Environment(), Parts(), Estimate())
+                  transistor, Environment(), Parts(), Estimate(), second)
+
+
+def with_topology(design: Design, topology: str) -> Design:
+    """``design`` as a stage of another ``topology``: every key both have
+    keeps its value, the keys only the new one has start from its
+    :func:`default_design`, and spread entries for keys it lacks are dropped.
+    The ledger logs the keys left behind as changes to "none", so undo brings
+    them back."""
+    topology = check_value("topology", CE, topology)
+    if topology == design.topology:
+        return design
+    start = default_design(topology)
+    keep = {k for k in set(keys_for(design.topology)) & set(keys_for(topology))
+            if _fits(k, topology, get_value(design, k))}
+    tables = {}
+    for table, cls in TABLES.items():
+        ours, theirs = getattr(design, table), getattr(start, table)
+        tables[table] = cls(**{f.name: getattr(ours if f"{table}.{f.name}" in keep else theirs, f.name)
+                               for f in dataclasses.fields(cls)})
+    spread = {}
+    for key in spread_from_dict(spread_to_dict(design.tolerance, design.spec)):
+        try:
+            check_known(key, topology)
+        except DesignError:
+            spread[key] = NONE
+    tolerance, spec = with_spread(design.tolerance, design.spec, spread) if spread else (design.tolerance, design.spec)
+    return validate(dataclasses.replace(design, topology=topology, tolerance=tolerance, spec=spec, **tables))
+
+
+def _fits(key: str, topology: str, value: object) -> bool:
+    """Whether ``value`` meets ``key``'s rule in ``topology`` (an emitter
+    follower's rc of 0 does not meet a gain stage's)."""
+    try:
+        check_value(key, topology, value)
+    except DesignError:
+        return False
+    return True
 
 
 def check_key(key: str, topology: str, value: object):
@@ -210,6 +301,15 @@ def check_known(key: str, topology: str) -> None:
         rule_for(key, topology)
 
 
+def knows(key: str, topology: str) -> bool:
+    """Whether a design of ``topology`` can hold ``key``."""
+    try:
+        check_known(key, topology)
+    except DesignError:
+        return False
+    return True
+
+
 def get_value(design: Design, key: str) -> object:
     """The stored value of ``key`` ("name" or "table.key", e.g. "stage.rc");
     a tolerance or spec key that is absent is None."""
@@ -224,13 +324,18 @@ def get_value(design: Design, key: str) -> object:
 
 def with_values(design: Design, values: dict[str, object]) -> Design:
     """A copy of ``design`` with each key set (numbers or unit strings), validated."""
+    if "topology" in values:
+        # A new topology first; then the other keys by its rules.  A key it
+        # lacks set to "none" is one the ledger left behind: nothing to set.
+        values = dict(values)
+        design = with_topology(design, values.pop("topology"))
+        own = set(keys_for(design.topology))
+        values = {k: v for k, v in values.items()
+                  if not (k not in own and not is_spread_key(k) and _is_none(v))}
     top: dict[str, object] = {}
     tables: dict[str, dict[str, object]] = {}
     spread: dict[str, object] = {}
     for key, value in values.items():
-        if key == "topology":
-            raise DesignError(key, _shown(value),
-                              "cannot change in place; start from default_design(topology)")
         checked = check_key(key, design.topology, value)
         if is_spread_key(key):
             spread[key] = checked
@@ -244,6 +349,10 @@ def with_values(design: Design, values: dict[str, object]) -> Design:
     if spread:
         top["tolerance"], top["spec"] = with_spread(design.tolerance, design.spec, spread)
     return validate(dataclasses.replace(design, **top))
+
+
+def _is_none(value: object) -> bool:
+    return isinstance(value, str) and value.strip().casefold() == NONE
 
 
 def with_value(design: Design, key: str, value: object) -> Design:
@@ -295,12 +404,19 @@ def _check_wiring(design: Design) -> None:
     """Rules across keys: a direct connection in place of cin must not put
     the source's ideal 0 V straight across the base–emitter junction."""
     s = design.stage
-    if design.topology == CE and s.cin == 0 and design.source.rs == 0 and s.re1 == 0 and s.re2 == 0:
+    if design.topology in WITH_BYPASS and s.cin == 0 and design.source.rs == 0 and s.re1 == 0 and s.re2 == 0:
         # Nothing would limit the junction current: VBE is fixed at the
-        # emitter's rail voltage (vcc for a PNP), so no operating point exists.
+        # emitter's rail voltage (vcc for a PNP, vee on a split supply), so
+        # no operating point exists.
         raise DesignError("stage.cin", NONE, "with source.rs, stage.re1 and stage.re2 all 0, the source "
                           "would be wired straight across the base-emitter junction; fit cin or give "
                           "one of them a resistance")
+    if design.topology == CB and s.cin == 0 and design.source.rs == 0:
+        # The source would hold the emitter at 0 V and the divider the base:
+        # VBE fixed by the divider, with nothing to limit the current.
+        raise DesignError("stage.cin", NONE, "with source.rs 0, the source would hold the emitter of a "
+                          "common-base stage at 0 V across the base-emitter junction; fit cin or give "
+                          "source.rs a resistance")
 
 
 def design_to_dict(design: Design) -> dict:
@@ -322,7 +438,8 @@ def design_to_dict(design: Design) -> dict:
                 value = getattr(part, attr)
                 word = file_word(key, value)
                 entries[attr] = value if word is None else word
-        data[table] = entries
+        if entries:  # a table the topology has no key in is left out
+            data[table] = entries
     data.update(spread_to_dict(design.tolerance, design.spec))
     return data
 

@@ -30,7 +30,7 @@ import math
 import tomli_w
 
 from model.design.spread_tables import is_spread_key
-from model.design.stage import CE, check_key, check_known, check_value, design_from_dict
+from model.design.stage import CE, NONE, check_key, check_known, check_value, design_from_dict, knows
 from model.errors import DesignError
 from model.files.ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
@@ -77,12 +77,25 @@ def _history(items: object) -> list:
     if not isinstance(items, list):
         raise DesignError("history", _short(items), "must be an array of [[history]] tables")
     out: list = []
+    topology = CE
     for i, item in enumerate(items, start=1):
-        out.append(_entry(item, i, out))
+        out.append(_entry(item, i, out, topology))
+        topology = topology_after(out[-1], topology)
     return out
 
 
-def _entry(item: object, number: int, earlier: list) -> Entry:
+def topology_after(entry: Entry, topology: str) -> str:
+    """The topology after ``entry``, from the one before it: the start
+    snapshot's, or the last change of the ``topology`` key."""
+    if entry.snapshot is not None:
+        return entry.snapshot.get("topology", CE)
+    for c in entry.changes:
+        if c.key == "topology":
+            topology = c.new
+    return topology
+
+
+def _entry(item: object, number: int, earlier: list, topology: str) -> Entry:
     where = f"history[{number}]"
     if not isinstance(item, dict):
         raise DesignError(where, _short(item), "must be a table")
@@ -119,8 +132,6 @@ def _entry(item: object, number: int, earlier: list) -> Entry:
             raise DesignError(f"{where}.design.{err.field}", err.value, err.rule) from None
     elif snapshot is not None:
         raise DesignError(f"{where}.design", "...", "only the start entry holds a design snapshot")
-    else:
-        topology = check_value("topology", CE, earlier[0].snapshot.get("topology", CE))
     return Entry(
         number=number, time=time.astimezone(_dt.timezone.utc), action=action,
         changes=_changes(item.get("changes", []), where, topology),
@@ -136,9 +147,14 @@ def _entry(item: object, number: int, earlier: list) -> Entry:
 
 
 def _changes(items, where, topology) -> tuple:
+    """The entry's changes, each side checked against the rules of the
+    topology it belongs to: a change of topology comes first, so the keys
+    after it step from the old topology's values to the new one's ("none"
+    where a topology lacks the key)."""
     if not isinstance(items, list):
         raise DesignError(f"{where}.changes", _short(items), "must be an array of {key, old, new} tables")
     out = []
+    old_topology = new_topology = topology
     for k, c in enumerate(items, start=1):
         here = f"{where}.changes[{k}]"
         if not isinstance(c, dict) or set(c) != {"key", "old", "new"}:
@@ -148,22 +164,41 @@ def _changes(items, where, topology) -> tuple:
         # Checked here, against the design's rules, so that a history that
         # would not replay is refused with its entry named, not later by replay.
         if c["key"] == "topology":
-            raise DesignError(f"{here}.key", c["key"], "cannot change; a new topology is a new design")
-        try:
-            check_known(c["key"], topology)
-        except DesignError as err:
-            raise DesignError(f"{here}.key", _short(c["key"]), err.rule) from None
-        for side in ("old", "new"):
+            if k != 1:
+                raise DesignError(f"{here}.key", c["key"], "a change of topology must be the entry's first change")
+            for side in ("old", "new"):
+                try:
+                    check_value("topology", CE, c[side])
+                except DesignError as err:
+                    raise DesignError(f"{here}.{side}", err.value, err.rule) from None
+            if c["old"] != topology:
+                raise DesignError(f"{here}.old", c["old"], f"must be {topology!r}, the topology the entry changes")
+            new_topology = c["new"]
+            out.append(Change("topology", c["old"], c["new"]))
+            continue
+        known = [t for t in dict.fromkeys((old_topology, new_topology)) if knows(c["key"], t)]
+        if not known:
+            try:
+                check_known(c["key"], topology)
+            except DesignError as err:
+                raise DesignError(f"{here}.key", _short(c["key"]), err.rule) from None
+        for side, side_topology in (("old", old_topology), ("new", new_topology)):
             # A tolerance or spec range is an array [min, max], as in its table.
             kinds = (int, float, str, list) if is_spread_key(c["key"]) else (int, float, str)
             if not isinstance(c[side], kinds) or isinstance(c[side], bool):
                 raise DesignError(f"{here}.{side}", _short(c[side]), "must be a number or text")
+            if not knows(c["key"], side_topology):
+                if c[side] != NONE:
+                    raise DesignError(f"{here}.{side}", _short(c[side]),
+                                      f"must be {NONE!r}: a {side_topology} design has no {c['key']}")
+                continue
             try:
-                check_key(c["key"], topology, c[side])
+                check_key(c["key"], side_topology, c[side])
             except DesignError as err:
                 raise DesignError(f"{here}.{side}", err.value, err.rule) from None
         out.append(Change(c["key"], c["old"], c["new"]))
     return tuple(out)
+
 
 
 def _figures(table, where) -> dict:

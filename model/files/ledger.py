@@ -22,6 +22,7 @@ from model.design.stage import (
     design_to_dict,
     file_word,
     get_value,
+    knows,
     with_values,
 )
 from model.errors import DesignError, StageledgerError
@@ -97,10 +98,12 @@ def now() -> _dt.datetime:
 
 
 def changes_between(old: Design, new: Design) -> tuple:
-    """Every key whose value differs between two designs of one topology; a
-    tolerance or spec entry only one of them has is "none" in the other."""
+    """Every key whose value differs between two designs; a key (or tolerance
+    or spec entry) only one of them has is "none" in the other, so the keys a
+    new topology lacks stay in the history.  A change of topology comes
+    first: the keys after it follow the new topology's rules."""
     a, b = _flat(design_to_dict(old)), _flat(design_to_dict(new))
-    keys = list(b) + [k for k in a if k not in b]
+    keys = ["topology"] + [k for k in b if k != "topology"] + [k for k in a if k not in b]
     return tuple(Change(k, a.get(k, NONE), b.get(k, NONE)) for k in keys if a.get(k, NONE) != b.get(k, NONE))
 
 
@@ -176,7 +179,13 @@ def stacks(history: list) -> tuple[list, list]:
 
 def check_changes_apply(design: Design, changes: tuple) -> None:
     """Refuse to reverse a change whose new values the design no longer holds."""
+    topology = design.topology
     for c in changes:
+        if c.key != "topology" and not knows(c.key, topology):
+            # A key the design's topology lacks is "none" there.
+            if c.old != NONE:
+                raise DesignError(c.key, NONE, f"no longer holds {c.old!r}; cannot reverse that entry")
+            continue
         current = get_value(design, c.key)
         # Compared as stored values, so "none" and 0.0 (or "open" and inf,
         # as older files wrote some of them) are the same value.
