@@ -10,7 +10,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from model.design.stage import FIELDS, TABLES, TOPOLOGIES, WITH_BYPASS, default_design, keys_for, with_values
+from model.design.stage import CB, FIELDS, TABLES, TOPOLOGIES, WITH_BYPASS, default_design, keys_for, with_values
 from model.errors import DesignError, DesignFileError, StageledgerError
 from model.files import designfile as df
 from model.files.designfile import dumps_design, loads_design, read_design
@@ -43,8 +43,9 @@ def designs(draw, topology, open_load):
     }
     rl = _values_for(FIELDS["load.rl"].rules[topology]).filter(lambda r: math.isinf(r) == open_load)
     values["load.rl"] = draw(rl)
-    if topology in WITH_BYPASS and values["source.rs"] == values["stage.re1"] == values["stage.re2"] == 0:
-        # The one rule across keys: with no resistance anywhere, a cin not
+    if (topology in WITH_BYPASS and values["source.rs"] == values["stage.re1"] == values["stage.re2"] == 0) or (
+            topology == CB and values["source.rs"] == 0):
+        # The rules across keys: with no resistance anywhere, a cin not
         # fitted would wire the source across the junction (model.design.stage).
         values["stage.cin"] = draw(_values_for(FIELDS["stage.cin"].rules[topology]).filter(lambda c: c > 0))
     return with_values(default_design(topology), values)

@@ -37,7 +37,8 @@ LABEL = {"ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),
          "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz")}
 
 #: The headline figures a design without specs records (no yield).
-FIGURES = tuple(k for k in HEADLINE if k != "yield")
+#: The headline figures of a one-transistor stage without specs.
+FIGURES = tuple(k for k in HEADLINE if k not in ("yield", "ic2", "vce2", "p_transistor2"))
 
 
 def plain_file(tmp_path, name="d.toml", topology=CE) -> pathlib.Path:
@@ -299,11 +300,34 @@ def test_key_of_the_other_topology(logged, capsys):
     one_error_line(capsys, "stage.re", "common-emitter")
 
 
-def test_topology_cannot_be_set(logged, capsys):
-    before = logged.read_bytes()
-    assert main(["set", str(logged), "topology=emitter-follower"]) == 2
-    one_error_line(capsys, "topology")
-    assert logged.read_bytes() == before
+def test_a_topology_change_is_logged_and_undone(logged, capsys):
+    """The keys the follower lacks are logged as changes to "none" (kept in
+    the history, not lost), and undo brings them back with the topology."""
+    before = read_design(logged)
+    assert main(["set", str(logged), "topology=emitter-follower", "--note", "try a follower"]) == 0
+    out = capsys.readouterr().out
+    assert "topology: common-emitter → emitter-follower" in out
+    assert "stage.re1: 220 Ω → none" in out and "stage.re: none → 2.20 kΩ" in out
+    after = read_design(logged)
+    assert after.topology == EF and after.supply.vcc == before.supply.vcc
+    assert main(["undo", str(logged)]) == 0
+    assert read_design(logged) == before
+    assert main(["report", str(logged)]) == 0  # the file with both entries reads back
+
+
+def test_a_topology_change_must_come_first_in_its_entry(logged, capsys):
+    main(["set", str(logged), "topology=emitter-follower"])
+    text = logged.read_text()
+    first = '{ key = "topology", old = "common-emitter", new = "emitter-follower" },\n'
+    assert first in text
+    # Moved after a key the common emitter lacks: refused, naming the entry.
+    edited = text.replace(first, "").replace("changes = [\n", "changes = [\n", 1)
+    edited = edited.replace('{ key = "stage.re", old = "none", new = 2200.0 },\n',
+                            '{ key = "stage.re", old = "none", new = 2200.0 },\n    ' + first)
+    logged.write_text(edited)
+    capsys.readouterr()
+    assert main(["report", str(logged)]) == 2
+    one_error_line(capsys, "history[2]")
 
 
 def test_setting_a_value_already_held(logged, capsys):

@@ -224,7 +224,7 @@ def test_a_split_supply_is_hazardous_by_its_span(topology):
     # ±31 V: each rail below 60 V, but 62 V between them.
     d = with_values(default_design(topology), {"supply.vcc": 31.0, "supply.vee": -31.0})
     messages = _messages(d, "HAZARDOUS-VOLTAGE")
-    assert len(messages) == 1 and "62 V rail to rail" in messages[0]
+    assert len(messages) == 1 and "62.0 V rail to rail" in messages[0] and "60 V DC" in messages[0]
 
 
 def test_every_message_is_one_readable_line():

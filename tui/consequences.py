@@ -18,6 +18,7 @@ _SHOW = {
     "rin": ("rin", "Ω"), "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"),
     "swing_down": ("swing_down", "V"), "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"),
     "p_supply": ("p_supply", "W"), "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz"),
+    "ic2": ("q2 IC", "A"), "vce2": ("q2 VCE", "V"), "p_transistor2": ("q2 p_transistor", "W"),
     "yield": ("yield", "%"),
 }
 
@@ -109,6 +110,9 @@ def render_consequences(before: dict, after: dict, raised, cleared) -> list:
         flip = sign_change(before.get(key), after.get(key)) if _SHOW[key][1] == "gain" else ""
         if flip:  # the dB column shows the size alone; a phase reversal needs words
             rows.append(f"  {'':<14}{flip:>44}")
+    gone = [_SHOW[k][0] for k in HEADLINE if k in before and k not in after]
+    if gone:  # a new topology without them, or a band that vanished
+        rows.append(f"  no longer apply: {', '.join(gone)}")
     rows.append(f"  warnings raised: {', '.join(raised) or 'none'}")
     rows.append(f"  warnings cleared: {', '.join(cleared) or 'none'}")
     return rows

@@ -47,7 +47,7 @@ FIGURE_KEYS = (
 
 
 #: The follower's figures in ``Figures.to_dict()``, for a stage with one.
-FOLLOWER_KEYS = ("region2", "ic2", "ib2", "vbe2", "vce2", "gm2", "p_transistor2", "tj2")
+FOLLOWER_KEYS = ("region2", "ic2", "ib2", "vbe2", "vce2", "gm2", "r_pi2", "ro2", "p_transistor2", "tj2")
 
 
 def design_values(designs: Sequence[Design]) -> dict:
@@ -125,6 +125,8 @@ class Figures:
     vbe2: float = math.nan
     vce2: float = math.nan
     gm2: float = math.nan
+    r_pi2: float = math.nan
+    ro2: float = math.nan
     p_transistor2: float = math.nan
     tj2: float = math.nan
 
@@ -245,9 +247,10 @@ def _follower(design: Design, stage: StageCircuit, op) -> dict:
     k = stage.transistors.index(FOLLOWER)
     st = op.states[FOLLOWER]
     vbe, vbc = float(op.junctions[0, k, 0]), float(op.junctions[0, k, 1])
+    dev = device_small_signal(op, FOLLOWER)
     return dict(region2=str(region_of(st.ic, op.junctions[:, k, 1])[0]), ic2=float(st.ic[0]),
                 ib2=float(st.ib[0]), vbe2=vbe, vce2=vbe - vbc,
-                gm2=float(device_small_signal(op, FOLLOWER).gm[0]))
+                gm2=float(dev.gm[0]), r_pi2=float(dev.r_pi[0]), ro2=float(dev.ro[0]))
 
 
 def dc_midband(stage: StageCircuit, rs: np.ndarray):
