@@ -47,11 +47,11 @@ from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURAT
 
 from model import analyse, read_design
 from model.analyses import transfer
-from model.analyses.batch_figures import LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
+from model.analyses.batch_figures import FOLLOWER_FIGURES, LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
 from model.analyses.batch_transfer import _distortion, _HeldRows, large_signal_many
 from model.analyses.figures import dc_midband, design_values
 from model.circuit.topologies import build
-from model.design.stage import default_design, with_values
+from model.design.stage import TOPOLOGIES, TWO_TRANSISTORS, default_design, with_values
 from model.errors import DesignError, SolveError
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parent / "bench"))
@@ -63,11 +63,12 @@ SETTINGS = settings(max_examples=25, deadline=None, derandomize=True, database=N
 
 #: (relative, absolute) tolerance per figure; see the module docstring.
 EXACT = (1e-9, 0.0)
-TOLERANCE = {k: EXACT for k in QUICK_FIGURES + ("gain_at_freq",)}
+TOLERANCE = {k: EXACT for k in QUICK_FIGURES + FOLLOWER_FIGURES + ("gain_at_freq",)}
 TOLERANCE.update(swing_up=(1e-3, 1e-3), swing_down=(1e-3, 1e-3),
                  thd=(1e-3, 1e-6), hd2=(1e-3, 1e-6), hd3=(1e-3, 1e-6),
                  f_low=(1e-3, 0.0), f_high=(1e-3, 0.0), bandwidth=(1e-3, 0.0))
 
+NEW_TOPOLOGIES = tuple(t for t in TOPOLOGIES if t not in ("common-emitter", "emitter-follower"))
 EVERY_EXTREME = {"common-emitter": (CUT_OFF_CE, SATURATED_CE), "emitter-follower": (CUT_OFF_EF_PNP, SATURATED_EF)}
 
 
@@ -93,8 +94,9 @@ def _compare(designs: list, got: dict) -> None:
             continue
         assert got["converged"][row], row
         assert got["region"][row] == want.region, row
+        assert got["region2"][row] == want.region2, row
         unsolved_period = _period_unsolved(d)
-        for key in QUICK_FIGURES + LARGE_FIGURES:
+        for key in QUICK_FIGURES + LARGE_FIGURES + (FOLLOWER_FIGURES if want.two_transistors else ()):
             if key in ("thd", "hd2", "hd3") and unsolved_period:
                 # analyse takes the samples a Newton cut short left (their
                 # values depend on the batch they ran in); analyse_many says NaN.
@@ -142,6 +144,22 @@ def test_every_figure_agrees_with_analyse_over_varied_designs(drawn):
     extremes = [values for _, values in EVERY_EXTREME[topology]]
     batch = drawn_designs + _designs(topology, extremes)
     _compare(batch, analyse_many(topology, design_values(batch)))
+
+
+@SETTINGS
+@given(st.sampled_from(NEW_TOPOLOGIES).flatmap(
+    lambda t: st.tuples(st.just(t), st.lists(designs(t), min_size=2, max_size=5))))
+def test_every_figure_agrees_with_analyse_for_the_newer_topologies(drawn):
+    """The batched path is the same engine for every builder: a common base,
+    collector feedback, the CE-follower (both transistors' figures) and the
+    split-supply stages agree with one design at a time, with the default
+    design of the topology riding in every batch."""
+    topology, drawn_designs = drawn
+    batch = drawn_designs + [default_design(topology)]
+    got = analyse_many(topology, design_values(batch))
+    _compare(batch, got)
+    if topology not in TWO_TRANSISTORS:
+        assert all(np.isnan(got[k]).all() for k in FOLLOWER_FIGURES) and set(got["region2"]) == {""}
 
 
 @settings(SETTINGS, max_examples=15)

@@ -50,10 +50,13 @@ LOG_SPANS = {
     "transistor.i_s": (1e-16, 1e-12), "transistor.ft": (1e6, 1e10), "transistor.cmu": (1e-13, 1e-10),
     "transistor.vceo": (5.0, 300.0), "transistor.pd_max": (0.05, 50.0), "transistor.theta_ja": (1.0, 500.0),
     "parts.resistor_power": (0.05, 5.0),
+    "bias.rf": (100.0, 10e6), "bias.rb": (100.0, 10e6), "stage.cb": (1e-24, 1.0),
+    "transistor2.beta": (5.0, 1000.0),
 }
 LINEAR_SPANS = {
     "transistor.tj_max": (100.0, 200.0), "transistor.xti": (2.0, 4.0), "transistor.eg": (1.0, 1.2),
     "transistor.xtb": (0.0, 2.0), "environment.ambient": (-40.0, 85.0), "estimate.vbe": (0.5, 0.8),
+    "supply.vee": (-200.0, -0.5),
 }
 #: Keys that are not numbers: drawn from their choices, or left as they are.
 NOT_NUMBERS = {"name", "topology", "notes", "transistor.polarity", "parts.series"}

@@ -18,8 +18,9 @@ from model.analyses.batch_corners import response_many
 from model.analyses.batch_transfer import large_signal_many
 from model.analyses.figures import _KEYS, dc_midband
 from model.analyses.power import dissipation
-from model.analyses.transfer import ACTIVE, region_of
-from model.circuit.topologies import TRANSISTOR, build, shape_of
+from model.analyses.midband import device_small_signal
+from model.analyses.transfer import all_active, region_of
+from model.circuit.topologies import FOLLOWER, TRANSISTOR, build, shape_of
 from model.design.fields import FIELDS, TOPOLOGIES
 from model.errors import DesignError
 
@@ -29,6 +30,8 @@ QUICK_FIGURES = (
     "av_open", "av_loaded", "av_source", "rin", "rin_base", "rout",
     "p_transistor", "p_supply", "i_supply", "tj",
 )
+#: The follower's (q2's) figures: NaN, and region2 "", for a stage without one.
+FOLLOWER_FIGURES = ("ic2", "ib2", "vbe2", "vce2", "gm2", "r_pi2", "ro2", "p_transistor2", "tj2")
 #: The figures computed only with large_signal (NaN without).
 LARGE_FIGURES = ("swing_up", "swing_down", "thd", "hd2", "hd3", "f_low", "f_high", "bandwidth", "gain_at_freq")
 #: The region of a row with no operating point.
@@ -59,19 +62,21 @@ def analyse_many(topology: str, values: dict, *, large_signal: bool = True) -> d
     n = arrays[0].shape[0]
     shapes = shape_of(topology, full)
     group = shapes @ (1 << np.arange(shapes.shape[1]))
-    names = QUICK_FIGURES + LARGE_FIGURES
+    names = QUICK_FIGURES + FOLLOWER_FIGURES + LARGE_FIGURES
     groups = np.unique(group)
     if groups.size == 1:
         return _group(topology, full, large_signal)
     out = {k: np.full(n, np.nan) for k in names}
     out["converged"] = np.zeros(n, dtype=bool)
     out["region"] = np.full(n, UNSOLVED, dtype=object)
+    out["region2"] = np.full(n, "", dtype=object)
     for g in groups:
         rows = np.flatnonzero(group == g)
         part = _group(topology, {k: v[rows] for k, v in full.items()}, large_signal)
         for k, v in part.items():
             out[k][rows] = v
     out["region"] = out["region"].astype(str)
+    out["region2"] = out["region2"].astype(str)
     return out
 
 
@@ -94,9 +99,15 @@ def _group(topology: str, v: dict, large_signal: bool) -> dict:
             p_transistor=power.p_transistor, p_supply=power.p_supply, i_supply=power.i_supply,
             tj=v["environment.ambient"] + power.p_transistor * v["transistor.theta_ja"],
         )
+        out.update(_follower(stage, op, power, v))
     batch = stage.net.batch
     out = {k: np.where(ok, np.broadcast_to(x, (batch,)), np.nan) for k, x in out.items()}
     region = np.where(ok, region_of(st.ic, vbc), UNSOLVED)
+    if FOLLOWER in stage.transistors:
+        k = stage.transistors.index(FOLLOWER)
+        region2 = np.where(ok, region_of(op.states[FOLLOWER].ic, op.junctions[:, k, 1]), UNSOLVED)
+    else:
+        region2 = np.full(batch, "")
     for k in LARGE_FIGURES:
         out[k] = np.full(batch, np.nan)
     rows = np.flatnonzero(ok)
@@ -104,7 +115,20 @@ def _group(topology: str, v: dict, large_signal: bool) -> dict:
         _large(out, stage, op, v, rows, region)
     out["converged"] = ok
     out["region"] = region
+    out["region2"] = region2
     return out
+
+
+def _follower(stage, op, power, v: dict) -> dict:
+    """The FOLLOWER_FIGURES of every row, as analyse's ``*2`` fields."""
+    if FOLLOWER not in stage.transistors:
+        return {k: np.nan for k in FOLLOWER_FIGURES}
+    k = stage.transistors.index(FOLLOWER)
+    st, dev = op.states[FOLLOWER], device_small_signal(op, FOLLOWER)
+    vbe, vbc = op.junctions[:, k, 0], op.junctions[:, k, 1]
+    p2 = power.p_transistors[FOLLOWER]
+    return dict(ic2=st.ic, ib2=st.ib, vbe2=vbe, vce2=vbe - vbc, gm2=dev.gm, r_pi2=dev.r_pi, ro2=dev.ro,
+                p_transistor2=p2, tj2=v["environment.ambient"] + p2 * v["transistor.theta_ja"])
 
 
 def _large(out: dict, stage, op, v: dict, rows, region) -> None:
@@ -113,11 +137,13 @@ def _large(out: dict, stage, op, v: dict, rows, region) -> None:
         stage, op = replace(stage, net=stage.net.take(rows)), op.take(rows)
     v = {k: x[rows] for k, x in v.items()}
     av, rin, rs = out["av_source"][rows], out["rin"][rows], v["source.rs"]
-    vcc = v["supply.vcc"]
+    rails = v["supply.vcc"] - v["supply.vee"]  # as analyse: the span the output can move over
     with np.errstate(divide="ignore", invalid="ignore"):
-        span = 3.0 * vcc / np.maximum(np.abs(av), 1e-6) + 1.0 * (1.0 + rs / rin)
-    big = large_signal_many(stage, op, vcc, v["source.vpk"], region[rows] == ACTIVE, span)
-    resp = response_many(stage, op, out["gm"][rows], v["transistor.ft"], v["transistor.cmu"], av, v["source.freq"])
+        span = 3.0 * rails / np.maximum(np.abs(av), 1e-6) + 1.0 * (1.0 + rs / rin)
+    big = large_signal_many(stage, op, rails, v["source.vpk"], all_active(op), span)
+    gm2 = out["gm2"][rows] if FOLLOWER in stage.transistors else None
+    resp = response_many(stage, op, out["gm"][rows], v["transistor.ft"], v["transistor.cmu"], av, v["source.freq"],
+                         gm2=gm2)
     for k in ("swing_up", "swing_down", "thd", "hd2", "hd3"):
         out[k][rows] = getattr(big, k)
     out["f_low"][rows], out["f_high"][rows] = resp.f_low, resp.f_high
