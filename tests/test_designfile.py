@@ -10,12 +10,14 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from model import analyse
 from model.design.stage import CB, FIELDS, TABLES, TOPOLOGIES, WITH_BYPASS, default_design, keys_for, with_values
 from model.errors import DesignError, DesignFileError, StageledgerError
 from model.files import designfile as df
 from model.files.designfile import dumps_design, loads_design, read_design
 
-DEMOS = sorted((pathlib.Path(__file__).resolve().parents[1] / "saved_designs").glob("*.toml"))
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+DEMOS = sorted((ROOT / "saved_designs").glob("*.toml"))
 
 
 def _values_for(rule):
@@ -254,7 +256,20 @@ def test_mutated_files_load_or_fail_cleanly(tmp_path_factory, edits):
 
 
 def test_there_are_demo_designs():
-    assert {p.name for p in DEMOS} >= {"geophone_preamp.toml", "cable_driver.toml"}
+    assert {p.name for p in DEMOS} >= {"geophone_preamp.toml", "cable_driver.toml", "hydrophone_buoy.toml"}
+
+
+def test_the_hydrophone_demo_is_the_split_supply_stage_its_notes_describe():
+    """The notes' claims, recomputed: DC-coupled on ±6 V, base within a few
+    millivolts of ground, about 1.1 mA, gain near −23 V/V, rin near 15 kΩ,
+    about 3 V of swing each way, the low corner below the 10 Hz band edge."""
+    d = read_design(ROOT / "saved_designs" / "hydrophone_buoy.toml")
+    f = analyse(d)
+    assert (d.topology, d.supply.vcc, d.supply.vee, d.stage.cin) == ("common-emitter-split", 6.0, -6.0, 0.0)
+    assert f.region == "active" and not f.warnings
+    assert abs(f.vb) < 0.01 and 1.0e-3 < f.ic < 1.2e-3
+    assert -25 < f.av_loaded < -21 and 13e3 < f.rin < 17e3
+    assert min(f.swing_up, f.swing_down) > 2.5 and f.f_low < 10.0 and f.f_high > 50e3
 
 
 @pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.name)
@@ -276,10 +291,15 @@ def test_demo_loads_and_writes_every_table(path):
 def test_demo_is_forward_active_by_hand_estimate(path):
     # Divider Thevenin equivalent and the design's own VBE: the demo must sit
     # well inside forward-active, not near cutoff or saturation.
+    # A split-supply demo: the base returns to 0 V through rb, the emitter to vee.
     d = read_design(path)
-    vcc, r1, r2, beta = d.supply.vcc, d.bias.r1, d.bias.r2, d.transistor.beta
-    re = d.stage.re1 + d.stage.re2 if d.topology == "common-emitter" else d.stage.re
-    ie = (vcc * r2 / (r1 + r2) - d.estimate.vbe) / (re + (r1 * r2 / (r1 + r2)) / (beta + 1))
-    vce = vcc - ie * beta / (beta + 1) * d.stage.rc - ie * re
+    vcc, vee, beta = d.supply.vcc, d.supply.vee, d.transistor.beta
+    if d.topology.endswith("-split"):
+        vth, rth = 0.0, d.bias.rb
+    else:
+        vth, rth = vcc * d.bias.r2 / (d.bias.r1 + d.bias.r2), d.bias.r1 * d.bias.r2 / (d.bias.r1 + d.bias.r2)
+    re = d.stage.re1 + d.stage.re2 if d.topology.startswith("common-emitter") else d.stage.re
+    ie = (vth - d.estimate.vbe - vee) / (re + rth / (beta + 1))
+    vce = vcc - ie * beta / (beta + 1) * d.stage.rc - (vee + ie * re)
     assert ie > 0
-    assert 1.0 < vce < vcc - 1.0
+    assert 1.0 < vce < vcc - vee - 1.0

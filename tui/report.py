@@ -57,6 +57,21 @@ def _pct(x: float) -> str:
     return f"{100.0 * x:.3g} %" if math.isfinite(x) else NONE
 
 
+def _follower_rows(fig: Figures, t) -> list:
+    """The follower's (q2's) operating point, for a two-transistor stage."""
+    if not fig.two_transistors:
+        return []
+    return [
+        "",
+        "Follower (q2)",
+        f"  region                           {fig.region2}",
+        f"  IC / VCE                         {_si(fig.ic2, 'A')} / {_si(fig.vce2, 'V')}",
+        f"  gm / rπ                          {_si(fig.gm2, 'S')} / {_si(fig.r_pi2, 'Ω')}",
+        f"  dissipation                      {_si(fig.p_transistor2, 'W')} (pd_max {_si(t.pd_max, 'W')}), "
+        f"tj {fig.tj2:.1f} °C",
+    ]
+
+
 def _title(design: Design) -> str:
     return visible(design.name) or "(unnamed design)"
 
@@ -77,6 +92,7 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
         f"  VBE                              {_si(fig.vbe, 'V'):<14} {_si(design.estimate.vbe, 'V')} (assumed)",
         f"  IB                               {_si(fig.ib, 'A')}",
         f"  nodes to ground                  vb {_si(fig.vb, 'V')}   ve {_si(fig.ve, 'V')}   vc {_si(fig.vc, 'V')}",
+        *_follower_rows(fig, t),
         "",
         "Small signal at the operating point",
         f"  gm {_si(fig.gm, 'S')}   rπ {_si(fig.r_pi, 'Ω')}   ro {_si(fig.ro, 'Ω')}   "
@@ -93,10 +109,12 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
         f"Headroom and distortion at vpk {_si(design.source.vpk, 'V')}",
         f"  output wanted                    {_si(fig.vout_wanted, 'V')} peak",
         f"  swing_up / swing_down            {_si(fig.swing_up, 'V')} / {_si(fig.swing_down, 'V')}",
+        *([f"  ended by                         {' / '.join(x or '—' for x in fig.swing_limits)}"]
+          if fig.two_transistors else []),
         f"  thd / hd2 / hd3                  {_pct(fig.thd)} / {_pct(fig.hd2)} / {_pct(fig.hd3)}",
         "",
         "Dissipation at rest",
-        f"  transistor                       {_si(fig.p_transistor, 'W')} (pd_max {_si(t.pd_max, 'W')})",
+        f"  {'gain transistor (q1)' if fig.two_transistors else 'transistor':<33}{_si(fig.p_transistor, 'W')} (pd_max {_si(t.pd_max, 'W')})",
         f"  junction temperature             {fig.tj:.1f} °C (tj_max {t.tj_max:g} °C, ambient "
         f"{design.environment.ambient:g} °C)",
         f"  supply                           {_si(fig.p_supply, 'W')} at {_si(fig.i_supply, 'A')}",

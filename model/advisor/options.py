@@ -49,8 +49,8 @@ RATIO_CLIP = 1e3
 #: below what the figures are shown to, and would only clutter the words.
 NEGLIGIBLE = 0.005
 #: The single knobs tried, where the topology has them.
-SINGLE_KNOBS = ("bias.r1", "bias.r2", "stage.rc", "stage.re1", "stage.re2", "stage.re",
-                "stage.ce", "stage.cin", "stage.cout", "supply.vcc")
+SINGLE_KNOBS = ("bias.r1", "bias.r2", "bias.rf", "bias.rb", "stage.rc", "stage.re1", "stage.re2", "stage.re",
+                "stage.ce", "stage.cb", "stage.cin", "stage.cout", "supply.vcc", "supply.vee")
 
 
 @dataclass(frozen=True)
@@ -126,8 +126,9 @@ def lines_for(design: Design) -> tuple[list, list]:
 
     for key in (k for k in SINGLE_KNOBS if k in used):
         add(lambda key=key: search.scale_line(design, (key,), (1.0,), key), key)
-    add(lambda: search.scale_line(design, ("bias.r1", "bias.r2"), (1.0, 1.0),
-                                  "bias.r1 and bias.r2 at a fixed ratio"), "bias.r1 and bias.r2 at a fixed ratio")
+    if "bias.r1" in used:
+        add(lambda: search.scale_line(design, ("bias.r1", "bias.r2"), (1.0, 1.0),
+                                      "bias.r1 and bias.r2 at a fixed ratio"), "bias.r1 and bias.r2 at a fixed ratio")
     if "stage.re1" in used and design.stage.re1 + design.stage.re2 > 0:
         lines.append(search.share_line(design, "stage.re1", "stage.re2"))
     return lines, refused

@@ -49,7 +49,7 @@ from model.analyses.batch_figures import LARGE_FIGURES, analyse_many
 from model.analyses.figures import design_values
 from model.design.eseries import step
 from model.design.spread_tables import Limit, Tolerance, check_spread_value, file_value
-from model.design.stage import CE, Design, default_design, validate, with_values
+from model.design.stage import CE, EF, Design, default_design, validate, with_values
 from model.errors import DesignError
 from model.spread.analysis import quick_yield
 
@@ -143,7 +143,16 @@ def propose(topology: str, specs: tuple[Limit, ...], vcc: float, series: str = "
     return out[:keep]
 
 
+#: The topologies whose rules of thumb the starting point knows; the others
+#: are tuned from their own starting design (aim, options) instead.
+PROPOSED = (CE, EF)
+
+
 def _base(topology, specs, vcc, series, tolerance, base) -> Design:
+    if topology not in PROPOSED:
+        raise DesignError("topology", topology, "propose starts only common-emitter and emitter-follower "
+                          f"designs; start a {topology} with `new --topology {topology}` and tune it with "
+                          "aim or options")
     design = base if base is not None else default_design(topology)
     if design.topology != topology:
         raise DesignError("topology", topology, f"differs from the base design's {design.topology}")

@@ -17,8 +17,8 @@ import numpy as np
 from model.analyses.batch_corners import response_many
 from model.analyses.batch_transfer import large_signal_many
 from model.analyses.figures import _KEYS, dc_midband
-from model.analyses.power import dissipation
 from model.analyses.midband import device_small_signal
+from model.analyses.power import dissipation
 from model.analyses.transfer import all_active, region_of
 from model.circuit.topologies import FOLLOWER, TRANSISTOR, build, shape_of
 from model.design.fields import FIELDS, TOPOLOGIES

@@ -36,6 +36,8 @@ def solve_batched(a: np.ndarray, b: np.ndarray) -> np.ndarray:
         x = _lapack(a, rhs)
     elif a.shape[-1] <= 3:
         x = _cofactor(a, rhs)
+    elif a.shape[-1] == 4:
+        x = _blocks(a, rhs)
     else:
         x = _eliminate(a, rhs)
     return x[..., 0] if vector else x
@@ -97,6 +99,57 @@ def _cofactor(a, rhs):
         b = np.ascontiguousarray(rhs.transpose(1, 2, 0))
         x = np.stack([(inv[i][0] * b[0] + inv[i][1] * b[1] + inv[i][2] * b[2]) / det for i in range(3)])
         return x.transpose(2, 0, 1)
+
+
+#: A row of :func:`_blocks` is redone with pivoting when its residual
+#: exceeds this fraction of |a|·|x| + |b| (a backward error far above what
+#: pivoted elimination leaves, about n·eps).
+_BLOCK_RESIDUAL = 1e-11
+
+
+def _blocks(a, rhs):
+    """4×4 systems as 2×2 blocks: [[A, B], [C, D]], solved through A⁻¹ and
+    the Schur complement S = D − C·A⁻¹·B, each 2×2 inverse in closed form
+    (two transistors' junctions: each block is one transistor's).  No
+    pivoting, so each row's residual is checked and a row that fails the
+    check (a near-singular A, say) is solved again by pivoted elimination."""
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        at = np.ascontiguousarray(a.transpose(1, 2, 0))
+        b = np.ascontiguousarray(rhs.transpose(1, 2, 0))
+
+        def inv2(p, q, r, t):
+            det = p * t - q * r
+            return t / det, -q / det, -r / det, p / det
+
+        def mul2(x, y):
+            return (x[0] * y[0] + x[1] * y[2], x[0] * y[1] + x[1] * y[3],
+                    x[2] * y[0] + x[3] * y[2], x[2] * y[1] + x[3] * y[3])
+
+        blk_a, blk_b = (at[0, 0], at[0, 1], at[1, 0], at[1, 1]), (at[0, 2], at[0, 3], at[1, 2], at[1, 3])
+        blk_c, blk_d = (at[2, 0], at[2, 1], at[3, 0], at[3, 1]), (at[2, 2], at[2, 3], at[3, 2], at[3, 3])
+        ia = inv2(*blk_a)
+        c_ia = mul2(blk_c, ia)
+        c_ia_b = mul2(c_ia, blk_b)
+        i_s = inv2(*(d - e for d, e in zip(blk_d, c_ia_b)))
+        b_a, b_c = (b[0], b[1]), (b[2], b[3])
+        # y = b_c − C·A⁻¹·b_a; x2 = S⁻¹·y; x1 = A⁻¹·(b_a − B·x2).
+        y = (b_c[0] - c_ia[0] * b_a[0] - c_ia[1] * b_a[1], b_c[1] - c_ia[2] * b_a[0] - c_ia[3] * b_a[1])
+        x2 = (i_s[0] * y[0] + i_s[1] * y[1], i_s[2] * y[0] + i_s[3] * y[1])
+        r = (b_a[0] - blk_b[0] * x2[0] - blk_b[1] * x2[1], b_a[1] - blk_b[2] * x2[0] - blk_b[3] * x2[1])
+        x = np.stack([ia[0] * r[0] + ia[1] * r[1], ia[2] * r[0] + ia[3] * r[1], x2[0], x2[1]])
+        # The residual of every row, against the size of its terms.
+        worst = np.zeros(x.shape[1:], dtype=float)
+        for i in range(4):
+            terms = [at[i, j, None] * x[j] for j in range(4)]
+            res = np.abs(sum(terms) - b[i])
+            scale = sum(np.abs(t) for t in terms) + np.abs(b[i])
+            worst = np.maximum(worst, res / scale)
+        bad = ~(worst <= _BLOCK_RESIDUAL).all(axis=0)
+    x = x.transpose(2, 0, 1)
+    if bad.any():
+        rows = np.flatnonzero(bad)
+        x[rows] = _eliminate(a[rows], rhs[rows])
+    return x
 
 
 def _eliminate(a, rhs, pivot=True):

@@ -29,9 +29,9 @@ DISTRIBUTIONS = (UNIFORM, NORMAL)
 #: The parts a relative tolerance can apply to; the board's own parts take
 #: ``resistors``/``capacitors`` by default, the source, load and supply only
 #: when ``[tolerance.parts]`` names them.
-BOARD_RESISTORS = ("bias.r1", "bias.r2", "stage.rc", "stage.re1", "stage.re2", "stage.re")
-BOARD_CAPACITORS = ("stage.ce", "stage.cin", "stage.cout")
-OTHER_PARTS = ("source.rs", "load.rl", "load.cl", "supply.vcc")
+BOARD_RESISTORS = ("bias.r1", "bias.r2", "bias.rf", "bias.rb", "stage.rc", "stage.re1", "stage.re2", "stage.re")
+BOARD_CAPACITORS = ("stage.ce", "stage.cb", "stage.cin", "stage.cout")
+OTHER_PARTS = ("source.rs", "load.rl", "load.cl", "supply.vcc", "supply.vee")
 TOLERANCE_PARTS = BOARD_RESISTORS + BOARD_CAPACITORS + OTHER_PARTS
 
 #: Every figure a spec can be set on, with the unit its limits are read in.

@@ -60,7 +60,7 @@ def evaluate(design: Design, spread: Spread, table: np.ndarray, large_signal: bo
     """Every figure of each row of ``table`` (the design with those values);
     without ``large_signal`` only the DC, midband and power figures."""
     out = analyse_many(design.topology, engine_values(design, spread, table), large_signal=large_signal)
-    figures = {k: np.asarray(v, dtype=float) for k, v in out.items() if k not in ("converged", "region")}
+    figures = {k: np.asarray(v, dtype=float) for k, v in out.items() if k not in ("converged", "region", "region2")}
     return Evaluated(spread, table, figures, np.asarray(out["converged"], bool), np.asarray(out["region"]))
 
 

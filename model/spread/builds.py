@@ -53,7 +53,11 @@ def spread_of(design: Design) -> Spread:
             low.append(value * (1 - rel))
             high.append(value * (1 + rel))
     t = design.transistor
-    for key, rng, scale, value in (("transistor.beta", tol.beta, 1.0, t.beta),
+    # A follower's β spreads over the same range as the gain transistor's,
+    # drawn on its own: two parts off the reel, not one part twice.
+    second = (("transistor2.beta", tol.beta, 1.0, design.transistor2.beta),) if (
+        "transistor2.beta" in keys_for(design.topology)) else ()
+    for key, rng, scale, value in (("transistor.beta", tol.beta, 1.0, t.beta), *second,
                                    ("transistor.i_s", tol.i_s, t.i_s, t.i_s),
                                    ("environment.ambient", tol.ambient, 1.0, design.environment.ambient)):
         if rng is not None and rng[1] > rng[0]:

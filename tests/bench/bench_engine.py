@@ -1,7 +1,8 @@
 """Engine benchmark: prints `name: value unit` lines; never fails.
 
 Measures a full single-design analysis, batched DC + midband throughput for
-100,000 varied designs, and a per-design scipy.optimize.root loop doing the
+100,000 varied designs, the two-transistor (ce-follower) batch beside the
+single-transistor one, and a per-design scipy.optimize.root loop doing the
 same DC and midband work, side by side in one run.  Then the batch again as
 the best of three runs, split into operating point and midband, and the single analysis split into its parts,
 each part timed as ``analyse`` calls it.  Written against the engine's public
@@ -104,8 +105,27 @@ def main() -> None:
     print(f"scipy_root_loop_throughput: {ref_rate:,.0f} designs/s")
     print(f"batch_over_scipy_ratio: {rate / ref_rate:,.0f} x")
 
+    two_transistor_ratio(values)
     batch_parts(values)
     single_parts(design)
+
+
+def two_transistor_ratio(values: dict, n: int = 20_000) -> None:
+    """Batched DC + midband of the ce-follower (two transistors, one more
+    node pair) beside the same common emitters, best of three each, in one
+    run; the target is a ratio of at least 0.5."""
+    one = {k: v[:n] for k, v in values.items()}
+    base = design_values([default_design("ce-follower")])
+    two = {**{k: np.repeat(v, n) for k, v in base.items()}, **one}
+    rng = np.random.default_rng(2)
+    two["stage.re"] = 10 ** rng.uniform(2.7, 3.7, n)
+    two["transistor2.beta"] = rng.uniform(80, 400, n)
+    analyse_batch("ce-follower", {k: v[:1000] for k, v in two.items()})
+    t_one = _best_s(lambda: analyse_batch("common-emitter", one))
+    t_two = _best_s(lambda: analyse_batch("ce-follower", two))
+    print(f"batch_single_transistor_throughput: {n / t_one:,.0f} designs/s")
+    print(f"batch_two_transistor_throughput: {n / t_two:,.0f} designs/s")
+    print(f"two_over_single_throughput_ratio: {t_one / t_two:.2f} (target >= 0.5)")
 
 
 def _best_s(fn, repeats: int = 3) -> float:
