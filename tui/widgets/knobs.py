@@ -26,10 +26,12 @@ from model.design.stage import Design, get_value, keys_for
 from ..fieldtext import field_text
 from ..safe_text import visible
 
-#: Table order on screen, with the heading shown for each.
+#: Table order on screen, with the heading shown for each.  transistor2 is
+#: the follower of a two-transistor stage, which shares the first one's
+#: parameters but β (see model.design.fields).
 GROUPS = (
     ("supply", "supply"), ("bias", "bias"), ("stage", "stage"), ("source", "source"),
-    ("load", "load"), ("transistor", "transistor"), ("environment", "environment"),
+    ("load", "load"), ("transistor", "transistor"), ("transistor2", "follower q2"), ("environment", "environment"),
     ("parts", "parts"), ("estimate", "hand estimate"),
 )
 
