@@ -9,9 +9,11 @@ previous run of the workbench.
 from __future__ import annotations
 
 import pytest
-from test_workbench import SMALL, knobs, settle, status, type_into
+from rich.cells import cell_len
+from test_workbench import SMALL, knobs, readout, settle, status, type_into
 
-from model.design.fields import FIELDS, TOPOLOGIES
+from model.analyses.figures import analyse
+from model.design.fields import CEF, FIELDS, TOPOLOGIES, TWO_TRANSISTORS
 from model.design.stage import default_design, get_value, keys_for, with_values
 from model.design.units import parse_value
 from model.files.designfile import read_document
@@ -85,3 +87,86 @@ def test_the_new_keys_show_with_their_units(key):
         assert text.endswith(unit) and " " in text, text
     # What the row shows reads back as the stored value.
     assert parse_value(text, unit) == get_value(design, key)
+
+
+# -- 2. the follower's figures in the Readout ------------------------------------
+
+
+async def _readout_end(pilot) -> str:
+    """The bottom of the Readout (at 80×24 the follower rows are below the fold)."""
+    pilot.app.query_one("#readout-box").scroll_end(animate=False)
+    await pilot.pause()
+    return readout(pilot.app)
+
+
+def _row(text: str, label: str) -> str:
+    rows = [line.strip() for line in text.splitlines() if line.strip().startswith(label + " ")]
+    assert rows, f"no {label!r} row in:\n{text}"
+    return rows[0]
+
+
+def _value(row: str, label: str, unit: str) -> float:
+    return parse_value(row.removeprefix(label).strip(), unit)
+
+
+async def test_the_readout_shows_the_followers_figures_for_ce_follower(tmp_path):
+    path = _design_file(tmp_path, CEF)
+    app = make_app(path)
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        design, fig = app.design, analyse(app.design)
+        text = await _readout_end(pilot)
+        assert _row(text, "q2 region").endswith(fig.region2)
+        ic2 = _value(_row(text, "q2 IC"), "q2 IC", "A")
+        vce2 = _value(_row(text, "q2 VCE"), "q2 VCE", "V")
+        p2 = _value(_row(text, "q2 p"), "q2 p", "W")
+        tj2 = float(_row(text, "q2 tj").removeprefix("q2 tj").strip().removesuffix("°C"))
+        # Three figures shown, so 0.5 % covers the rounding of the screen.
+        assert ic2 == pytest.approx(fig.ic2, rel=5e-3) and vce2 == pytest.approx(fig.vce2, rel=5e-3)
+        # Independent checks on what the screen shows.  The follower's
+        # collector is on the supply and its emitter on re (cout blocks the
+        # load at DC): KVL gives VCE2 = VCC − IE2·re, IE2 = IC2·(β+1)/β
+        # (Sedra & Smith, the BJT's terminal currents; from memory).  The
+        # bench's β2 is the nominal one; VA and the Early effect shift it by
+        # well under 1 %, hence 2 %.
+        beta2 = design.transistor2.beta
+        ie2 = ic2 * (beta2 + 1) / beta2
+        assert vce2 == pytest.approx(design.supply.vcc - ie2 * design.stage.re, rel=2e-2)
+        # A transistor dissipates about IC·VCE (the base current's share is
+        # 1/β of it): common practice.
+        assert p2 == pytest.approx(ic2 * vce2, rel=2e-2)
+        # Junction temperature from the thermal resistance: Tj = Ta + θJA·P
+        # (the definition of θJA, JEDEC JESD51-2; from memory).
+        assert tj2 == pytest.approx(design.environment.ambient + design.transistor.theta_ja * p2, abs=0.2)
+        # ... shown against the limit the two share.
+        assert _row(text, "tj_max").endswith(f"{design.transistor.tj_max:g} °C")
+        assert text.index("q2 tj") < text.index("tj_max")
+
+
+@pytest.mark.parametrize("topology", [t for t in TOPOLOGIES if t not in TWO_TRANSISTORS])
+async def test_one_transistor_stages_show_no_follower_rows(tmp_path, topology):
+    app = make_app(_design_file(tmp_path, topology))
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        text = await _readout_end(pilot)
+        assert "q2" not in text and "follower q2" not in text
+        assert "tj_max" in text
+
+
+async def test_the_follower_rows_fit_at_80x24_beside_a_candidate(tmp_path):
+    app = make_app(_design_file(tmp_path, CEF))
+    async with app.run_test(size=SMALL) as pilot:
+        await type_into(pilot, "transistor2.beta", "100")
+        await settle(pilot)
+        assert app.candidate is not None, status(app)
+        table = app.query_one("#readout").content
+        box = app.query_one("#readout").content_region
+        # Every line of the comparison, the widest the Readout gets, fits its box.
+        assert max(cell_len(line) for line in table.plain.splitlines()) <= box.width
+        text = await _readout_end(pilot)
+        row = _row(text, "q2 IC")
+        before, after = analyse(app.design, large_signal=False), app.candidate.figures
+        # A lower β2 draws more base current from q1's collector, so IC2 falls
+        # a little, and the row says so.
+        assert after.ic2 < before.ic2
+        assert row.endswith("↓")
