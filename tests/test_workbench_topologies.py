@@ -10,16 +10,18 @@ from __future__ import annotations
 
 import pytest
 from rich.cells import cell_len
-from test_workbench import SMALL, knobs, readout, settle, status, type_into
+from test_workbench import SMALL, knobs, readout, screen_text, settle, status, type_into
 
 from model.analyses.figures import analyse
-from model.design.fields import CEF, FIELDS, TOPOLOGIES, TWO_TRANSISTORS
+from model.design.fields import CE, CEF, EF, FIELDS, TOPOLOGIES, TWO_TRANSISTORS
 from model.design.stage import default_design, get_value, keys_for, with_values
 from model.design.units import parse_value
 from model.files.designfile import read_document
 from model.files.session import create
 from tui.fieldtext import field_text
 from tui.launch import make_app
+from tui.readout_table import ABSENT
+from tui.topology_screen import WHAT, TopologyDialog
 from tui.widgets.knobs import GROUPS, layout
 
 
@@ -170,3 +172,153 @@ async def test_the_follower_rows_fit_at_80x24_beside_a_candidate(tmp_path):
         # a little, and the row says so.
         assert after.ic2 < before.ic2
         assert row.endswith("↓")
+
+
+# -- 3. changing the topology from the keyboard ------------------------------------
+
+
+async def _choose(pilot, topology: str) -> None:
+    """In the open dialog: the arrows from the present topology to ``topology``, then Enter."""
+    app = pilot.app
+    assert isinstance(app.screen, TopologyDialog)
+    steps = TOPOLOGIES.index(topology) - TOPOLOGIES.index(app.design.topology)
+    await pilot.press(*(["down"] * steps if steps > 0 else ["up"] * -steps), "enter")
+    await pilot.pause()
+
+
+def _knob_keys(topology: str) -> set:
+    return set(keys_for(topology)) - {"topology", "notes"}
+
+
+async def test_ctrl_r_changes_the_topology_as_one_logged_entry_and_undo_brings_it_back(tmp_path):
+    path = _design_file(tmp_path, CE)
+    app = make_app(path)
+    async with app.run_test(size=SMALL) as pilot:
+        old = app.design
+        before = len(app.session.history)
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        dialog = app.screen
+        assert isinstance(dialog, TopologyDialog)
+        # The present topology is where the highlight starts.
+        assert dialog.query_one("#topology-list").highlighted == TOPOLOGIES.index(CE)
+        # At 80×24 each topology is one row, its name beside what it is.
+        lines = screen_text(app).splitlines()
+        for t in TOPOLOGIES:
+            assert sum(t in line.split() and WHAT[t] in line for line in lines) == 1, t
+        await _choose(pilot, CEF)
+        assert not isinstance(app.screen, TopologyDialog)
+
+        history = app.session.history
+        assert len(history) == before + 1, status(app)
+        entry = history[-1]
+        changed = {c.key: (c.old, c.new) for c in entry.changes}
+        assert changed["topology"] == (CE, CEF)
+        # The keys only ce-follower has start from its defaults; shared ones keep theirs.
+        new = app.design
+        assert new == with_values(old, {"topology": CEF})
+        assert new.transistor2.beta == default_design(CEF).transistor2.beta
+        assert new.stage.rc == old.stage.rc and new.supply.vcc == old.supply.vcc
+        assert read_document(path).design == new
+        # The Knobs were rebuilt for the new stage, and the Readout has its follower.
+        assert set(knobs(app).keys) == _knob_keys(CEF)
+        await settle(pilot)
+        assert "q2 IC" in await _readout_end(pilot)
+
+        # Undo is a new entry that brings the old topology and its keys back.
+        await pilot.press("f7")
+        await pilot.pause()
+        assert app.session.history[-1].action == "undo"
+        assert app.design == old
+        assert set(knobs(app).keys) == _knob_keys(CE)
+        assert read_document(path).design == old
+        await settle(pilot)
+        assert "q2" not in await _readout_end(pilot)
+        # And redo goes forward again.
+        await pilot.press("f8")
+        await pilot.pause()
+        assert app.design == new and set(knobs(app).keys) == _knob_keys(CEF)
+
+
+@pytest.mark.parametrize("topology", TOPOLOGIES)
+async def test_every_topology_can_be_reached_from_the_dialog(tmp_path, topology):
+    start = CE if topology != CE else EF
+    path = _design_file(tmp_path, start)
+    app = make_app(path)
+    async with app.run_test(size=SMALL) as pilot:
+        old = app.design
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        await _choose(pilot, topology)
+        assert app.design == with_values(old, {"topology": topology}), status(app)
+        assert set(knobs(app).keys) == _knob_keys(topology)
+        assert app.session.history[-1].action == "set"
+        # The editor sits on a row of the new stage, and editing goes on there.
+        await type_into(pilot, "supply.vcc", "10")
+        await pilot.press("enter")
+        await pilot.pause()
+        assert read_document(path).design == with_values(old, {"topology": topology, "supply.vcc": 10.0})
+
+
+async def test_the_palette_offers_the_topology_dialog_and_cancelling_logs_nothing(tmp_path):
+    path = _design_file(tmp_path, CE)
+    app = make_app(path)
+    async with app.run_test(size=SMALL) as pilot:
+        before = len(app.session.history)
+        await pilot.press("ctrl+p")
+        await pilot.pause()
+        await pilot.press(*"Change the topology")
+        await pilot.pause(0.3)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert isinstance(app.screen, TopologyDialog)
+        # F9, Esc's twin, closes it with nothing changed.
+        await pilot.press("down", "f9")
+        await pilot.pause()
+        assert not isinstance(app.screen, TopologyDialog)
+        # Choosing the present topology changes nothing either.
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        await pilot.press("enter")
+        await pilot.pause()
+        assert "nothing to change" in status(app)
+        assert len(app.session.history) == before and app.design.topology == CE
+        assert app.focused is knobs(app).editor
+
+
+async def test_pending_values_on_shared_keys_stay_pending_across_a_topology_change(tmp_path):
+    app = make_app(_design_file(tmp_path, CE))
+    async with app.run_test(size=SMALL) as pilot:
+        await type_into(pilot, "supply.vcc", "10")
+        assert app.candidate is not None
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        await _choose(pilot, EF)
+        assert app.design.topology == EF and app.design.supply.vcc == default_design(CE).supply.vcc
+        # The supply is a key of both: its pending value is still the candidate's.
+        assert app.candidate is not None and dict(app.candidate.changes) == {"supply.vcc": "10"}
+        await type_into(pilot, "stage.re", "3k3")  # an emitter follower's own key
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        await _choose(pilot, CE)
+        # re1 and re2 replace re in a common emitter: the pending re is dropped, and said.
+        assert app.design.topology == CE
+        assert app.candidate is None or "stage.re" not in app.candidate.changes
+        assert "dropped the pending" in status(app)
+
+
+async def test_a_baseline_of_another_topology_shows_the_follower_rows_as_absent(tmp_path):
+    app = make_app(_design_file(tmp_path, CE))
+    async with app.run_test(size=SMALL) as pilot:
+        await pilot.press("f4")  # pin the common emitter
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        await _choose(pilot, CEF)
+        await settle(pilot)
+        text = await _readout_end(pilot)
+        row = _row(text, "q2 IC")
+        cells = row.removeprefix("q2 IC").split()
+        # baseline, now, change: the baseline had no q2, so no change is claimed.
+        assert cells[0] == ABSENT and parse_value(" ".join(cells[1:3]), "A") == pytest.approx(
+            app.figures.ic2, rel=5e-3)
+        assert len(cells) == 3

@@ -27,6 +27,7 @@ KEYS = (
     ("Ctrl+G", "the spread picture's next figure (the design's specs first)"),
     ("F7 or Ctrl+Z", "undo the last change (logged as a new entry); pending values stay pending"),
     ("F8 or Ctrl+Y", "redo (logged as a new entry); pending values stay pending"),
+    ("Ctrl+R", "change the topology (a logged change; keys both stages have keep their values)"),
     ("F1", "this help"),
     ("Ctrl+P", "every action by name"),
     ("F10 or Ctrl+Q", "quit; every commit is already saved"),
