@@ -10,9 +10,11 @@ from __future__ import annotations
 
 import pytest
 from rich.cells import cell_len
-from test_workbench import SMALL, knobs, readout, screen_text, settle, status, type_into
+from test_workbench import SMALL, knobs, readout, region_text, screen_text, settle, status, type_into
 
 from model.analyses.figures import analyse
+from model.analyses.loadlines import design_load_lines
+from model.circuit.topologies import FOLLOWER
 from model.design.fields import CE, CEF, EF, FIELDS, TOPOLOGIES, TWO_TRANSISTORS
 from model.design.stage import default_design, get_value, keys_for, with_values
 from model.design.units import parse_value
@@ -20,6 +22,7 @@ from model.files.designfile import read_document
 from model.files.session import create
 from tui.fieldtext import field_text
 from tui.launch import make_app
+from tui.pictures import FOLLOWER_LINES, LOAD_LINES, PICTURES, charts_for, pictures_for
 from tui.readout_table import ABSENT
 from tui.topology_screen import WHAT, TopologyDialog
 from tui.widgets.knobs import GROUPS, layout
@@ -322,3 +325,73 @@ async def test_a_baseline_of_another_topology_shows_the_follower_rows_as_absent(
         assert cells[0] == ABSENT and parse_value(" ".join(cells[1:3]), "A") == pytest.approx(
             app.figures.ic2, rel=5e-3)
         assert len(cells) == 3
+
+
+# -- 4. the follower's load lines ----------------------------------------------------
+
+
+def _par(a: float, b: float) -> float:
+    return a * b / (a + b)
+
+
+@pytest.mark.parametrize("changes", [{}, {"stage.re": 2.2e3, "load.rl": 10e3}, {"supply.vcc": 15.0, "load.rl": 150.0}])
+def test_the_followers_load_lines_are_the_closed_forms(changes):
+    design = with_values(default_design(CEF), changes)
+    ll = design_load_lines(design, FOLLOWER)
+    s = design.stage
+    # With q2 taken out, its collector sits on the supply and its emitter has
+    # only re to ground at DC (cout open), and re ∥ rl at midband (cout
+    # shorted): the textbook emitter-follower lines (Sedra & Smith, the
+    # emitter follower's load lines; from memory).
+    assert ll.vce_open == pytest.approx(design.supply.vcc, rel=1e-9)
+    assert ll.r_dc == pytest.approx(s.re, rel=1e-9)
+    assert ll.r_ac == pytest.approx(_par(s.re, design.load.rl), rel=1e-9)
+    # KVL round the follower: VCE2 = VCC − (IC2 + IB2)·re, so the Q-point is
+    # off the IE ≈ IC line by IB2·re (to the solver's KCL tolerance).
+    fig = analyse(design, large_signal=False)
+    assert ll.ic_q == pytest.approx(fig.ic2, rel=1e-12)
+    assert ll.vce_q == pytest.approx(ll.vce_open - ll.ic_q * ll.r_dc - fig.ib2 * s.re, abs=1e-7 * design.supply.vcc)
+
+
+def test_the_follower_picture_draws_its_lines_and_q_point():
+    design = default_design(CEF)
+    fig = analyse(design)
+    ll = design_load_lines(design, FOLLOWER)
+    (chart,) = charts_for(FOLLOWER_LINES, design, fig)
+    dc, ac = chart.series
+    # Every drawn point lies on its line: IC = (VCC − VCE)/re on the DC line,
+    # through Q with slope −1/(re ∥ rl) on the AC one (the closed forms above).
+    s, rl = design.stage, design.load.rl
+    assert dc.y == pytest.approx((design.supply.vcc - dc.x) / s.re, rel=1e-9)
+    assert ac.y == pytest.approx(ll.ic_q + (ll.vce_q - ac.x) / _par(s.re, rl), rel=1e-9, abs=1e-15)
+    (q,) = chart.spots
+    assert (q.x, q.y, q.symbol) == (pytest.approx(fig.vce2, rel=1e-9), pytest.approx(fig.ic2, rel=1e-9), "Q")
+    # A one-transistor stage has no such picture.
+    assert FOLLOWER_LINES not in pictures_for(default_design(CE))
+    assert charts_for(FOLLOWER_LINES, default_design(CE), analyse(default_design(CE))) == ()
+
+
+async def test_f6_shows_the_followers_load_lines_after_the_gain_transistors(tmp_path):
+    app = make_app(_design_file(tmp_path, CEF))
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        seen = []
+        for _ in range(len(PICTURES) + 1):
+            seen.append(app.picture_kind)
+            await pilot.press("f6")
+            await settle(pilot)
+        # The first F6 at 80×24 only brings the pictures on show.
+        assert seen == [PICTURES[0], PICTURES[0], LOAD_LINES, FOLLOWER_LINES, *PICTURES[2:-1]]
+        while app.picture_kind != FOLLOWER_LINES:
+            await pilot.press("f6")
+            await settle(pilot)
+        shown = region_text(app, "#pictures-box")
+        assert "Load lines of q2" in shown and "Q Q-point" in shown and "AC load line" in shown
+        # Back to a stage of one transistor: the picture falls back to its load lines.
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        await _choose(pilot, CE)
+        await settle(pilot)
+        assert app.picture_kind == LOAD_LINES
+        shown = region_text(app, "#pictures-box")
+        assert "Load lines" in shown and "q2" not in shown
