@@ -395,3 +395,25 @@ async def test_f6_shows_the_followers_load_lines_after_the_gain_transistors(tmp_
         assert app.picture_kind == LOAD_LINES
         shown = region_text(app, "#pictures-box")
         assert "Load lines" in shown and "q2" not in shown
+
+
+async def test_the_readout_says_which_transistor_ends_the_swing(tmp_path):
+    # A heavy load on the follower: its emitter current cannot fall below 0,
+    # so the output cannot go lower than −IE2·(re ∥ rl) (the follower's
+    # cut-off, the textbook class-A limit; Horowitz & Hill, the emitter
+    # follower's swing into a load; from memory).
+    design = with_values(default_design(CEF), {"load.rl": 100.0})
+    path = str(tmp_path / "heavy.toml")
+    create(path, design)
+    app = make_app(path)
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        fig = app.figures
+        ie2 = fig.ic2 + fig.ib2
+        assert fig.swing_down == pytest.approx(ie2 * _par(design.stage.re, design.load.rl), rel=0.05)
+        text = await _readout_end(pilot)
+        assert "down: q2 cutoff" in text
+    app = make_app(_design_file(tmp_path, CE))
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        assert "down:" not in readout(app) and "down:" not in await _readout_end(pilot)

@@ -119,6 +119,11 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
             out.append(line + "\n")
         if heading == "response" and shown.response is not None:
             out.append(f"  {_set_by(shown.response)}\n")
+        if heading == "headroom" and shown.two_transistors and any(shown.swing_limits):
+            # Which transistor ends each way of the swing, the question a
+            # second transistor raises.
+            ends = [f"{way}: {why}" for way, why in zip(("up", "down"), shown.swing_limits) if why]
+            out.append(f"  {' · '.join(ends)}\n")
     out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
                + f"{tj_max:g} °C".rjust(value_width))
     if yields is not None:
