@@ -94,6 +94,31 @@ def test_the_new_keys_show_with_their_units(key):
     assert parse_value(text, unit) == get_value(design, key)
 
 
+#: A key only some topologies have, with a value inside its rule (fields.py).
+NEW_KEYS = (("supply.vee", "-12", -12.0), ("bias.rf", "100k", 100e3), ("bias.rb", "22k", 22e3),
+            ("stage.cb", "22u", 22e-6), ("transistor2.beta", "150", 150.0))
+
+
+@pytest.mark.parametrize("key, text, value", NEW_KEYS)
+async def test_a_new_key_is_edited_and_committed_from_its_row(tmp_path, key, text, value):
+    topology = next(t for t in TOPOLOGIES if key in keys_for(t))
+    path = _design_file(tmp_path, topology)
+    app = make_app(path)
+    async with app.run_test(size=SMALL) as pilot:
+        await type_into(pilot, key, text)
+        # The row is labelled by its key's own name, under its table's heading.
+        assert str(app.query_one("#knob-label").content) == key.split(".")[1]
+        above = str(app.query_one("#knobs-above").content).splitlines()
+        heading = next(line for line in reversed(above) if line and not line.startswith(" ") and
+                       line.strip() in dict(GROUPS).values())
+        assert heading == dict(GROUPS)[key.split(".")[0]]
+        await pilot.press("enter")
+        await pilot.pause()
+        entry = app.session.history[-1]
+        assert [(c.key, c.new) for c in entry.changes] == [(key, value)], status(app)
+        assert read_document(path).design == with_values(default_design(topology), {key: value})
+
+
 # -- 2. the follower's figures in the Readout ------------------------------------
 
 
