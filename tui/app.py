@@ -23,7 +23,7 @@ from textual.message import Message
 from textual.widgets import Footer, Header, OptionList, Static
 
 from model.analyses.figures import Figures, analyse
-from model.design.stage import Design
+from model.design.stage import Design, with_article
 from model.errors import StageledgerError
 from model.files import ledger
 from model.files.savefile import atomic_write
@@ -37,6 +37,7 @@ from .pictures_pane import PicturesPane
 from .readout_table import PENDING, readout_table, warnings_text
 from .safe_text import internal_error, visible
 from .screens import HelpScreen, NotePrompt
+from .topology_screen import TopologyDialog
 from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
@@ -86,6 +87,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         # Priority, as F2: the prompt must be up before the target typed behind the key.
         Binding("ctrl+t", "aim", "aim", id="aim", show=False, priority=True),
         Binding("ctrl+o", "options", "options", id="options", show=False, priority=True),
+        # Priority, as F2: the dialog must be up before the Up/Down typed behind the key.
+        Binding("ctrl+r", "topology", "topology", id="topology", show=False, priority=True),
     ]
 
     def __init__(self, design: Design, *, session: DesignSession | None, source: str,
@@ -295,6 +298,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         self._home.query_one(LedgerPane).show(session.history)
         self.sub_title = self._where()
         self._apply(outcome)
+        # A change of topology can take away the editor's row (the Knobs then
+        # put it on the supply): that arrival is a checkpoint too.
+        self.state.checkpoint(self._knobs.key)
 
     def _writable_session(self) -> DesignSession:
         if self.session is not None:
@@ -317,7 +323,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         ("Help", "list every key (F1)", "help"),
         ("Note for the next commit", "F2 or Ctrl+N", "note"),
         ("Show ledger / readout", "switch on a narrow screen (F3)", "toggle_ledger"),
-        ("Show pictures / next picture", "Bode, load lines, transfer, spread, knob effects (F6)", "picture"),
+        ("Show pictures / next picture", "Bode, load lines (q2's too), transfer, spread, knob effects (F6)",
+         "picture"),
         ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
         ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
         ("Abandon", "this row's pending value, or on a row with none the whole candidate (Esc or F9)",
@@ -326,6 +333,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         ("Redo", "the last undone change, logged (F8 or Ctrl+Y)", "redo"),
         ("Aim the knob at a target", "FIGURE=TARGET by the knob under the cursor, as a candidate (Ctrl+T)", "aim"),
         ("Options for a target", "every usual way to FIGURE=TARGET, cheapest first (Ctrl+O)", "options"),
+        ("Change the topology", "one of the seven stages, logged; shared keys keep their values (Ctrl+R)",
+         "topology"),
     )
 
     def get_system_commands(self, screen):
@@ -378,6 +387,21 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
         number = int(event.option.id.split("-")[1])
         self._apply(self.state.pin(number, ledger.replay(self.history, number)))
+
+    def action_topology(self) -> None:
+        if self.screen is not self._home:
+            return  # Ctrl+R inside a dialog (priority keys reach the app there too)
+        current = self.design.topology
+
+        def chosen(topology: str | None) -> None:
+            if topology is None:
+                return
+            if topology == self.design.topology:
+                self._say(f"already {with_article(topology)}: nothing to change")
+                return
+            self._commit(self.state.switch_topology(topology))
+
+        self.push_screen(TopologyDialog(current), chosen)
 
     def action_cycle_series(self) -> None:
         self._commit(self.state.next_series())

@@ -71,7 +71,7 @@ def relative_change(before, after, key: str = "") -> str:
         return "unchanged" if same or before == after else "—"
     if key in _SHOW and _SHOW[key][1] == "gain" and before and after:
         return f"{signed(20.0 * math.log10(abs(after) / abs(before)), '+.2f')} dB"
-    if key == "tj":  # a per cent of a Celsius reading means nothing
+    if key in ("tj", "tj2"):  # a per cent of a Celsius reading means nothing
         return f"{signed(after - before, '+.3g')} K"
     if key == "yield":  # a change of a fraction, in percentage points
         return f"{signed(100.0 * (after - before), '+.3g')} pts"

@@ -17,15 +17,28 @@ import numpy as np
 
 from model.analyses.curves import StageCurves, stage_curves
 from model.analyses.figures import Figures
-from model.design.stage import Design
+from model.analyses.loadlines import LoadLines, design_load_lines
+from model.circuit.topologies import FOLLOWER
+from model.design.stage import TWO_TRANSISTORS, Design
 
 from .chart import Axis, Chart, Marker, Series, Spot
 from .spread_picture import spread_chart
 
 BODE, LOAD_LINES, TRANSFER, SPREAD = "Bode", "load lines", "transfer", "spread"
 KNOB_EFFECTS = "knob effects"
+#: The follower's own load lines, for a stage with one.
+FOLLOWER_LINES = "q2 load lines"
 #: The pictures in the order F6 steps through them.
 PICTURES = (BODE, LOAD_LINES, TRANSFER, SPREAD, KNOB_EFFECTS)
+
+
+def pictures_for(design: Design) -> tuple:
+    """The pictures F6 steps through for ``design``: a two-transistor stage
+    has the follower's load lines after the gain transistor's."""
+    if design.topology not in TWO_TRANSISTORS:
+        return PICTURES
+    at = PICTURES.index(LOAD_LINES) + 1
+    return PICTURES[:at] + (FOLLOWER_LINES,) + PICTURES[at:]
 _REGION_MARK = {"saturation": ("S", "saturation edge"), "cutoff": ("X", "cut-off edge")}
 
 
@@ -39,8 +52,12 @@ def charts_for(kind: str, design: Design, fig: Figures, spread_key: str = "av_lo
         return ()
     if kind == SPREAD:
         return spread_chart(design, fig, spread_key)
+    if kind == FOLLOWER_LINES:
+        return follower_chart(design_load_lines(design, FOLLOWER)) if design.topology in TWO_TRANSISTORS else ()
     curves = stage_curves(design, fig.emf_edges)
-    return load_line_chart(curves) if kind == LOAD_LINES else transfer_chart(design, curves)
+    if kind == LOAD_LINES:
+        return load_line_chart(curves, "Load lines of q1" if design.topology in TWO_TRANSISTORS else "Load lines")
+    return transfer_chart(design, curves)
 
 
 def bode(design: Design, fig: Figures) -> tuple:
@@ -62,20 +79,30 @@ def bode(design: Design, fig: Figures) -> tuple:
     return gain, phase
 
 
-def load_line_chart(c: StageCurves) -> tuple:
+def load_line_chart(c: StageCurves, title: str = "Load lines") -> tuple:
     """The DC and AC load lines in the IC–VCE plane, the Q-point, and where
     the large-signal path leaves forward-active (saturation, cut-off)."""
-    ll = c.lines
-    right = max(ll.vce_open, ll.ac_vce_cutoff, float(np.nanmax(c.curve.vce))) * 1.02
+    spots = [Spot(e.vce, e.ic, *_REGION_MARK[e.region]) for e in c.edges if e.region in _REGION_MARK]
+    return _lines_chart(title, c.lines, spots, float(np.nanmax(c.curve.vce)), [e.ic for e in c.edges])
+
+
+def follower_chart(ll: LoadLines) -> tuple:
+    """The follower's DC and AC load lines and its Q-point (the swing's
+    edges are marked on the gain transistor's picture, whose path the
+    large-signal sweep follows)."""
+    return _lines_chart("Load lines of q2 (follower)", ll, [], 0.0, [])
+
+
+def _lines_chart(title: str, ll: LoadLines, spots: list, vce_reached: float, ic_reached: list) -> tuple:
+    right = max(ll.vce_open, ll.ac_vce_cutoff, vce_reached) * 1.02
     vce = np.linspace(0.0, right, 24)
     dc_ic = ll.dc_ic(vce)
-    top = max(ll.dc_ic(0.0), ll.ac_ic(0.0), ll.ic_q * 2.0, *(e.ic for e in c.edges)) * 1.05
+    top = max(ll.dc_ic(0.0), ll.ac_ic(0.0), ll.ic_q * 2.0, *ic_reached) * 1.05
     keep = (dc_ic >= 0) & (dc_ic <= top)
     ac_vce = np.linspace(0.0, ll.ac_vce_cutoff, 160)
-    spots = [Spot(ll.vce_q, ll.ic_q, "Q", "Q-point")]
-    spots += [Spot(e.vce, e.ic, *_REGION_MARK[e.region]) for e in c.edges if e.region in _REGION_MARK]
+    spots = [Spot(ll.vce_q, ll.ic_q, "Q", "Q-point"), *spots]
     return (Chart(
-        "Load lines",
+        title,
         Axis("VCE", "V", lo=0.0, hi=right),
         Axis("IC", "A", lo=0.0, hi=top),
         series=(

@@ -17,7 +17,7 @@ from model.design.stage import Design
 
 from .chart import render_stack
 from .messages import PictureReady
-from .pictures import KNOB_EFFECTS, PICTURES, SPREAD, charts_for
+from .pictures import KNOB_EFFECTS, LOAD_LINES, PICTURES, SPREAD, charts_for, pictures_for
 from .sensitivity_text import knob_effect_lines
 from .spread_picture import figure_choices
 from .widgets.picture import Picture, Rows
@@ -39,6 +39,8 @@ class PicturesPane:
         return not self._home.has_class("-narrow") or self._home.has_class("-show-pictures")
 
     def _schedule_picture(self, design: Design, figures: Figures) -> None:
+        if self.picture_kind not in pictures_for(design):
+            self.picture_kind = LOAD_LINES  # the follower's lines, and the stage has none now
         picture = self._home.query_one(Picture)
         hint = " · ^G figure" if self.picture_kind == SPREAD else ""
         self._home.query_one("#picture-title", Static).update(
@@ -106,7 +108,9 @@ class PicturesPane:
             self._home.remove_class("-show-ledger")
             self._home.add_class("-show-pictures")
         else:
-            self.picture_kind = PICTURES[(PICTURES.index(self.picture_kind) + 1) % len(PICTURES)]
+            kinds = pictures_for(self.state.on_show()[0])
+            at = kinds.index(self.picture_kind) if self.picture_kind in kinds else kinds.index(LOAD_LINES)
+            self.picture_kind = kinds[(at + 1) % len(kinds)]
         self._say(f"picture: {self.picture_kind} (F6 for the next)")
         self.call_after_refresh(self._refresh_picture)
 

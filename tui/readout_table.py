@@ -8,7 +8,7 @@ import math
 
 from rich.text import Text
 
-from model.analyses.figures import Figures
+from model.analyses.figures import FOLLOWER_KEYS, Figures
 from model.analyses.midband import decibels
 from model.design.units import format_si
 
@@ -29,6 +29,12 @@ ROWS = (
     ("dissipation", (("p_transistor", "p_transistor", "W"), ("p_supply", "p_supply", "W"),
                      ("tj", "tj", "°C"))),
 )
+#: The follower (q2) of a two-transistor stage, in its own group just above
+#: tj_max, which bounds its tj as it does the gain stage's.
+FOLLOWER_ROWS = ("follower q2", (("q2 region", "region2", None), ("q2 IC", "ic2", "A"), ("q2 VCE", "vce2", "V"),
+                                 ("q2 p", "p_transistor2", "W"), ("q2 tj", "tj2", "°C")))
+#: A cell for a stage that has no such figure (a one-transistor stage beside a two).
+ABSENT = "–"
 
 
 def show(value, kind, compact: bool = False) -> str:
@@ -50,6 +56,14 @@ def show(value, kind, compact: bool = False) -> str:
     if kind == "V/V":
         return f"{value:.4g}"
     return format_si(value, kind)
+
+
+def _cell(fig: Figures, key: str, value, kind, compact: bool) -> str:
+    """One value cell; a follower figure of a stage without a follower is ABSENT
+    (its NaN would otherwise read as a sweep still running)."""
+    if key in FOLLOWER_KEYS and not fig.two_transistors:
+        return ABSENT
+    return show(value, kind, compact)
 
 
 def _arrow(key, before, after) -> str:
@@ -86,21 +100,30 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
     if compare:
         head += _right("change", _CHANGE)
     out = Text(head + "\n", style="bold")
-    for heading, rows in ROWS:
+    groups = ROWS
+    if shown.two_transistors or (compare and reference.two_transistors):
+        groups += (FOLLOWER_ROWS,)
+    for heading, rows in groups:
         out.append(heading + "\n", style="italic")
         for label, key, kind in rows:
             a = getattr(shown, key)
             line = f"  {label:<{_LABEL - 2}}"
             if compare:
                 b = getattr(reference, key)
-                line += _right(show(b, kind, compact=True), _VALUE)
-            line += _right(show(a, kind, compact=compare), value_width)
+                line += _right(_cell(reference, key, b, kind, compact=True), _VALUE)
+            line += _right(_cell(shown, key, a, kind, compact=compare), value_width)
             if compare:
-                moved = "" if _nan(a) or _nan(b) else relative_change(b, a, key)
+                absent = key in FOLLOWER_KEYS and not (shown.two_transistors and reference.two_transistors)
+                moved = "" if absent or _nan(a) or _nan(b) else relative_change(b, a, key)
                 line += _right((moved + " " + _arrow(key, b, a)).strip(), _CHANGE)
             out.append(line + "\n")
         if heading == "response" and shown.response is not None:
             out.append(f"  {_set_by(shown.response)}\n")
+        if heading == "headroom" and shown.two_transistors and any(shown.swing_limits):
+            # Which transistor ends each way of the swing, the question a
+            # second transistor raises.
+            ends = [f"{way}: {why}" for way, why in zip(("up", "down"), shown.swing_limits) if why]
+            out.append(f"  {' · '.join(ends)}\n")
     out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
                + f"{tj_max:g} °C".rjust(value_width))
     if yields is not None:

@@ -23,10 +23,12 @@ KEYS = (
     ("F4", "pin the committed design as the baseline, or unpin it"),
     ("Enter on a ledger entry", "pin the design as it stood after that entry"),
     ("F5", "switch the preferred series (E12, E24, E96) — a logged change"),
-    ("F6", "show the pictures (narrow screens), then the next: Bode, load lines, transfer, spread, knob effects"),
+    ("F6", "show the pictures (narrow screens), then the next: Bode, load lines (and the follower's), "
+               "transfer, spread, knob effects"),
     ("Ctrl+G", "the spread picture's next figure (the design's specs first)"),
     ("F7 or Ctrl+Z", "undo the last change (logged as a new entry); pending values stay pending"),
     ("F8 or Ctrl+Y", "redo (logged as a new entry); pending values stay pending"),
+    ("Ctrl+R", "change the topology (a logged change; keys both stages have keep their values)"),
     ("F1", "this help"),
     ("Ctrl+P", "every action by name"),
     ("F10 or Ctrl+Q", "quit; every commit is already saved"),

@@ -306,6 +306,12 @@ class WorkState:
         note = self.note or f"step along {wanted}"
         return Save(lambda s: s.commit({"parts.series": wanted}, note), keep=True)
 
+    def switch_topology(self, topology: str) -> Save:
+        """The design as a stage of ``topology``, logged as one entry; the keys
+        both share keep their values (see ``model.design.stage.with_topology``)."""
+        note = self.note
+        return Save(lambda s: s.commit({"topology": topology}, note), keep=True)
+
     def saved(self, save: Save, entry, design: Design, figures: Figures, where: str, row: str) -> Outcome:
         """``save`` was logged as ``entry`` and saved to ``where``, leaving
         ``design`` (with ``figures``) committed; the editor is on ``row``."""

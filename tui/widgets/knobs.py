@@ -26,10 +26,12 @@ from model.design.stage import Design, get_value, keys_for
 from ..fieldtext import field_text
 from ..safe_text import visible
 
-#: Table order on screen, with the heading shown for each.
+#: Table order on screen, with the heading shown for each.  transistor2 is
+#: the follower of a two-transistor stage, which shares the first one's
+#: parameters but β (see model.design.fields).
 GROUPS = (
     ("supply", "supply"), ("bias", "bias"), ("stage", "stage"), ("source", "source"),
-    ("load", "load"), ("transistor", "transistor"), ("environment", "environment"),
+    ("load", "load"), ("transistor", "transistor"), ("transistor2", "follower q2"), ("environment", "environment"),
     ("parts", "parts"), ("estimate", "hand estimate"),
 )
 
@@ -192,7 +194,7 @@ class Knobs(VerticalScroll):
         self._pending: frozenset[str] = frozenset()
         self._lines = layout(design)
         self.keys = [key for _, key in self._lines if key is not None]
-        self.key = "supply.vcc" if "supply.vcc" in self.keys else self.keys[0]
+        self.key = self._first()
         self.editor = KnobEditor(self.move)
         self._known = ""  # the editor's text as the app last saw it
         self._drawn: dict[str, Text] = {}
@@ -206,6 +208,10 @@ class Knobs(VerticalScroll):
 
     def on_mount(self) -> None:
         self._place(arrive=True)
+
+    def _first(self) -> str:
+        """The row the editor starts on: the supply, the first value people tune."""
+        return "supply.vcc" if "supply.vcc" in self.keys else self.keys[0]
 
     def text(self, key: str) -> str:
         """What ``key``'s row shows when the editor is elsewhere: the
@@ -242,8 +248,8 @@ class Knobs(VerticalScroll):
         if layout(design) != self._lines:
             self._lines = layout(design)
             self.keys = [key for _, key in self._lines if key is not None]
-            if self.key not in self.keys:
-                self.key, arrive = self.keys[0], True
+            if self.key not in self.keys:  # a row the new topology lacks
+                self.key, arrive = self._first(), True
         if arrive or self.editor.value == self._known:
             self._place(arrive)
         else:
