@@ -71,3 +71,14 @@ def test_propose_refuses_a_topology_it_has_no_rules_for():
         propose(CB, (Limit("av_loaded", 50.0, 200.0),), 12.0)
     assert caught.value.field == "topology" and "new --topology common-base" in caught.value.rule
     assert propose(CE, (Limit("av_loaded", -30.0, -10.0),), 9.0, grid_steps=1, keep=1)
+
+
+def test_the_newer_keys_step_as_their_kind_of_value():
+    """The negative rail steps by 0.5 V as vcc does, the follower's β by 10
+    as the gain transistor's, and a cb not fitted steps up to a bypass-sized
+    1 µF as ce does (model.design.stepping)."""
+    from model.design.stepping import step
+
+    assert step("supply.vee", -6.0, 1, "E24") == -5.5 and step("supply.vee", -6.0, -1, "E24") == -6.5
+    assert step("transistor2.beta", 200.0, 1, "E24") == 210.0
+    assert step("stage.cb", 0.0, 1, "E24") == 1e-6

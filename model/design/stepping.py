@@ -10,10 +10,12 @@ from model.errors import DesignError
 #: Plain numbers step linearly by these amounts (in the key's unit).
 LINEAR_STEPS = {
     "supply.vcc": 0.5,
+    "supply.vee": 0.5,
     "environment.ambient": 5.0,
     "transistor.tj_max": 5.0,
     "transistor.vceo": 5.0,
     "transistor.beta": 10.0,
+    "transistor2.beta": 10.0,
     "transistor.beta_r": 0.5,
     "transistor.va": 10.0,
     "transistor.theta_ja": 10.0,
@@ -26,8 +28,9 @@ LINEAR_STEPS = {
 #: fitted) lands.  A bypass capacitor not fitted is open, the bottom of its
 #: scale, so stepping up fits one: 1 µF, where a bypass across a few tens of
 #: ohms of re starts to act in the audio band, so further steps walk its
-#: corner down through it.  A load capacitance starts at 1 pF.
-_FROM_ZERO = {"Ω": 10.0, "F": 1e-12, "stage.ce": 1e-6}
+#: corner down through it; a common base's cb likewise.  A load
+#: capacitance starts at 1 pF.
+_FROM_ZERO = {"Ω": 10.0, "F": 1e-12, "stage.ce": 1e-6, "stage.cb": 1e-6}
 #: Capacitors whose "none" is a wire in their place, the far end of their
 #: scale (a coupling capacitor's corner falls to DC as it grows): no series
 #: value neighbours it, so stepping is refused.
