@@ -262,10 +262,10 @@ def test_json_gain_and_phase_at_the_signal_frequency_are_the_engines(demo, capsy
     assert data["gain_at_freq"] == pytest.approx(abs(g), rel=1e-9)
     assert float(_wrap(data["phase_at_freq"] - math.degrees(math.atan2(g.imag, g.real)))) == \
         pytest.approx(0.0, abs=1e-6)
-    # README's branch: near 180° for the inverting stage, near 0° for the
-    # follower; both demos' signals lie well inside the band.
+    # README's branch: near 180° for an inverting stage, near 0° for a
+    # non-inverting one; every demo's signal lies well inside the band.
     assert data["f_low"] < d.source.freq < data["f_high"]
-    target = 180.0 if d.topology == "common-emitter" else 0.0
+    target = 180.0 if data["av_source"] < 0 else 0.0
     assert abs(data["phase_at_freq"] - target) < 90.0
 
 

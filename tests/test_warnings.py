@@ -243,3 +243,32 @@ def test_every_message_is_one_readable_line():
             assert "nan" not in w.message.lower()  # every number in it was computed
     assert seen >= {"Q-SATURATED", "Q-CUTOFF", "HEADROOM-SHORT", "TJ-OVER", "PD-OVER",
                     "VCE-OVER", "R-OVERLOAD", "BETA-DEPENDENT", "HAZARDOUS-VOLTAGE"}
+
+
+# ---------------------------------------------------- the follower's warnings
+def test_a_follower_cut_off_by_a_saturated_gain_stage_is_named():
+    # rc far too large saturates q1 with its emitter near ground, so its
+    # collector (q2's base) sits near 0.1 V: below a silicon VBE (about
+    # 0.6 V, common practice), so q2 cannot conduct.
+    d = with_values(default_design("ce-follower"), {"stage.rc": 1e6, "stage.re1": 0.0, "stage.re2": 10.0})
+    assert "Q2-CUTOFF" in _codes(d) and "Q-SATURATED" in _codes(d)
+
+
+def test_a_follower_past_its_rating_is_named():
+    # re 47 Ω: q2's base current pulls q1's collector down to about 3.6 V,
+    # so IE2 ≈ 3 V/47 Ω ≈ 63 mA at VCE2 ≈ 9 V: about 0.57 W, above the
+    # 0.5 W rating; at 40 °C ambient tj = 40 + 0.57·200 ≈ 154 °C > 150 °C.
+    d = with_values(default_design("ce-follower"), {"stage.re": 47.0, "load.rl": "open",
+                                                   "environment.ambient": 40.0})
+    codes = _codes(d)
+    assert {"Q2-PD-OVER", "Q2-TJ-OVER"} <= set(codes) and "PD-OVER" not in codes
+
+
+def test_a_follower_that_clips_first_is_named():
+    # Into 600 Ω the follower can pull its output down by only about
+    # IE2·(re ‖ rl) ≈ 4.9 mA·375 Ω ≈ 1.8 V before it cuts off, while the
+    # gain stage could swing further: asking for 2.2 V peak clips on q2.
+    d = with_values(default_design("ce-follower"), {"source.vpk": 0.1})
+    messages = _messages(d, "Q2-CLIPS-FIRST")
+    assert len(messages) == 1 and "going down" in messages[0] and "cutoff" in messages[0]
+    assert "Q2-CLIPS-FIRST" not in _codes(default_design("ce-follower"))  # 10 mV asks for 0.22 V
