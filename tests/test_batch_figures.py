@@ -47,7 +47,14 @@ from test_output_strict import CUT_OFF_CE, CUT_OFF_EF_PNP, SATURATED_CE, SATURAT
 
 from model import analyse, read_design
 from model.analyses import transfer
-from model.analyses.batch_figures import FOLLOWER_FIGURES, LARGE_FIGURES, QUICK_FIGURES, UNSOLVED, analyse_many
+from model.analyses.batch_figures import (
+    FOLLOWER_FIGURES,
+    LARGE_FIGURES,
+    NOISE_FIGURES,
+    QUICK_FIGURES,
+    UNSOLVED,
+    analyse_many,
+)
 from model.analyses.batch_transfer import _distortion, _HeldRows, large_signal_many
 from model.analyses.figures import dc_midband, design_values
 from model.circuit.topologies import build
@@ -66,7 +73,11 @@ EXACT = (1e-9, 0.0)
 TOLERANCE = {k: EXACT for k in QUICK_FIGURES + FOLLOWER_FIGURES + ("gain_at_freq",)}
 TOLERANCE.update(swing_up=(1e-3, 1e-3), swing_down=(1e-3, 1e-3),
                  thd=(1e-3, 1e-6), hd2=(1e-3, 1e-6), hd3=(1e-3, 1e-6),
-                 f_low=(1e-3, 0.0), f_high=(1e-3, 0.0), bandwidth=(1e-3, 0.0))
+                 f_low=(1e-3, 0.0), f_high=(1e-3, 0.0), bandwidth=(1e-3, 0.0),
+                 # At source.freq the noise is the same solve; the SNR's band
+                 # ends are the corners above, found to 1e-3 of a corner,
+                 # which moves the integral by well under 0.01 dB.
+                 en_total=EXACT, nf_db=(1e-9, 1e-9), snr_db=(0.0, 0.01))
 
 NEW_TOPOLOGIES = tuple(t for t in TOPOLOGIES if t not in ("common-emitter", "emitter-follower"))
 EVERY_EXTREME = {"common-emitter": (CUT_OFF_CE, SATURATED_CE), "emitter-follower": (CUT_OFF_EF_PNP, SATURATED_EF)}
@@ -83,7 +94,9 @@ def _designs(topology: str, drawn: list) -> list:
     return out
 
 
-def _compare(designs: list, got: dict) -> None:
+def _compare(designs: list, got: dict, noise: bool = False) -> None:
+    """Each row of ``got`` against analyse of its design; the noise figures
+    too with ``noise`` (analyse_many leaves them NaN otherwise)."""
     for row, d in enumerate(designs):
         try:
             want = analyse(d)
@@ -96,7 +109,10 @@ def _compare(designs: list, got: dict) -> None:
         assert got["region"][row] == want.region, row
         assert got["region2"][row] == want.region2, row
         unsolved_period = _period_unsolved(d)
-        for key in QUICK_FIGURES + LARGE_FIGURES + (FOLLOWER_FIGURES if want.two_transistors else ()):
+        if not noise:
+            assert all(math.isnan(got[k][row]) for k in NOISE_FIGURES)
+        for key in QUICK_FIGURES + LARGE_FIGURES + (FOLLOWER_FIGURES if want.two_transistors else ()) + (
+                NOISE_FIGURES if noise else ()):
             if key in ("thd", "hd2", "hd3") and unsolved_period:
                 # analyse takes the samples a Newton cut short left (their
                 # values depend on the batch they ran in); analyse_many says NaN.
@@ -143,7 +159,7 @@ def test_every_figure_agrees_with_analyse_over_varied_designs(drawn):
     # A cut-off and a saturated row ride in every batch, as do other shapes.
     extremes = [values for _, values in EVERY_EXTREME[topology]]
     batch = drawn_designs + _designs(topology, extremes)
-    _compare(batch, analyse_many(topology, design_values(batch)))
+    _compare(batch, analyse_many(topology, design_values(batch), noise=True), noise=True)
 
 
 @SETTINGS
@@ -156,8 +172,8 @@ def test_every_figure_agrees_with_analyse_for_the_newer_topologies(drawn):
     design of the topology riding in every batch."""
     topology, drawn_designs = drawn
     batch = drawn_designs + [default_design(topology)]
-    got = analyse_many(topology, design_values(batch))
-    _compare(batch, got)
+    got = analyse_many(topology, design_values(batch), noise=True)
+    _compare(batch, got, noise=True)
     if topology not in TWO_TRANSISTORS:
         assert all(np.isnan(got[k]).all() for k in FOLLOWER_FIGURES) and set(got["region2"]) == {""}
 

@@ -59,6 +59,13 @@ BOUNDARIES = [
     ("stage.rc", CB, 0.0, 1e-3, "greater than 0 Ω"),
     ("stage.cb", CB, -1e-15, 0.0, "greater than 0 F, or 0 or 'none'"),
     ("transistor2.beta", CEF, 0.0, 1e-3, "greater than 0"),
+    ("source.noise_low", CE, -1e-3, 0.0, "greater than 0 Hz, or 'none'"),
+    ("source.noise_high", EF, -1e-3, 1e-3, "greater than 0 Hz, or 'none'"),
+    ("transistor.rb", CE, -1e-3, 0.0, "at least 0 Ω"),
+    ("transistor.rb", EF, 1.000001e6, 1e6, "at most 1e+06 Ω"),
+    ("transistor.kf", CE, -1e-30, 0.0, "at least 0"),
+    ("transistor.af", CE, 0.0, 1e-3, "greater than 0"),
+    ("transistor.af", EF, 4.001, 4.0, "at most 4"),
 ]
 CHOICES = [
     ("transistor.polarity", "nnp", ("npn", "pnp"), "'npn' or 'pnp'"),

@@ -34,9 +34,9 @@ LABEL = {"ic": ("IC", "A"), "vce": ("VCE", "V"), "region": ("region", None),
          "av_loaded": ("av_loaded", "V/V"), "av_source": ("av_source", "V/V"), "rin": ("rin", "Ω"),
          "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"), "swing_down": ("swing_down", "V"),
          "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"), "p_supply": ("p_supply", "W"),
-         "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz")}
+         "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz"),
+         "nf_db": ("NF", "dB"), "snr_db": ("SNR", "dB")}
 
-#: The headline figures a design without specs records (no yield).
 #: The headline figures of a one-transistor stage without specs.
 FIGURES = tuple(k for k in HEADLINE if k not in ("yield", "ic2", "vce2", "p_transistor2"))
 
@@ -68,7 +68,7 @@ def read_back(key: str, text: str):
     if unit is None:
         return text
     number = text.split()[0]
-    if unit == "V/V" or unit == "°C":
+    if unit in ("V/V", "°C", "dB"):
         return float(number)
     if unit == "%":
         return float(number) / 100.0
@@ -81,6 +81,8 @@ def assert_shown(key, text, value):
         assert got == value, key
     elif key == "tj":
         assert abs(got - value) <= 0.051, key  # one decimal
+    elif key in ("nf_db", "snr_db"):
+        assert abs(got - value) <= 0.0051, key  # two decimals
     else:
         assert math.isclose(got, value, rel_tol=5.1e-3, abs_tol=1e-15), (key, text, value)  # 3 figures
 
@@ -125,6 +127,10 @@ def test_set_prints_every_figure_before_and_after_with_the_change(tmp_path, caps
             shown = rows[key][2]
             assert shown.endswith(" K")
             assert math.isclose(float(shown.split()[0]), a - b, rel_tol=5.1e-3, abs_tol=1e-3)
+        elif key in ("nf_db", "snr_db"):
+            # Already in dB: the change is the difference, to the shown 0.01 dB.
+            shown = rows[key][2]
+            assert shown.endswith(" dB") and abs(float(shown.split()[0]) - (a - b)) <= 0.0051, key
         elif key != "region":
             shown = rows[key][2]
             assert shown.endswith("%"), key

@@ -52,11 +52,13 @@ LOG_SPANS = {
     "parts.resistor_power": (0.05, 5.0),
     "bias.rf": (100.0, 10e6), "bias.rb": (100.0, 10e6), "stage.cb": (1e-24, 1.0),
     "transistor2.beta": (5.0, 1000.0),
+    "transistor.rb": (1.0, 1e4), "transistor.kf": (1e-20, 1e-12),
+    "source.noise_low": (0.1, 1e3), "source.noise_high": (1.5e3, 1e7),
 }
 LINEAR_SPANS = {
     "transistor.tj_max": (100.0, 200.0), "transistor.xti": (2.0, 4.0), "transistor.eg": (1.0, 1.2),
     "transistor.xtb": (0.0, 2.0), "environment.ambient": (-40.0, 85.0), "estimate.vbe": (0.5, 0.8),
-    "supply.vee": (-200.0, -0.5),
+    "supply.vee": (-200.0, -0.5), "transistor.af": (0.5, 2.0),
 }
 #: Keys that are not numbers: drawn from their choices, or left as they are.
 NOT_NUMBERS = {"name", "topology", "notes", "transistor.polarity", "parts.series"}
@@ -112,11 +114,11 @@ def strict_json(text: str) -> dict:
 def csv_rows(text: str) -> list:
     """The sweep's rows as floats (None for an empty cell); every cell written is finite."""
     lines = text.splitlines()
-    assert lines[0] == "freq_hz,gain_db,phase_deg"
+    assert lines[0] == "freq_hz,gain_db,phase_deg,noise_in_v_rthz"
     rows = []
     for line in lines[1:]:
         cells = line.split(",")
-        assert len(cells) == 3, line
+        assert len(cells) == 4, line
         row = [float(c) if c else None for c in cells]
         assert row[0] is not None, line  # the frequency is always there
         assert all(math.isfinite(x) for x in row if x is not None), line

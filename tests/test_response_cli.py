@@ -115,7 +115,7 @@ def test_csv_is_a_log_grid_over_whole_decades_bracketing_the_corners(demo, per_d
     extra = () if per_decade is None else ("--per-decade", str(per_decade))
     n = 20 if per_decade is None else per_decade  # README: 20 points a decade unless N
     header, rows = csv_rows(capsys, demo, *extra)
-    assert header == "freq_hz,gain_db,phase_deg"
+    assert header == "freq_hz,gain_db,phase_deg,noise_in_v_rthz"
     f = rows[:, 0]
     assert np.all(np.diff(f) > 0)
     # Log spacing, closed form: neighbours of an N-a-decade grid differ by 10**(1/N).

@@ -78,9 +78,16 @@ def readout(app) -> str:
     return region_text(app, "#readout-box")
 
 
+#: Textual's scrollbar glyphs: a readout taller than its box shows one in
+#: its last column, which is not part of any row.
+SCROLLBAR = "▁▂▃▄▅▆▇█▔▕▏▐▌"
+
+
 def readout_row(app, label: str) -> str:
-    """The readout line for one figure (labels are indented under group headings)."""
-    rows = [line.strip() for line in readout(app).splitlines() if line.strip().startswith(label + " ")]
+    """The readout line for one figure (labels are indented under group
+    headings), without the scrollbar's column."""
+    rows = [line.rstrip().rstrip(SCROLLBAR).strip() for line in readout(app).splitlines()
+            if line.strip().startswith(label + " ")]
     assert rows, f"no {label!r} row in the readout:\n{readout(app)}"
     return rows[0]
 

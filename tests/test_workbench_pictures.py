@@ -15,7 +15,7 @@ from model.analyses.figures import analyse
 from model.design.stage import with_values
 from model.design.units import format_si
 from tui.launch import make_app
-from tui.pictures import BODE, LOAD_LINES, PICTURES, TRANSFER
+from tui.pictures import BODE, LOAD_LINES, NOISE, PICTURES, TRANSFER
 
 BRAILLE = {chr(c) for c in range(0x2801, 0x2900)}
 
@@ -52,6 +52,11 @@ async def test_f6_steps_through_every_picture(preamp):
             await pilot.press("f6")
             await settle(pilot)
         assert seen == list(PICTURES) and app.picture_kind == BODE
+        await pilot.press("f6")
+        await settle(pilot)
+        assert app.picture_kind == NOISE
+        shown = picture(app)
+        assert "Input-referred noise" in shown and "e en" in shown and "r rs alone" in shown
         await pilot.press("f6")
         await settle(pilot)
         assert app.picture_kind == LOAD_LINES
@@ -98,7 +103,10 @@ async def test_narrow_screen_switches_between_readout_pictures_and_ledger(preamp
         await settle(pilot)
         assert showing() == {"pictures"} and app.picture_kind == BODE
         assert _has_curve(picture(app))
-        await pilot.press("f6")  # already showing: the next picture
+        await pilot.press("f6")  # already showing: the next picture (noise, then the load lines)
+        await settle(pilot)
+        assert app.picture_kind == NOISE
+        await pilot.press("f6")
         await settle(pilot)
         assert app.picture_kind == LOAD_LINES and "Q Q-point" in picture(app)
         await pilot.press("f3")

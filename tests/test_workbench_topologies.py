@@ -406,7 +406,8 @@ async def test_f6_shows_the_followers_load_lines_after_the_gain_transistors(tmp_
             await pilot.press("f6")
             await settle(pilot)
         # The first F6 at 80×24 only brings the pictures on show.
-        assert seen == [PICTURES[0], PICTURES[0], LOAD_LINES, FOLLOWER_LINES, *PICTURES[2:-1]]
+        at = PICTURES.index(LOAD_LINES)
+        assert seen == [PICTURES[0], *PICTURES[:at + 1], FOLLOWER_LINES, *PICTURES[at + 1:-1]]
         while app.picture_kind != FOLLOWER_LINES:
             await pilot.press("f6")
             await settle(pilot)

@@ -18,6 +18,7 @@ _SHOW = {
     "rin": ("rin", "Ω"), "rout": ("rout", "Ω"), "swing_up": ("swing_up", "V"),
     "swing_down": ("swing_down", "V"), "thd": ("thd", "%"), "p_transistor": ("p_transistor", "W"),
     "p_supply": ("p_supply", "W"), "tj": ("tj", "°C"), "f_low": ("f_low", "Hz"), "f_high": ("f_high", "Hz"),
+    "nf_db": ("NF", "dB"), "snr_db": ("SNR", "dB"),
     "ic2": ("q2 IC", "A"), "vce2": ("q2 VCE", "V"), "p_transistor2": ("q2 p_transistor", "W"),
     "yield": ("yield", "%"),
 }
@@ -35,6 +36,8 @@ def show_figure(key: str, value) -> str:
         return f"{100 * value:.3g} %"
     if unit == "°C":
         return f"{value:.1f} °C"
+    if unit == "dB":
+        return f"{value:.2f} dB"
     return format_si(value, unit)
 
 
@@ -71,6 +74,8 @@ def relative_change(before, after, key: str = "") -> str:
         return "unchanged" if same or before == after else "—"
     if key in _SHOW and _SHOW[key][1] == "gain" and before and after:
         return f"{signed(20.0 * math.log10(abs(after) / abs(before)), '+.2f')} dB"
+    if key in _SHOW and _SHOW[key][1] == "dB":  # already a ratio: its change is a difference
+        return f"{signed(after - before, '+.2f')} dB"
     if key in ("tj", "tj2"):  # a per cent of a Celsius reading means nothing
         return f"{signed(after - before, '+.3g')} K"
     if key == "yield":  # a change of a fraction, in percentage points

@@ -1,5 +1,6 @@
-"""The workbench's pictures as charts: Bode plot, load lines, transfer curve
-and the spread (in :mod:`tui.spread_picture`); the knob effects are a table
+"""The workbench's pictures as charts: Bode plot, noise (in
+:mod:`tui.noise_picture`), load lines, transfer curve and the spread (in
+:mod:`tui.spread_picture`); the knob effects are a table
 of text rows (:mod:`tui.sensitivity_text`), drawn by the pictures pane.
 
 Each builder turns the engine's results into :class:`~tui.chart.Chart`
@@ -22,14 +23,15 @@ from model.circuit.topologies import FOLLOWER
 from model.design.stage import TWO_TRANSISTORS, Design
 
 from .chart import Axis, Chart, Marker, Series, Spot
+from .noise_picture import noise_chart
 from .spread_picture import spread_chart
 
-BODE, LOAD_LINES, TRANSFER, SPREAD = "Bode", "load lines", "transfer", "spread"
+BODE, NOISE, LOAD_LINES, TRANSFER, SPREAD = "Bode", "noise", "load lines", "transfer", "spread"
 KNOB_EFFECTS = "knob effects"
 #: The follower's own load lines, for a stage with one.
 FOLLOWER_LINES = "q2 load lines"
 #: The pictures in the order F6 steps through them.
-PICTURES = (BODE, LOAD_LINES, TRANSFER, SPREAD, KNOB_EFFECTS)
+PICTURES = (BODE, NOISE, LOAD_LINES, TRANSFER, SPREAD, KNOB_EFFECTS)
 
 
 def pictures_for(design: Design) -> tuple:
@@ -52,6 +54,8 @@ def charts_for(kind: str, design: Design, fig: Figures, spread_key: str = "av_lo
         return ()
     if kind == SPREAD:
         return spread_chart(design, fig, spread_key)
+    if kind == NOISE:
+        return noise_chart(design, fig)
     if kind == FOLLOWER_LINES:
         return follower_chart(design_load_lines(design, FOLLOWER)) if design.topology in TWO_TRANSISTORS else ()
     curves = stage_curves(design, fig.emf_edges)

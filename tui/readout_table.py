@@ -26,6 +26,7 @@ ROWS = (
     ("headroom", (("wanted", "vout_wanted", "V"), ("swing_up", "swing_up", "V"),
                   ("swing_down", "swing_down", "V"))),
     ("distortion", (("thd", "thd", "%"),)),
+    ("noise", (("en_total/√Hz", "en_total", "V/√Hz"), ("NF", "nf_db", "dB"), ("SNR", "snr_db", "dB"))),
     ("dissipation", (("p_transistor", "p_transistor", "W"), ("p_supply", "p_supply", "W"),
                      ("tj", "tj", "°C"))),
 )
@@ -33,6 +34,9 @@ ROWS = (
 #: tj_max, which bounds its tj as it does the gain stage's.
 FOLLOWER_ROWS = ("follower q2", (("q2 region", "region2", None), ("q2 IC", "ic2", "A"), ("q2 VCE", "vce2", "V"),
                                  ("q2 p", "p_transistor2", "W"), ("q2 tj", "tj2", "°C")))
+#: The noise rows' keys: NaN there is a figure that does not exist once the
+#: sweep has reported.
+NOISE_KEYS = ("en_total", "nf_db", "snr_db")
 #: A cell for a stage that has no such figure (a one-transistor stage beside a two).
 ABSENT = "–"
 
@@ -48,6 +52,10 @@ def show(value, kind, compact: bool = False) -> str:
         return f"{value:+.4g}" if compact else f"{value:+.4g} ({float(decibels(value)):+.1f} dB)"
     if kind == "%":
         return f"{100 * value:.3g} %"
+    if kind == "dB":
+        return f"{value:.2f} dB"
+    if kind == "V/√Hz":  # the label carries the /√Hz, so the value fits its column
+        return "unbounded" if math.isinf(value) else format_si(value, "V")
     if kind == "°C":
         return f"{value:.1f} °C"
     if math.isinf(value):
@@ -63,6 +71,8 @@ def _cell(fig: Figures, key: str, value, kind, compact: bool) -> str:
     (its NaN would otherwise read as a sweep still running)."""
     if key in FOLLOWER_KEYS and not fig.two_transistors:
         return ABSENT
+    if key in NOISE_KEYS and fig.noise is not None and isinstance(value, float) and math.isnan(value):
+        return "none"  # computed, and does not exist (no NF at rs = 0, no SNR without a band)
     return show(value, kind, compact)
 
 

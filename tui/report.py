@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 import textwrap
 
+import numpy as np
+
 from model.analyses.figures import Figures
 from model.analyses.midband import decibels
 from model.design.stage import Design
@@ -72,6 +74,47 @@ def _follower_rows(fig: Figures, t) -> list:
     ]
 
 
+def _db_or_none(x: float) -> str:
+    return f"{x:.2f} dB" if math.isfinite(x) else NONE
+
+
+def noise_lines(design: Design, fig: Figures) -> list:
+    """The report's noise section: densities at source.freq, NF, the band's
+    integral and SNR, and the largest contributors."""
+    n = fig.noise
+    if n is None:
+        return []
+    at = _si(design.source.freq, "Hz")
+    band = (f"{_si(n.band[0], 'Hz')} – {_si(n.band[1], 'Hz')}" if math.isfinite(n.band[0])
+            else "none (no −3 dB band; set source.noise_low and noise_high)")
+    top = [f"{name} {100 * share:.0f} %" for name, share in n.contributors[:5] if share >= 0.005]
+    return [
+        "",
+        f"Noise, input-referred (ambient {design.environment.ambient:g} °C)",
+        f"  at {at:<30} en {_si(n.en, 'V')}/√Hz   in {_si(n.in_, 'A')}/√Hz",
+        f"  {'total with rs':<33}{_si(n.en_total, 'V')}/√Hz (rs {_si(design.source.rs, 'Ω')} alone "
+        f"{_si(n.spectrum[4][0] if len(n.spectrum[4]) else math.nan, 'V')}/√Hz)",
+        f"  {'noise figure':<33}{_db_or_none(n.nf_db)}; best {_db_or_none(n.nf_min_db)} at rs "
+        f"{_si(n.rs_opt, 'Ω')}",
+        f"  {'band':<33}{band}",
+        f"  {'integrated':<33}{_si(n.vn_in_rms, 'V', NONE)} rms; SNR of vpk {_db_or_none(n.snr_db)}",
+        *_packed(top or [NONE], f"  {'largest sources':<33}", 78),
+    ]
+
+
+def _packed(items: list, first: str, width: int) -> list:
+    """``items`` joined by ", " into lines of at most ``width``, never
+    breaking inside one (a name and its share stay together)."""
+    lines, line = [], first
+    for k, item in enumerate(items):
+        piece = item + ("," if k < len(items) - 1 else "")
+        if line.strip() and len(line) + 1 + len(piece) > width and line != first:
+            lines.append(line)
+            line = " " * len(first)
+        line += ("" if line.endswith(" ") or line == first else " ") + piece
+    return lines + [line]
+
+
 def _title(design: Design) -> str:
     return visible(design.name) or "(unnamed design)"
 
@@ -125,6 +168,7 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
         rows.append(f"  {label:<33}" + "   ".join(parts[i : i + 3]))
     rows += ["", "Frequency response of av_source (exact −3 dB points)"]
     rows += response_lines(design, fig)
+    rows += noise_lines(design, fig)
     rows += ["", "Warnings"]
     rows += [line for w in fig.warnings
              for line in textwrap.wrap(f"{w.code}: {w.message}", 78, initial_indent="  ",
@@ -200,9 +244,10 @@ def render_response(design: Design, fig: Figures, source: str, as_csv: bool) -> 
     """The sweep as CSV, or as a table under the corners."""
     r = fig.response
     mag, phase = r.magnitude_db(), r.phase_deg()
+    noise = fig.noise.spectrum[1] if fig.noise is not None else np.full(len(r.freq), math.nan)
     if as_csv:
-        rows = ["freq_hz,gain_db,phase_deg"]
-        rows += [f"{_cell(f)},{_cell(m)},{_cell(p)}" for f, m, p in zip(r.freq, mag, phase)]
+        rows = ["freq_hz,gain_db,phase_deg,noise_in_v_rthz"]
+        rows += [f"{_cell(f)},{_cell(m)},{_cell(p)},{_cell(n)}" for f, m, p, n in zip(r.freq, mag, phase, noise)]
         return "\n".join(rows) + "\n"
     rows = [f"{_title(design)} — av_source against frequency", f"file: {visible(source)}"]
     rows += response_lines(design, fig)

@@ -13,7 +13,7 @@ from .safe_text import visible
 
 #: Figures in the summary table, in the report's order; the others are in --json.
 TABLE = ("ic", "vce", "av_loaded", "av_source", "rin", "rout", "swing_up", "swing_down",
-         "thd", "p_transistor", "tj", "f_low", "f_high")
+         "thd", "p_transistor", "tj", "f_low", "f_high", "nf_db", "snr_db")
 #: Drivers listed per figure in the text.
 DRIVERS_SHOWN = 3
 

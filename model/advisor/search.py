@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from model.analyses.batch_figures import LARGE_FIGURES, QUICK_FIGURES, analyse_many
+from model.analyses.batch_figures import LARGE_FIGURES, NOISE_FIGURES, QUICK_FIGURES, analyse_many
 from model.analyses.figures import _KEYS, design_values
 from model.analyses.transfer import ACTIVE
 from model.design import eseries
@@ -40,7 +40,7 @@ TOLERANCE_RELATIVE = 1e-6
 BRACKET_RELATIVE = 1e-12
 MAX_STEPS = 80
 #: The figures a target may name: every numeric figure analyse_many gives.
-AIMABLE = tuple(k for k in SPEC_UNITS if k in QUICK_FIGURES + LARGE_FIGURES)
+AIMABLE = tuple(k for k in SPEC_UNITS if k in QUICK_FIGURES + LARGE_FIGURES + NOISE_FIGURES)
 
 
 class Unreachable(StageledgerError):
@@ -57,7 +57,7 @@ class Target:
 
     @property
     def large_signal(self) -> bool:
-        return self.figure in LARGE_FIGURES
+        return self.figure in LARGE_FIGURES + NOISE_FIGURES
 
     @property
     def tolerance(self) -> float:
@@ -230,7 +230,8 @@ class Engine:
         values.update({k: np.asarray(v, dtype=float) for k, v in columns.items()})
         self.rows += n
         large = self.target.large_signal if large_signal is None else large_signal
-        return analyse_many(self.design.topology, values, large_signal=large)
+        return analyse_many(self.design.topology, values, large_signal=large,
+                            noise=large and self.target.figure in NOISE_FIGURES)
 
     def miss(self, out: dict) -> np.ndarray:
         """The figure minus the target, in the target's scale; NaN where the

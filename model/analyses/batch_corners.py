@@ -33,7 +33,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from model.analyses.capacitance import DeviceCapacitance, device_capacitance, device_capacitors
+from model.analyses.capacitance import device_capacitance, device_capacitors
 from model.analyses.corner_search import _HALF_POWER_DB, _HIGHEST_DECADE, _LOWEST_DECADE, frequency_response
 from model.circuit.dense import solve_batched
 from model.circuit.linearised import FrequencySweep, small_signal
@@ -63,18 +63,22 @@ class BatchResponse:
     gain_at_freq: np.ndarray
 
 
+def with_capacitances(stage: StageCircuit, gm, ft, cmu, gm2=None) -> StageCircuit:
+    """The stage with every row's Cπ = gm/(2π·fT) − Cμ (floored at 0) and Cμ
+    across each transistor (gm2: the follower's gm, for a stage with one)."""
+    values = [(TRANSISTOR, np.maximum(gm / (2.0 * np.pi * ft) - cmu, 0.0), cmu)]
+    if gm2 is not None:
+        values.append((FOLLOWER, np.maximum(gm2 / (2.0 * np.pi * ft) - cmu, 0.0), cmu))
+    return replace(stage, net=stage.net.with_elements(*device_capacitors(stage, values)))
+
+
 def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband, signal_freq,
                   gm2=None) -> BatchResponse:
     """The corners of every row of a built stage at its converged ``op``, with
     Cπ = gm/(2π·fT) − Cμ (floored at 0) and Cμ across the transistor.
     gm (S), ft (Hz), cmu (F), midband av_source (V/V), signal_freq (Hz) per
     row; ``gm2`` (S) the follower's, for a stage with one."""
-    total = gm / (2.0 * np.pi * ft)
-    c_pi = np.maximum(total - cmu, 0.0)
-    values = [(TRANSISTOR, c_pi, cmu)]
-    if gm2 is not None:
-        values.append((FOLLOWER, np.maximum(gm2 / (2.0 * np.pi * ft) - cmu, 0.0), cmu))
-    full = replace(stage, net=stage.net.with_elements(*device_capacitors(stage, values)))
+    full = with_capacitances(stage, gm, ft, cmu, gm2)
     est_low, est_high = _estimates(full, op)
     at = _Response(full, op)
     reference = np.abs(midband)
@@ -102,7 +106,7 @@ def response_many(stage: StageCircuit, op: OperatingPoint, gm, ft, cmu, midband,
         followers = () if gm2 is None else (
             (FOLLOWER, device_capacitance(float(gm2[r]), float(ft[r]), float(cmu[r]))),)
         one = frequency_response(replace(stage, net=stage.net.take(np.array([r]))), op.take(np.array([r])),
-                                 DeviceCapacitance(float(c_pi[r]), float(cmu[r]), bool(total[r] < cmu[r])),
+                                 device_capacitance(float(gm[r]), float(ft[r]), float(cmu[r])),
                                  float(midband[r]), float(signal_freq[r]), followers=followers)
         f_low[r], f_high[r], gain_at_freq[r] = one.f_low, one.f_high, abs(one.gain_at_freq)
     return BatchResponse(f_low, f_high, gain_at_freq)

@@ -14,10 +14,11 @@ from dataclasses import replace
 
 import numpy as np
 
-from model.analyses.batch_corners import response_many
+from model.analyses.batch_corners import response_many, with_capacitances
 from model.analyses.batch_transfer import large_signal_many
 from model.analyses.figures import _KEYS, dc_midband
 from model.analyses.midband import device_small_signal
+from model.analyses.noise_figures import noise_many
 from model.analyses.power import dissipation
 from model.analyses.transfer import all_active, region_of
 from model.circuit.topologies import FOLLOWER, TRANSISTOR, build, shape_of
@@ -34,11 +35,15 @@ QUICK_FIGURES = (
 FOLLOWER_FIGURES = ("ic2", "ib2", "vbe2", "vce2", "gm2", "r_pi2", "ro2", "p_transistor2", "tj2")
 #: The figures computed only with large_signal (NaN without).
 LARGE_FIGURES = ("swing_up", "swing_down", "thd", "hd2", "hd3", "f_low", "f_high", "bandwidth", "gain_at_freq")
+#: The noise figures, computed only with ``noise=True`` (NaN without): a
+#: spread or search that does not look at them does not pay for them.
+NOISE_FIGURES = ("en_total", "nf_db", "snr_db")
 #: The region of a row with no operating point.
 UNSOLVED = "unsolved"
 
 
-def analyse_many(topology: str, values: dict, *, large_signal: bool = True) -> dict[str, np.ndarray]:
+def analyse_many(topology: str, values: dict, *, large_signal: bool = True,
+                 noise: bool = False) -> dict[str, np.ndarray]:
     """Every numeric figure of :func:`~model.analyses.figures.analyse` for N rows.
 
     ``values`` maps the keys of :func:`~model.analyses.figures.design_values`
@@ -62,17 +67,17 @@ def analyse_many(topology: str, values: dict, *, large_signal: bool = True) -> d
     n = arrays[0].shape[0]
     shapes = shape_of(topology, full)
     group = shapes @ (1 << np.arange(shapes.shape[1]))
-    names = QUICK_FIGURES + FOLLOWER_FIGURES + LARGE_FIGURES
+    names = QUICK_FIGURES + FOLLOWER_FIGURES + LARGE_FIGURES + NOISE_FIGURES
     groups = np.unique(group)
     if groups.size == 1:
-        return _group(topology, full, large_signal)
+        return _group(topology, full, large_signal, noise)
     out = {k: np.full(n, np.nan) for k in names}
     out["converged"] = np.zeros(n, dtype=bool)
     out["region"] = np.full(n, UNSOLVED, dtype=object)
     out["region2"] = np.full(n, "", dtype=object)
     for g in groups:
         rows = np.flatnonzero(group == g)
-        part = _group(topology, {k: v[rows] for k, v in full.items()}, large_signal)
+        part = _group(topology, {k: v[rows] for k, v in full.items()}, large_signal, noise)
         for k, v in part.items():
             out[k][rows] = v
     out["region"] = out["region"].astype(str)
@@ -80,7 +85,7 @@ def analyse_many(topology: str, values: dict, *, large_signal: bool = True) -> d
     return out
 
 
-def _group(topology: str, v: dict, large_signal: bool) -> dict:
+def _group(topology: str, v: dict, large_signal: bool, noise: bool) -> dict:
     """analyse_many on rows of one shape."""
     stage = build(topology, v)
     op, dev, mid = dc_midband(stage, v["source.rs"])
@@ -108,11 +113,11 @@ def _group(topology: str, v: dict, large_signal: bool) -> dict:
         region2 = np.where(ok, region_of(op.states[FOLLOWER].ic, op.junctions[:, k, 1]), UNSOLVED)
     else:
         region2 = np.full(batch, "")
-    for k in LARGE_FIGURES:
+    for k in LARGE_FIGURES + NOISE_FIGURES:
         out[k] = np.full(batch, np.nan)
     rows = np.flatnonzero(ok)
     if large_signal and rows.size:
-        _large(out, stage, op, v, rows, region)
+        _large(out, stage, op, v, rows, region, noise)
     out["converged"] = ok
     out["region"] = region
     out["region2"] = region2
@@ -131,7 +136,7 @@ def _follower(stage, op, power, v: dict) -> dict:
                 p_transistor2=p2, tj2=v["environment.ambient"] + p2 * v["transistor.theta_ja"])
 
 
-def _large(out: dict, stage, op, v: dict, rows, region) -> None:
+def _large(out: dict, stage, op, v: dict, rows, region, noise: bool) -> None:
     """Swing, distortion and the response of the converged ``rows`` into ``out``."""
     if rows.size < stage.net.batch:
         stage, op = replace(stage, net=stage.net.take(rows)), op.take(rows)
@@ -150,3 +155,23 @@ def _large(out: dict, stage, op, v: dict, rows, region) -> None:
     with np.errstate(invalid="ignore"):
         out["bandwidth"][rows] = resp.f_high - resp.f_low
     out["gain_at_freq"][rows] = resp.gain_at_freq
+    if noise:
+        _noise(out, with_capacitances(stage, out["gm"][rows], v["transistor.ft"], v["transistor.cmu"], gm2),
+               op, v, rows, resp)
+
+
+#: Rows of one noise solve: each holds BAND_POINTS complex matrices, so the
+#: memory stays a few tens of MB whatever the batch.
+_NOISE_ROWS = 128
+
+
+def _noise(out: dict, stage, op, v: dict, rows, resp) -> None:
+    """NOISE_FIGURES of the converged ``rows`` (``stage``/``op``/``v`` already
+    taken to them), in chunks of _NOISE_ROWS."""
+    for start in range(0, rows.size, _NOISE_ROWS):
+        part = np.arange(start, min(start + _NOISE_ROWS, rows.size))
+        sub = replace(stage, net=stage.net.take(part)) if part.size < stage.net.batch else stage
+        got, _, _ = noise_many(sub, op.take(part) if part.size < stage.net.batch else op,
+                               {k: x[part] for k, x in v.items()}, resp.f_low[part], resp.f_high[part])
+        for k in NOISE_FIGURES:
+            out[k][rows[part]] = got[k]

@@ -10,11 +10,12 @@ from typing import Sequence
 
 import numpy as np
 
-from model.analyses.capacitance import device_capacitance
+from model.analyses.capacitance import device_capacitance, with_device_capacitance
 from model.analyses.checks import stage_warnings
 from model.analyses.corner_search import POINTS_PER_DECADE, Response, frequency_response
 from model.analyses.hand import HandEstimate, hand_estimate
 from model.analyses.midband import decibels, device_small_signal, midband_figures
+from model.analyses.noise_figures import Noise, noise_figures
 from model.analyses.power import dissipation
 from model.analyses.transfer import LargeSignal, region_of, swing_and_distortion
 from model.analyses.unsolved import unsolved_message
@@ -33,6 +34,8 @@ _KEYS = (
     "transistor.xti", "transistor.eg", "transistor.xtb", "environment.ambient",
     "transistor.ft", "transistor.cmu", "transistor.theta_ja",  # the response and tj of analyse_many
     "transistor2.beta",
+    # The noise of analyse_many.
+    "source.noise_low", "source.noise_high", "transistor.rb", "transistor.kf", "transistor.af",
 )
 _KEY_PARTS = tuple(tuple(key.split(".")) for key in _KEYS)
 
@@ -130,6 +133,24 @@ class Figures:
     p_transistor2: float = math.nan
     tj2: float = math.nan
 
+    #: Noise figures (model.analyses.noise_figures), with the response.
+    noise: Noise | None = None
+
+    @property
+    def en_total(self) -> float:
+        """The total input-referred noise density at source.freq (V/√Hz); NaN without the sweep."""
+        return self.noise.en_total if self.noise is not None else math.nan
+
+    @property
+    def nf_db(self) -> float:
+        """The noise figure at source.rs and source.freq (dB); NaN without one."""
+        return self.noise.nf_db if self.noise is not None else math.nan
+
+    @property
+    def snr_db(self) -> float:
+        """The SNR of vpk over the noise band (dB); NaN without one."""
+        return self.noise.snr_db if self.noise is not None else math.nan
+
     @property
     def two_transistors(self) -> bool:
         return bool(self.region2)
@@ -162,6 +183,8 @@ class Figures:
             out["f_low_estimate"] = r.f_low_estimate
             out["f_high_estimate"] = r.f_high_estimate
             out["f_high_miller"] = r.f_high_miller
+        if self.noise is not None:
+            out["noise"] = self.noise.to_dict()
         return plain(out)
 
 
@@ -199,6 +222,8 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     resp = (frequency_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq,
                                per_decade=per_decade, followers=followers)
             if large_signal else None)
+    noise = (noise_figures(design, with_device_capacitance(nominal, caps, followers), op, resp.freq,
+                           resp.f_low, resp.f_high) if large_signal else None)
     power = dissipation(nominal, op)
     if follower:
         follower["p_transistor2"] = p2 = float(power.p_transistors[FOLLOWER][0])
@@ -238,7 +263,7 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
         ic_beta_half=ic_half, ic_beta_double=ic_double,
         kcl_residual=float(op.residual[0]), newton_iterations=op3.iterations,
         large_signal=large_signal, emf_edges=big.emf_edges,
-        swing_limits=big.limits if large_signal else ("", ""), **follower,
+        swing_limits=big.limits if large_signal else ("", ""), noise=noise, **follower,
     )
 
 

@@ -172,20 +172,30 @@ def _collector_feedback(d: Design, vt: float, top: float, bottom: float, ground:
     dc_load = [(rl, ground)] if d.stage.cout == 0 and math.isfinite(rl) else []
     vc_th, rc_th = _thevenin((d.stage.rc, top), *dc_load)
     ve_th, re_th = bottom, d.stage.re1 + d.stage.re2
+    rth = _par(d.bias.r2, rf)  # what the signal sees with the transistor off
+    if rb0 == 0:
+        # Without cin a source of 0 Ω holds the base at its 0 V: rf only
+        # loads the collector, and the emitter circuit alone sets IE.
+        return _held_base(d, vt, vb0, vc_th, rc_th, ve_th, re_th, rth)
     # Each voltage as a + b·IB: VB, the feedback current IF, and VC.
     g0 = 0.0 if math.isinf(rb0) else 1.0 / rb0
     vb_a, vb_b = vbe + ve_th, (beta + 1.0) * re_th
     if_a, if_b = (vb_a - vb0) * g0, 1.0 + vb_b * g0
     vc_a, vc_b = vb_a + if_a * rf, vb_b + if_b * rf
     ib = _ratio(vc_th - vc_a - if_a * rc_th, vc_b + (beta + if_b) * rc_th)
-    rth = _par(d.bias.r2, rf)  # what the signal sees with the transistor off
     if not ib > 0:
         return HandEstimate(0.0, vc_th - ve_th, math.inf, 0.0, 0.0, rth)
     if math.isinf(ib):
         return HandEstimate(math.inf, math.nan, 0.0, math.nan, math.nan, rth)
     ic, ie = beta * ib, (beta + 1.0) * ib
+    return _feedback_ac(d, vt, ic, ie, (vc_a + vc_b * ib) - (ve_th + ie * re_th))
+
+
+def _feedback_ac(d: Design, vt: float, ic: float, ie: float, vce: float) -> HandEstimate:
+    """The ac figures of collector feedback by Miller's theorem (see
+    :func:`_collector_feedback`), at the operating point ic, ie (A), vce (V)."""
+    beta, rf, rl = d.transistor.beta, d.bias.rf, d.load.rl
     re = vt / ie
-    vce = (vc_a + vc_b * ib) - (ve_th + ie * re_th)
     r_signal = _r_signal(d)
 
     def gain(r_load):
@@ -194,6 +204,24 @@ def _collector_feedback(d: Design, vt: float, top: float, bottom: float, ground:
     av_open, av_loaded = gain(math.inf), gain(rl)
     rin = _par(_par(beta * re + (beta + 1.0) * r_signal, d.bias.r2), rf / (1.0 + abs(av_loaded)))
     return HandEstimate(ic, vce, re, av_open, av_loaded, rin)
+
+
+def _held_base(d: Design, vt: float, vb: float, vc_th: float, rc_th: float, ve_th: float, re_th: float,
+               rth: float) -> HandEstimate:
+    """Collector feedback with the base held at ``vb`` (V) by the source:
+    IE = (VB − VBE − VE)/RE, and the collector node is RC's Thevenin
+    circuit with RF to the fixed base, VC = (VCTH/RCTH + VB/RF − IC)/(1/RCTH + 1/RF)."""
+    beta, rf = d.transistor.beta, d.bias.rf
+    ie = _ratio(vb - d.estimate.vbe - ve_th, re_th)
+    def collector(ic):
+        return (vc_th / rc_th + vb / rf - ic) / (1.0 / rc_th + 1.0 / rf)  # rc > 0 in this topology
+
+    if not ie > 0:
+        return HandEstimate(0.0, collector(0.0) - ve_th, math.inf, 0.0, 0.0, rth)
+    if math.isinf(ie):
+        return HandEstimate(math.inf, math.nan, 0.0, math.nan, math.nan, rth)
+    ic = ie * beta / (beta + 1.0)
+    return _feedback_ac(d, vt, ic, ie, collector(ic) - (ve_th + ie * re_th))
 
 
 def _ce_follower(d: Design, vt: float, top: float, bottom: float, ground: float,

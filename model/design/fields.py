@@ -136,6 +136,11 @@ FIELDS: dict[str, Field] = {
     "source.rs": _both("Ω", _range("Ω", 0, low_strict=False)),
     "source.vpk": _both("V", _range("V", 0, low_strict=False)),
     "source.freq": _both("Hz", _range("Hz", 0)),
+    # The noise band's ends; "none" takes the stage's own −3 dB corner.
+    "source.noise_low": _both("Hz", Rule("must be greater than 0 Hz, or 'none' for the stage's f_low",
+                                         low=0.0, low_strict=False, none_ok=True)),
+    "source.noise_high": _both("Hz", Rule("must be greater than 0 Hz, or 'none' for the stage's f_high",
+                                          low=0.0, low_strict=False, none_ok=True)),
     "load.rl": _both("Ω", _range("Ω", 0, open_ok=True)),
     "load.cl": _both("F", _fitted("F")),
     "transistor.polarity": _both("", _choice(POLARITIES)),
@@ -152,6 +157,10 @@ FIELDS: dict[str, Field] = {
     "transistor.xti": _both("", _range("")),
     "transistor.eg": _both("eV", _range("eV", 0, 5, high_strict=True)),
     "transistor.xtb": _both("", _range("")),
+    # Noise only: the signal network has no rb (model.analyses.noise).
+    "transistor.rb": _both("Ω", _range("Ω", 0, 1e6, low_strict=False)),
+    "transistor.kf": _both("", _range("", 0, low_strict=False)),
+    "transistor.af": _both("", _range("", 0, 4)),
     # The follower of ce-follower: the same type of part as the gain
     # transistor, so it shares every parameter but β, the one that spreads
     # from part to part.

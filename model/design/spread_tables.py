@@ -42,14 +42,19 @@ SPEC_UNITS = {
     "swing_up": "V", "swing_down": "V", "thd": "", "hd2": "", "hd3": "",
     "p_transistor": "W", "p_supply": "W", "i_supply": "A", "tj": "°C",
     "f_low": "Hz", "f_high": "Hz", "bandwidth": "Hz", "gain_at_freq": "",
+    # Noise (model.analyses.noise_figures): en_total in V/√Hz, the others in dB.
+    "en_total": "V", "nf_db": "", "snr_db": "",
 }
 #: Gains: their limits may be given in dB ("20 dB"), which bound 20·log10|gain|.
 GAINS = ("av_open", "av_loaded", "av_source", "gain_at_freq")
 
 
 def figure_unit(key: str) -> str:
-    """The unit a figure is shown in: SPEC_UNITS', with V/V for the gains."""
-    return "V/V" if key in GAINS else SPEC_UNITS.get(key, "")
+    """The unit a figure is shown in: SPEC_UNITS', with V/V for the gains,
+    V/√Hz for a noise density and dB for the noise figure and SNR."""
+    if key in GAINS:
+        return "V/V"
+    return {"en_total": "V/√Hz", "nf_db": "dB", "snr_db": "dB"}.get(key, SPEC_UNITS.get(key, ""))
 #: Fractions: their limits may be given in per cent ("1 %").
 FRACTIONS = ("thd", "hd2", "hd3")
 

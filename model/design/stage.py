@@ -109,10 +109,14 @@ class Stage:
 
 @dataclass(frozen=True)
 class Source:
-    """Signal source: rs output resistance Ω, vpk EMF amplitude V, freq Hz."""
+    """Signal source: rs output resistance Ω, vpk EMF amplitude V, freq Hz;
+    noise_low and noise_high (Hz) the band the noise is integrated over,
+    0 ("none") for the stage's own −3 dB corner."""
     rs: float
     vpk: float
     freq: float
+    noise_low: float = 0.0
+    noise_high: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -131,7 +135,8 @@ class Transistor:
     voltage V; i_s saturation current A at 25 °C; ft transition frequency Hz;
     cmu base–collector capacitance F; vceo V; pd_max W; theta_ja K/W;
     tj_max °C; xti saturation-current temperature exponent; eg band gap eV;
-    xtb β temperature exponent.
+    xtb β temperature exponent; rb base spreading resistance Ω (for noise
+    only); kf, af the base current's flicker-noise coefficient and exponent.
     """
 
     polarity: str
@@ -148,6 +153,9 @@ class Transistor:
     xti: float = 3.0
     eg: float = 1.11
     xtb: float = 1.5
+    rb: float = 100.0
+    kf: float = 0.0
+    af: float = 1.0
 
 
 @dataclass(frozen=True)
@@ -417,6 +425,10 @@ def _check_wiring(design: Design) -> None:
         raise DesignError("stage.cin", NONE, "with source.rs 0, the source would hold the emitter of a "
                           "common-base stage at 0 V across the base-emitter junction; fit cin or give "
                           "source.rs a resistance")
+    low, high = design.source.noise_low, design.source.noise_high
+    if low > 0 and high > 0 and not low < high:
+        raise DesignError("source.noise_high", high, f"must be above source.noise_low ({low:g} Hz): "
+                          "the noise band runs from low to high")
 
 
 def design_to_dict(design: Design) -> dict:

@@ -37,7 +37,7 @@ ACTIONS = (START, SET, UNDO, REDO, HAND_EDIT)
 #: ic2, vce2 and p_transistor2 (the follower's) only for a two-transistor stage.
 HEADLINE = ("ic", "vce", "region", "av_loaded", "av_source", "rin", "rout", "swing_up",
             "swing_down", "thd", "p_transistor", "p_supply", "tj", "f_low", "f_high",
-            "ic2", "vce2", "p_transistor2", "yield")
+            "ic2", "vce2", "p_transistor2", "nf_db", "snr_db", "yield")
 
 
 @dataclass(frozen=True)
@@ -77,8 +77,8 @@ def headline(fig: Figures, yield_: float | None = None) -> dict:
     """The HEADLINE figures of an analysis (and the yield, a fraction, when
     the design has specs), to six significant figures: the ledger is read by
     people, and the design itself can always be re-analysed.  A figure that
-    does not exist for this design (NaN: no −3 dB band, no follower) is left
-    out."""
+    does not exist for this design (NaN: no −3 dB band, no follower, no
+    noise figure at rs = 0) is left out."""
     values = {k: getattr(fig, k) for k in HEADLINE if k != "yield"}
     if yield_ is not None:
         values["yield"] = yield_

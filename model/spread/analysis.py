@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from model.analyses.batch_figures import analyse_many
+from model.analyses.batch_figures import NOISE_FIGURES, analyse_many
 from model.design.stage import Design
 from model.files.plain_json import plain
 from model.spread.builds import (
@@ -48,7 +48,8 @@ class Evaluated:
 
 
 #: Figures that need the swing, distortion and response sweeps.
-LARGE_SIGNAL = ("swing_up", "swing_down", "thd", "hd2", "hd3", "f_low", "f_high", "bandwidth", "gain_at_freq")
+LARGE_SIGNAL = ("swing_up", "swing_down", "thd", "hd2", "hd3", "f_low", "f_high", "bandwidth", "gain_at_freq",
+                *NOISE_FIGURES)
 
 
 def needs_sweeps(design: Design) -> bool:
@@ -56,19 +57,24 @@ def needs_sweeps(design: Design) -> bool:
     return any(s.key in LARGE_SIGNAL for s in design.spec)
 
 
-def evaluate(design: Design, spread: Spread, table: np.ndarray, large_signal: bool = True) -> Evaluated:
+def evaluate(design: Design, spread: Spread, table: np.ndarray, large_signal: bool = True,
+             noise: bool | None = None) -> Evaluated:
     """Every figure of each row of ``table`` (the design with those values);
-    without ``large_signal`` only the DC, midband and power figures."""
-    out = analyse_many(design.topology, engine_values(design, spread, table), large_signal=large_signal)
+    without ``large_signal`` only the DC, midband and power figures.  The
+    noise figures with ``noise``, by default where a spec bounds one."""
+    if noise is None:
+        noise = any(s.key in NOISE_FIGURES for s in design.spec)
+    out = analyse_many(design.topology, engine_values(design, spread, table), large_signal=large_signal,
+                       noise=noise and large_signal)
     figures = {k: np.asarray(v, dtype=float) for k, v in out.items() if k not in ("converged", "region", "region2")}
     return Evaluated(spread, table, figures, np.asarray(out["converged"], bool), np.asarray(out["region"]))
 
 
 def sample(design: Design, samples: int = DEFAULT_SAMPLES, seed: int = DEFAULT_SEED,
-           large_signal: bool = True) -> Evaluated:
+           large_signal: bool = True, noise: bool | None = None) -> Evaluated:
     """``samples`` builds of ``design`` drawn with ``seed``, evaluated."""
     spread = spread_of(design)
-    return evaluate(design, spread, draw(spread, samples, seed), large_signal)
+    return evaluate(design, spread, draw(spread, samples, seed), large_signal, noise)
 
 
 @dataclass(frozen=True)
@@ -235,7 +241,7 @@ class SpreadReport:
 
 def spread_report(design: Design, samples: int = DEFAULT_SAMPLES, seed: int = DEFAULT_SEED) -> SpreadReport:
     """Monte Carlo of ``samples`` builds drawn with ``seed``, and everything derived."""
-    ev = sample(design, samples, seed)
+    ev = sample(design, samples, seed, noise=True)  # the report shows the noise figures' spread
     summaries, shares, fits = {}, {}, {}
     for key, values in ev.figures.items():
         ok = usable(key, values, ev.active)

@@ -1,0 +1,34 @@
+"""The Noise picture draws the engine's own spectrum, lettered for a
+terminal without colour."""
+
+import numpy as np
+from test_noise import _spectrum  # noqa: E402  (the engine's spectrum, computed independently of the picture)
+
+from model import analyse, read_design
+from model.design.stage import default_design, with_values
+from tui.chart import render_stack
+from tui.pictures import NOISE, PICTURES, charts_for
+
+
+def test_the_noise_picture_draws_the_spectrum_with_its_letters():
+    import pathlib
+
+    d = read_design(pathlib.Path(__file__).resolve().parents[1] / "saved_designs" / "geophone_preamp.toml")
+    fig = analyse(d)
+    (chart,) = charts_for(NOISE, d, fig)
+    assert chart.x.log and chart.y.log and chart.y.unit == "V/√Hz"
+    total = chart.series[0]
+    ns, _, _ = _spectrum(d, total.x)
+    np.testing.assert_allclose(total.y, ns.total[0], rtol=1e-9)
+    assert [s.mark for s in chart.series] == [None, "e", "i", "r"]
+    text = render_stack((chart,), 78, 20)
+    drawn = text if isinstance(text, str) else "\n".join(map(str, text))
+    for words in ("e en", "i in·rs", "r rs alone", "B noise band", "F signal"):
+        assert words in drawn, words
+    assert NOISE in PICTURES
+
+
+def test_without_source_resistance_the_floor_and_in_rs_are_left_out():
+    d = with_values(default_design(), {"source.rs": 0.0})
+    (chart,) = charts_for(NOISE, d, analyse(d))
+    assert [s.mark for s in chart.series] == [None, "e"]
