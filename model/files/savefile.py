@@ -28,6 +28,7 @@ import os
 import re
 import secrets
 import socket
+import stat
 import time
 from dataclasses import dataclass
 
@@ -217,10 +218,7 @@ class DesignLock:
 
     def acquire(self) -> "DesignLock":
         name = lock_path(self.path)
-        try:
-            fd = os.open(name, os.O_RDWR | os.O_CREAT, 0o666)
-        except OSError as err:
-            raise SaveError(self.path, f"cannot create the lock file {name}: {_reason(err)}") from None
+        fd = _open_lock_file(self.path, name)
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -251,6 +249,51 @@ class DesignLock:
 
     def __exit__(self, *exc) -> None:
         self.release()
+
+
+def _open_lock_file(path: str, name: str) -> int:
+    """A descriptor on the lock file ``name`` of ``path``, created if missing.
+
+    The lock file is truncated and rewritten, so a symbolic link or a second
+    hard link planted at its name would let that write land on another file
+    (or create one where a dangling link points).  ``O_NOFOLLOW`` refuses a
+    link as the last component, ``O_NONBLOCK`` keeps a FIFO planted there from
+    blocking the open, and the check on the descriptor (not the name, which
+    could be swapped in between) refuses anything but a regular file with
+    one name.
+    """
+    flags = os.O_RDWR | os.O_CREAT | os.O_NOFOLLOW | os.O_CLOEXEC | os.O_NONBLOCK
+    try:
+        # Checked before opening too, so that no device planted there is ever opened.
+        mode = os.lstat(name).st_mode
+        if stat.S_ISLNK(mode):
+            raise SaveError(path, _not_plain(name, "is a symbolic link"))
+        if not stat.S_ISREG(mode):
+            raise SaveError(path, _not_plain(name, "is not a regular file"))
+    except FileNotFoundError:
+        pass
+    except OSError as err:
+        raise SaveError(path, f"cannot check the lock file {name}: {_reason(err)}") from None
+    try:
+        fd = os.open(name, flags, 0o666)
+    except OSError as err:
+        if err.errno == errno.ELOOP:  # a link put there since the check
+            raise SaveError(path, _not_plain(name, "is a symbolic link")) from None
+        raise SaveError(path, f"cannot create the lock file {name}: {_reason(err)}") from None
+    info = os.fstat(fd)
+    problem = None
+    if not stat.S_ISREG(info.st_mode):
+        problem = "is not a regular file"
+    elif info.st_nlink > 1:
+        problem = "has another name (a hard link), so writing it would change another file"
+    if problem:
+        os.close(fd)
+        raise SaveError(path, _not_plain(name, problem))
+    return fd
+
+
+def _not_plain(name: str, problem: str) -> str:
+    return f"the lock file {name} {problem}; remove it, and the next command makes a plain one"
 
 
 def _read_holder(fd: int) -> dict:
