@@ -7,6 +7,7 @@ bytes a real subprocess wrote, never at the tool's own account of it.
 
 from __future__ import annotations
 
+import fcntl
 import os
 import pathlib
 import shutil
@@ -15,7 +16,7 @@ import sys
 
 import pytest
 
-from model.files.savefile import SaveError
+from model.files.savefile import LockHeld, SaveError
 from model.files.session import DesignSession
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
@@ -99,3 +100,19 @@ def test_a_plain_lock_file_still_works(tmp_path):
     lock = tmp_path / "design.toml.lock"
     assert lock.is_file() and not lock.is_symlink()
     assert stageledger("set", path, "stage.rc=12k").returncode == 0  # the existing lock file is reused
+
+
+# -- item 9: a holder that has not written its details yet --------------------------------------
+
+def test_a_holder_that_has_not_written_its_details_is_named_as_starting(tmp_path):
+    path = copy_demo(tmp_path)
+    lock = tmp_path / "design.toml.lock"
+    lock.write_bytes(b"")  # the holder has taken the flock but not written pid and host yet
+    with open(lock, "rb") as held:
+        fcntl.flock(held, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        with pytest.raises(LockHeld) as info:
+            DesignSession(str(path))
+        assert "another stageledger (starting)" in str(info.value)
+        assert "?" not in str(info.value)
+        err = assert_one_line_refusal(stageledger("set", path, "stage.rc=10k"))
+        assert "another stageledger (starting)" in err and "pid ?" not in err

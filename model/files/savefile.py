@@ -51,10 +51,18 @@ class LockHeld(StageledgerError):
     def __init__(self, path: str, holder: dict):
         self.path = path
         self.holder = holder
-        who = f"pid {holder.get('pid', '?')} on {holder.get('host', '?')}"
-        since = holder.get("since")
-        when = f" since {since}" if since else ""
-        super().__init__(f"{path}: being edited by {who}{when}; open it read-only, or wait")
+        super().__init__(f"{path}: being edited by {_holder_text(holder)}; open it read-only, or wait")
+
+
+def _holder_text(holder: dict) -> str:
+    """Who holds the lock, from the details it wrote; the text is the file's
+    own (callers that print it escape it, as they do all file text)."""
+    if "pid" not in holder:
+        # The holder takes the flock first and writes its details just after.
+        return "another stageledger (starting)"
+    where = f" on {holder['host']}" if "host" in holder else ""
+    since = f" since {holder['since']}" if holder.get("since") else ""
+    return f"pid {holder['pid']}{where}{since}"
 
 
 @dataclass(frozen=True)
