@@ -8,8 +8,10 @@ bytes a real subprocess wrote, never at the tool's own account of it.
 from __future__ import annotations
 
 import fcntl
+import json
 import os
 import pathlib
+import re
 import shutil
 import subprocess
 import sys
@@ -116,3 +118,89 @@ def test_a_holder_that_has_not_written_its_details_is_named_as_starting(tmp_path
         assert "?" not in str(info.value)
         err = assert_one_line_refusal(stageledger("set", path, "stage.rc=10k"))
         assert "another stageledger (starting)" in err and "pid ?" not in err
+
+
+# -- item 6: control characters never reach the terminal raw ------------------------------------
+
+#: Erase the display (ECMA-48 ED, section 8.3.29), ring the bell, and a newline.
+HOSTILE = "a\x1b[2J b\x07 c\nd"
+SHOWN = "a\\x1b[2J b\\x07 c\\nd"  # the same text as tui/safe_text.py `visible` writes it
+#: Characters a terminal acts on (ECMA-48 C0 and C1 sets, and DEL); newline ends the output's own lines.
+RAW_CONTROL = re.compile("[\x00-\x09\x0b-\x1f\x7f-\x9f]")
+TOML_HOSTILE = "a\\u001b[2J b\\u0007 c\\nd"  # HOSTILE written as a TOML basic string
+
+
+def assert_shown_escaped(proc: subprocess.CompletedProcess, stream: str = "stdout") -> str:
+    out, err = proc.stdout.decode(), proc.stderr.decode()
+    for text in (out, err):
+        found = RAW_CONTROL.search(text)
+        assert found is None, repr(found.group())
+    text = out if stream == "stdout" else err
+    assert SHOWN in text, text
+    return text
+
+
+@pytest.fixture
+def noted(tmp_path) -> pathlib.Path:
+    """A design whose change notes and whose `notes` hold the hostile text, set from the command line."""
+    path = copy_demo(tmp_path)
+    assert stageledger("set", path, "stage.rc=10k", "--note", HOSTILE).returncode == 0
+    assert stageledger("set", path, f"notes={HOSTILE}").returncode == 0
+    return path
+
+
+def test_set_shows_a_note_and_notes_escaped(tmp_path):
+    path = copy_demo(tmp_path)
+    assert_shown_escaped(stageledger("set", path, "stage.rc=10k", "--note", HOSTILE))
+    assert_shown_escaped(stageledger("set", path, f"notes={HOSTILE}", "--dry-run"))
+    assert_shown_escaped(stageledger("set", path, f"notes={HOSTILE}"))
+
+
+def test_history_shows_notes_from_the_file_escaped(noted):
+    # The notes are in the file as TOML escapes; read back they are the raw characters again.
+    assert TOML_HOSTILE in noted.read_text(encoding="utf-8")
+    out = assert_shown_escaped(stageledger("history", noted))
+    assert f"note: {SHOWN}" in out
+
+
+def test_diff_shows_a_changed_note_escaped(noted):
+    assert_shown_escaped(stageledger("diff", f"{noted}@1", noted))
+
+
+@pytest.mark.parametrize("body", [
+    f'["st{TOML_HOSTILE}age"]\nrc = 1\n',          # a table name
+    f'[stage]\n"r{TOML_HOSTILE}c" = 1\n',          # a key name in a table
+    f'"n{TOML_HOSTILE}ame" = 1\n',                 # a key name at the top level
+], ids=["table", "key", "top-level key"])
+def test_unknown_names_in_a_file_are_refused_escaped_in_one_line(tmp_path, body):
+    path = tmp_path / "design.toml"
+    path.write_text("format = 1\n" + body, encoding="utf-8")
+    for command in ("report", "history", "set"):
+        args = (command, path, "stage.rc=10k") if command == "set" else (command, path)
+        proc = stageledger(*args)
+        assert_one_line_refusal(proc)
+        assert_shown_escaped(proc, "stderr")
+
+
+def test_unknown_key_and_bad_arguments_on_the_command_line_are_refused_escaped(tmp_path):
+    path = copy_demo(tmp_path)
+    for args in (("set", path, f"stage.r{HOSTILE}c=1"),
+                 ("set", path, f"stage.rc=1{HOSTILE}"),
+                 ("report", path, HOSTILE),          # argparse: "unrecognized arguments: ..."
+                 ("history", path, "--json", HOSTILE)):
+        proc = stageledger(*args)
+        assert_one_line_refusal(proc)
+        assert_shown_escaped(proc, "stderr")
+
+
+def test_the_lock_holders_text_is_shown_escaped_on_one_line(tmp_path):
+    path = copy_demo(tmp_path)
+    lock = tmp_path / "design.toml.lock"
+    # Whatever a lock file holds is only text: here a pid and host with ESC, BEL and a newline.
+    lock.write_text(json.dumps({"pid": f"1{HOSTILE}", "host": f"h{HOSTILE}", "since": HOSTILE}), encoding="utf-8")
+    with open(lock, "rb") as held:
+        fcntl.flock(held, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        proc = stageledger("set", path, "stage.rc=10k")
+    err = assert_one_line_refusal(proc)
+    assert_shown_escaped(proc, "stderr")
+    assert f"pid 1{SHOWN} on h{SHOWN}" in err

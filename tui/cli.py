@@ -22,7 +22,8 @@ from .safe_text import visible
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # one line and status 2, as for a bad file
-        self.exit(2, f"stageledger: {message}\n")
+        # argparse quotes some arguments raw ("unrecognized arguments: ..."): escaped, as everywhere.
+        self.exit(2, f"stageledger: {visible(message)}\n")
 
 
 def _parser() -> argparse.ArgumentParser:
