@@ -18,6 +18,7 @@ import sys
 
 import pytest
 
+from model.files.designfile import read_design
 from model.files.savefile import LockHeld, SaveError
 from model.files.session import DesignSession
 
@@ -36,7 +37,8 @@ def stageledger(*args, **kwargs) -> subprocess.CompletedProcess:
     """The command as a user runs it: a new interpreter importing this tree."""
     env = dict(os.environ)
     env["PYTHONPATH"] = str(ROOT) + os.pathsep + env.get("PYTHONPATH", "")
-    kwargs.setdefault("capture_output", True)
+    if "stdout" not in kwargs:
+        kwargs["capture_output"] = True
     return subprocess.run([sys.executable, "-m", "tui", *map(str, args)], cwd=ROOT, env=env,
                           timeout=120, **kwargs)
 
@@ -204,3 +206,47 @@ def test_the_lock_holders_text_is_shown_escaped_on_one_line(tmp_path):
     err = assert_one_line_refusal(proc)
     assert_shown_escaped(proc, "stderr")
     assert f"pid 1{SHOWN} on h{SHOWN}" in err
+
+
+# -- item 7: where the output goes ---------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def long_history(tmp_path_factory) -> pathlib.Path:
+    """A design whose `history` prints far more than a pipe holds (64 KiB on Linux, pipe(7))."""
+    path = copy_demo(tmp_path_factory.mktemp("long"))
+    with DesignSession(str(path)) as session:
+        for n in range(60):
+            session.commit({"stage.rc": f"{8200 + 10 * (n + 1)}"}, f"step {n}")
+    return path
+
+
+def test_a_reader_that_stops_after_one_line_is_no_error(long_history):
+    """`stageledger history F | head -1`: status 0 and nothing on stderr, not even
+    the interpreter's "Exception ignored" from its last flush."""
+    env = dict(os.environ)
+    env["PYTHONPATH"] = str(ROOT) + os.pathsep + env.get("PYTHONPATH", "")
+    for args in (("history", long_history), ("history", long_history, "--json"), ("report", long_history)):
+        proc = subprocess.Popen([sys.executable, "-m", "tui", *map(str, args)], cwd=ROOT, env=env,
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        first = proc.stdout.readline()
+        proc.stdout.close()  # as head does after its one line
+        err = proc.stderr.read().decode()
+        proc.stderr.close()
+        assert proc.wait(timeout=120) == 0, err
+        assert first and err == "", err
+
+
+def test_a_full_disk_on_stdout_exits_2_with_one_line(long_history, tmp_path):
+    """`> /dev/full`: every write fails with ENOSPC (the Linux full(4) device)."""
+    if not os.path.exists("/dev/full"):
+        pytest.skip("no /dev/full on this system")
+    path = tmp_path / "design.toml"
+    shutil.copyfile(long_history, path)
+    for args in (("history", path), ("report", path), ("report", path, "--json"), ("--help",),
+                 ("set", path, "stage.rc=10k")):
+        with open("/dev/full", "wb") as full:
+            proc = stageledger(*args, stdout=full, stderr=subprocess.PIPE)
+        err = assert_one_line_refusal(proc)
+        assert "could not be written" in err and "no space left" in err
+    # The output failed, not the save: the change `set` made is on disk.
+    assert read_design(path).stage.rc == 10e3  # "10k" is 10 kΩ exactly (IEC 60062 letter code)
