@@ -250,3 +250,91 @@ def test_a_full_disk_on_stdout_exits_2_with_one_line(long_history, tmp_path):
         assert "could not be written" in err and "no space left" in err
     # The output failed, not the save: the change `set` made is on disk.
     assert read_design(path).stage.rc == 10e3  # "10k" is 10 kΩ exactly (IEC 60062 letter code)
+
+
+# -- item 8: every valid file gets a report, every invalid one exit 2 in one line ---------------
+
+def with_line(table: str, key: str, value: str) -> str:
+    """The demo's text with ``table.key`` set to ``value`` (TOML), as a hand edit would write it."""
+    head, rest = GEOPHONE.read_text(encoding="utf-8").split(f"[{table}]\n", 1)
+    body, sep, tail = rest.partition("\n[")
+    lines = [line for line in body.split("\n") if line.split(" = ")[0] != key]
+    return f"{head}[{table}]\n{key} = {value}\n" + "\n".join(lines) + sep + tail
+
+
+def assert_reported(proc: subprocess.CompletedProcess) -> None:
+    """Exit 0 and nothing at all on stderr: no numpy warning, no traceback."""
+    assert proc.returncode == 0, proc.stderr.decode()
+    assert proc.stderr == b"", proc.stderr.decode()
+    assert proc.stdout
+
+
+@pytest.mark.parametrize("key, value", [("cin", "1e-30"), ("cout", "1e-30"), ("ce", "1e-30")])
+def test_a_tiny_capacitor_still_gets_a_report_and_a_response(tmp_path, key, value):
+    # 1e-30 F is valid (> 0): its corner lies far above any sweep, which once gave
+    # "Number of samples, -219, must be non-negative" (exit 3).
+    path = tmp_path / "design.toml"
+    path.write_text(with_line("stage", key, value), encoding="utf-8")
+    for command in ("report", "response"):
+        assert_reported(stageledger(command, path))
+
+
+@pytest.mark.parametrize("lines", [
+    "a" + ".a" * 999 + " = 1\n",                     # a 1,000-part dotted key at the top level
+    "[stage]\n" + "rc" + ".x" * 999 + " = 1\n",      # and inside a table
+    "[[history]]\nafter" + ".x" * 999 + " = 1\n",    # and inside a history entry
+], ids=["top", "table", "history"])
+def test_a_thousand_level_dotted_key_is_refused_in_one_line(tmp_path, lines):
+    path = tmp_path / "design.toml"
+    path.write_text("format = 1\n" + lines, encoding="utf-8")
+    before = path.read_bytes()
+    for args in (("report", path), ("history", path), ("set", path, "stage.rc=10k")):
+        err = assert_one_line_refusal(stageledger(*args))
+        assert "nested" in err and "RecursionError" not in err
+    assert path.read_bytes() == before
+
+
+# (key, a value past the new bound, refused; the bound itself, accepted). The
+# refused values are the ones that overflowed or underflowed numpy (warnings on
+# stderr, or exit 3); the bounds are documented in README's key table.
+BOUNDS = [
+    ("transistor", "beta_r", "5e-324", "0.001"),
+    ("transistor", "beta", "5e-324", "0.001"),
+    ("transistor", "va", "5e-324", "0.001"),
+    ("transistor", "i_s", "5e-324", "1e-30"),
+    ("transistor", "ft", "5e-324", "1.0"),
+    ("stage", "cin", "1e15", "1000.0"),
+    ("stage", "cout", "1e15", "1000.0"),
+    ("stage", "ce", "1e300", "1000.0"),
+    ("stage", "rc", "1e300", "1e15"),
+    ("source", "vpk", "1e300", "1000.0"),
+]
+
+
+@pytest.mark.parametrize("table, key, refused, accepted", BOUNDS, ids=[f"{t}.{k}" for t, k, *_ in BOUNDS])
+def test_a_meaningless_value_is_refused_in_one_line_and_its_bound_reported(tmp_path, table, key, refused, accepted):
+    path = tmp_path / "design.toml"
+    path.write_text(with_line(table, key, refused), encoding="utf-8")
+    err = assert_one_line_refusal(stageledger("report", path))
+    assert f"{table}.{key}" in err and ("at least" in err or "at most" in err), err
+    path.write_text(with_line(table, key, accepted), encoding="utf-8")
+    proc = stageledger("report", path)
+    # At the bound the design may have no operating point (a refusal in one
+    # line, exit 2), but never a warning, a traceback or an internal error.
+    if proc.returncode == 0:
+        assert_reported(proc)
+    else:
+        assert_one_line_refusal(proc)
+
+
+@pytest.mark.parametrize("topology, key, refused", [
+    ("common-base", "stage.cin", "1e15"),               # once exit 3: a NaN phase at the corners
+    ("emitter-follower-split", "bias.rb", "1e-300"),     # once exit 3 as well
+])
+def test_other_topologies_refuse_the_values_that_broke_them(tmp_path, topology, key, refused):
+    path = tmp_path / "design.toml"
+    assert stageledger("new", path, "--topology", topology).returncode == 0
+    before = path.read_bytes()
+    err = assert_one_line_refusal(stageledger("set", path, f"{key}={refused}"))
+    assert key in err
+    assert path.read_bytes() == before
