@@ -13,6 +13,7 @@ import os
 import pathlib
 import re
 import shutil
+import stat
 import subprocess
 import sys
 
@@ -338,3 +339,49 @@ def test_other_topologies_refuse_the_values_that_broke_them(tmp_path, topology, 
     err = assert_one_line_refusal(stageledger("set", path, f"{key}={refused}"))
     assert key in err
     assert path.read_bytes() == before
+
+
+# -- item 5: a design file that is a link, or read-only ------------------------------------------
+
+def test_a_linked_design_is_saved_through_to_its_target_which_keeps_its_mode(tmp_path):
+    real = tmp_path / "real"
+    real.mkdir()
+    target = copy_demo(real)
+    target.chmod(0o640)  # not what the umask would give a new file (0o644 under the usual 022)
+    link = tmp_path / "link.toml"
+    link.symlink_to(target)
+    proc = stageledger("set", link, "stage.rc=10k")
+    assert proc.returncode == 0, proc.stderr.decode()
+    assert link.is_symlink() and os.readlink(link) == str(target)
+    assert read_design(target).stage.rc == 10e3  # "10k" is 10 kΩ exactly (IEC 60062 letter code)
+    assert stat.S_IMODE(os.stat(target).st_mode) == 0o640
+    # The save's temporaries were made beside the target and none is left, in either folder.
+    assert [n for n in os.listdir(real) if n.endswith(".tmp")] == []
+    assert [n for n in os.listdir(tmp_path) if n.endswith(".tmp")] == []
+    # One lock for the design, whichever name it is opened by.
+    assert (real / "design.toml.lock").is_file() and not (tmp_path / "link.toml.lock").exists()
+
+
+def test_a_save_keeps_a_mode_the_umask_would_change(tmp_path):
+    path = copy_demo(tmp_path)
+    path.chmod(0o664)
+    proc = stageledger("set", path, "stage.rc=10k", umask=0o022)  # which alone would make a new file 0o644
+    assert proc.returncode == 0, proc.stderr.decode()
+    assert stat.S_IMODE(os.stat(path).st_mode) == 0o664
+
+
+@pytest.mark.parametrize("via_link", [False, True], ids=["file", "link"])
+def test_a_read_only_design_is_refused_and_left_as_it_was(tmp_path, via_link):
+    # Tests run as root, whom no EACCES stops: the refusal must come from the mode bits.
+    path = copy_demo(tmp_path)
+    path.chmod(0o444)
+    before = path.read_bytes()
+    name = path
+    if via_link:
+        name = tmp_path / "link.toml"
+        name.symlink_to(path)
+    err = assert_one_line_refusal(stageledger("set", name, "stage.rc=10k"))
+    assert "read-only" in err and "0444" in err
+    assert path.read_bytes() == before
+    assert stat.S_IMODE(os.stat(path).st_mode) == 0o444
+    assert [n for n in os.listdir(tmp_path) if n.endswith(".tmp")] == []

@@ -114,22 +114,38 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
     ``seen`` is the fingerprint taken when the file was read; if the file has
     changed since, nothing is written.  With ``create`` the file must not
     exist yet.  Raises SaveError, leaving the original byte-identical.
+
+    A symbolic link is written through: the link's target gets the new
+    bytes (the temporary is made in the target's folder, so the rename stays
+    on its file system) and the link stays a link.  The file keeps its mode
+    and, where the process may set it, its owner; a file without its owner's
+    write bit (mode 444) is refused rather than replaced.
     """
-    folder = os.path.dirname(os.path.abspath(path))
     if create:
         if os.path.lexists(path):
             raise SaveError(path, "the file already exists; choose another name")
-    elif not unchanged_since(path, seen):
-        raise SaveError(path, "the file changed on disk since it was read; "
-                              "reload it, or save your change to another file")
-    try:
-        mode = os.stat(path).st_mode & 0o7777
-    except FileNotFoundError:
-        mode = 0o666
-    tmp = _temp_name(path)
+        target, info = os.path.abspath(path), None
+    else:
+        target = os.path.realpath(path)
+        if not unchanged_since(target, seen):
+            raise SaveError(path, "the file changed on disk since it was read; "
+                                  "reload it, or save your change to another file")
+        try:
+            info = os.stat(target)
+        except FileNotFoundError:
+            info = None  # gone since it was read: unchanged_since allowed that only for seen=None
+        except OSError as err:
+            raise SaveError(path, _reason(err)) from None
+        if info is not None:
+            _refuse_unwritable(path, target, info)
+    folder = os.path.dirname(target)
+    mode = 0o666 if info is None else info.st_mode & 0o7777
+    tmp = _temp_name(target)
     fd = backup = None
     try:
         fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
+        if info is not None:
+            _keep_owner_and_mode(fd, info)
         view = memoryview(data)
         while view:
             written = os.write(fd, view)
@@ -142,20 +158,20 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
         if not create:
             # A second name for the original, so that it can be put back if the
             # rename cannot be made durable: a SaveError promises the file as it was.
-            backup = _temp_name(path)
+            backup = _temp_name(target)
             try:
-                os.link(path, backup, follow_symlinks=False)
+                os.link(target, backup, follow_symlinks=False)
             except OSError:
                 backup = None  # a file system without hard links: no way back, as before
-        os.replace(tmp, path)
+        os.replace(tmp, target)
         tmp = None
         try:
             _fsync_dir(folder)
         except OSError:
             if create:
-                os.unlink(path)
+                os.unlink(target)
             elif backup is not None:
-                os.replace(backup, path)
+                os.replace(backup, target)
                 backup = None
             raise
     except OSError as err:
@@ -173,6 +189,33 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
                 except OSError:
                     pass
     return Fingerprint.of(path, data)
+
+
+def _refuse_unwritable(path: str, target: str, info: os.stat_result) -> None:
+    """SaveError if the file may not be written, though a rename could still
+    replace it: the rename needs only the folder's permission, and root's
+    needs none, so the mode bits are checked, not left to an EACCES."""
+    if not info.st_mode & stat.S_IWUSR:
+        raise SaveError(path, f"the file is read-only (mode {info.st_mode & 0o7777:04o}); "
+                              "make it writable (chmod u+w) to save to it, or save to another file")
+    if not os.access(target, os.W_OK):
+        try:
+            read_only_fs = bool(os.statvfs(os.path.dirname(target)).f_flag & os.ST_RDONLY)
+        except OSError:
+            read_only_fs = False
+        raise SaveError(path, "the file system is read-only" if read_only_fs else
+                              "permission denied: the file is not writable by you; save to another file")
+
+
+def _keep_owner_and_mode(fd: int, info: os.stat_result) -> None:
+    """Give the temporary the original's owner and exact mode (``os.open``'s
+    mode passes through the umask, so a 664 file would come back 644)."""
+    if (info.st_uid, info.st_gid) != (os.geteuid(), os.getegid()):
+        try:
+            os.fchown(fd, info.st_uid, info.st_gid)
+        except PermissionError:
+            pass  # only root may give a file away: it becomes ours, as with any editor
+    os.fchmod(fd, info.st_mode & 0o7777)  # after fchown, which may clear set-id bits
 
 
 def _temp_name(path: str) -> str:
@@ -222,10 +265,13 @@ class DesignLock:
 
     def __init__(self, path: str):
         self.path = os.fspath(path)
+        # Beside the file itself, not a link to it: every name of one design
+        # shares one lock, and the saves' temporaries are in the same folder.
+        self._target = os.path.realpath(self.path)
         self._fd: int | None = None
 
     def acquire(self) -> "DesignLock":
-        name = lock_path(self.path)
+        name = lock_path(self._target)
         fd = _open_lock_file(self.path, name)
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
@@ -244,7 +290,7 @@ class DesignLock:
         except OSError:
             pass  # who holds the lock is a courtesy; the flock itself is what protects
         self._fd = fd
-        _remove_stale_temps(self.path)
+        _remove_stale_temps(self._target)
         return self
 
     def release(self) -> None:
