@@ -301,12 +301,12 @@ def main(argv: list[str] | None = None) -> int:
                 args = _workbench_parser().parse_args(argv)
                 args.command = None
         except SystemExit:
-            sys.stdout.flush()  # --help's text: a closed pipe or a full disk shows here
+            _flush()  # --help's text: a closed pipe or a full disk shows here
             raise
         if args.command is None:
             sys.stdout = real  # the workbench's screen is Textual's own business
         status = _dispatch(args)
-        sys.stdout.flush()  # a closed pipe or a full disk shows here, not at interpreter exit
+        _flush()  # a closed pipe or a full disk shows here, not at interpreter exit
         return status
     except BrokenPipeError:
         _drop_stdout(real)
@@ -327,6 +327,11 @@ def main(argv: list[str] | None = None) -> int:
         return 3
     finally:
         sys.stdout = real
+
+
+def _flush() -> None:
+    if sys.stdout is not None:
+        sys.stdout.flush()
 
 
 def _drop_stdout(stream) -> None:
