@@ -4,7 +4,8 @@ Exit status: 0 on success, 2 for a bad file or argument (one line on
 stderr, never a traceback), 3 for an internal fault.  A reader that stops
 early (``stageledger history F | head -1``) is no fault: the rest of the
 output is dropped silently and the status is 0, as it would be had the
-reader taken it all (a save the command made is on disk either way).
+reader taken it all; output that cannot be written (a full disk) is
+status 2.  A save the command made is on disk either way.
 """
 
 from __future__ import annotations
@@ -22,7 +23,8 @@ from .safe_text import visible
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # one line and status 2, as for a bad file
-        self.exit(2, f"stageledger: {message}\n")
+        # argparse quotes some arguments raw ("unrecognized arguments: ..."): escaped, as everywhere.
+        self.exit(2, f"stageledger: {visible(message)}\n")
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -251,20 +253,68 @@ def _workbench_parser() -> argparse.ArgumentParser:
     return p
 
 
+class _OutputFailed(Exception):
+    """Writing to stdout failed (a full disk, an I/O error): not a fault of ours."""
+
+    def __init__(self, err: OSError):
+        super().__init__(os.strerror(err.errno).lower() if err.errno else str(err))
+
+
+class _Output:
+    """sys.stdout as the commands see it: an OSError from writing or flushing
+    it becomes _OutputFailed, so that main can tell it apart from any other
+    OSError (a closed pipe stays BrokenPipeError, which main handles too)."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        try:
+            return self._stream.write(text)
+        except BrokenPipeError:
+            raise
+        except OSError as err:
+            raise _OutputFailed(err) from None
+
+    def flush(self) -> None:
+        try:
+            self._stream.flush()
+        except BrokenPipeError:
+            raise
+        except OSError as err:
+            raise _OutputFailed(err) from None
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
-    if argv and argv[0] in COMMANDS:
-        args = _parser().parse_args(argv)
-    else:
-        args = _workbench_parser().parse_args(argv)
-        args.command = None
+    real = sys.stdout
+    if real is not None:  # None when Python was started with stdout closed
+        sys.stdout = _Output(real)
     try:
+        try:
+            if argv and argv[0] in COMMANDS:
+                args = _parser().parse_args(argv)
+            else:
+                args = _workbench_parser().parse_args(argv)
+                args.command = None
+        except SystemExit:
+            _flush()  # --help's text: a closed pipe or a full disk shows here
+            raise
+        if args.command is None:
+            sys.stdout = real  # the workbench's screen is Textual's own business
         status = _dispatch(args)
-        sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
+        _flush()  # a closed pipe or a full disk shows here, not at interpreter exit
         return status
     except BrokenPipeError:
-        _drop_stdout()
+        _drop_stdout(real)
         return 0
+    except _OutputFailed as failed:
+        _drop_stdout(real)
+        print(f"stageledger: the output could not be written: {failed}", file=sys.stderr)
+        return 2
     except StageledgerError as exc:
         # A message may quote the file's path or its text: escaped, as everywhere.
         print(f"stageledger: {visible(str(exc))}", file=sys.stderr)
@@ -275,16 +325,24 @@ def main(argv: list[str] | None = None) -> int:
         print(f"stageledger: internal error ({type(exc).__name__}: {visible(str(exc))}); please report it",
               file=sys.stderr)
         return 3
+    finally:
+        sys.stdout = real
 
 
-def _drop_stdout() -> None:
-    """Point stdout at the null device, so that the interpreter's last flush
-    of what is still buffered for a closed pipe cannot fail again (the
-    recipe of the Python docs, signal module, "Note on SIGPIPE")."""
+def _flush() -> None:
+    if sys.stdout is not None:
+        sys.stdout.flush()
+
+
+def _drop_stdout(stream) -> None:
+    """Point ``stream``'s descriptor at the null device, so that the
+    interpreter's last flush of what is still buffered for a closed pipe or a
+    full disk cannot fail again and print "Exception ignored" (the recipe of
+    the Python docs, signal module, "Note on SIGPIPE")."""
     try:
         devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-    except (OSError, ValueError):  # stdout replaced by something with no descriptor
+        os.dup2(devnull, stream.fileno())
+    except (OSError, ValueError, AttributeError):  # a stream with no descriptor (a test's capture)
         pass
 
 

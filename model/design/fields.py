@@ -74,10 +74,11 @@ def _range(unit: str, low: float | None = None, high: float | None = None, *,
                 high=math.inf if high is None else high, high_strict=high_strict, open_ok=open_ok)
 
 
-def _fitted(unit: str) -> Rule:
+def _fitted(unit: str, high: float = math.inf) -> Rule:
     """A part that may be left off the board: positive, or 0 / "none" when not fitted."""
-    return Rule(f"must be greater than 0 {unit}, or 0 or '{NONE}' when not fitted",
-                low=0.0, low_strict=False, none_ok=True)
+    most = f"; at most {high:g} {unit}" if high < math.inf else ""
+    return Rule(f"must be greater than 0 {unit}, or 0 or '{NONE}' when not fitted{most}",
+                low=0.0, low_strict=False, high=high, none_ok=True)
 
 
 def _choice(choices: tuple[str, ...]) -> Rule:
@@ -118,23 +119,29 @@ FIELDS: dict[str, Field] = {
     # Collector feedback: r2 is optional, so "open" leaves it off the board.
     "bias.r2": Field("Ω", {**{t: _POSITIVE_OHMS for t in WITH_DIVIDER}, CF: _range("Ω", 0, open_ok=True)}),
     "bias.rf": _some("Ω", _POSITIVE_OHMS, (CF,)),
-    "bias.rb": _some("Ω", _POSITIVE_OHMS, SPLIT),
-    "stage.rc": Field("Ω", {**{t: _POSITIVE_OHMS for t in (CE, CB, CF, CEF, CE_SPLIT)},
-                            **{t: _range("Ω", 0, low_strict=False) for t in (EF, EF_SPLIT)}}),
+    # Held at least 1 µΩ: a smaller one overflows the conductances of the response.
+    "bias.rb": _some("Ω", Rule("must be greater than 0 Ω (at least 1 µΩ)", low=1e-6), SPLIT),
+    # At most 1e15 Ω, beyond the largest resistor made; 1e300 overflows the solver.
+    "stage.rc": Field("Ω", {**{t: _range("Ω", 0, 1e15, high_shown="1e15 Ω") for t in (CE, CB, CF, CEF, CE_SPLIT)},
+                            **{t: _range("Ω", 0, 1e15, low_strict=False, high_shown="1e15 Ω")
+                               for t in (EF, EF_SPLIT)}}),
     "stage.re1": _some("Ω", _range("Ω", 0, low_strict=False), WITH_BYPASS),
     "stage.re2": _some("Ω", _range("Ω", 0, low_strict=False), WITH_BYPASS),
     # Not fitted: ce leaves re2 in the signal path; cb leaves the base of a
     # common-base stage on its divider; cin and cout are replaced by a direct
     # (DC) connection; cl is simply absent. See README "Keys".
-    "stage.ce": _some("F", _fitted("F"), WITH_BYPASS),
-    "stage.cb": _some("F", _fitted("F"), (CB,)),
+    # At most 1000 F, the size of the largest supercapacitors; far larger ones
+    # (1e15 F) put the response's corners beyond what a float can sweep.
+    "stage.ce": _some("F", _fitted("F", 1e3), WITH_BYPASS),
+    "stage.cb": _some("F", _fitted("F", 1e3), (CB,)),
     # The emitter resistor of a follower, of a common-base stage, and of the
     # follower that ce-follower adds after its gain stage.
     "stage.re": _some("Ω", _POSITIVE_OHMS, (EF, EF_SPLIT, CB, CEF)),
-    "stage.cin": _both("F", _fitted("F")),
-    "stage.cout": _both("F", _fitted("F")),
+    "stage.cin": _both("F", _fitted("F", 1e3)),
+    "stage.cout": _both("F", _fitted("F", 1e3)),
     "source.rs": _both("Ω", _range("Ω", 0, low_strict=False)),
-    "source.vpk": _both("V", _range("V", 0, low_strict=False)),
+    # At most 1000 V, the largest supply: a larger EMF overflows the swing's squares.
+    "source.vpk": _both("V", _range("V", 0, 1000, low_strict=False)),
     "source.freq": _both("Hz", _range("Hz", 0)),
     # The noise band's ends; "none" takes the stage's own −3 dB corner.
     "source.noise_low": _both("Hz", Rule("must be greater than 0 Hz, or 'none' for the stage's f_low",
@@ -144,11 +151,14 @@ FIELDS: dict[str, Field] = {
     "load.rl": _both("Ω", _range("Ω", 0, open_ok=True)),
     "load.cl": _both("F", _fitted("F")),
     "transistor.polarity": _both("", _choice(POLARITIES)),
-    "transistor.beta": _both("", _range("", 0)),
-    "transistor.beta_r": _both("", _range("", 0)),
-    "transistor.va": _both("V", _range("V", 0)),
-    "transistor.i_s": _both("A", _range("A", 0, 1e-6, high_strict=True, high_shown="1 µA")),
-    "transistor.ft": _both("Hz", _range("Hz", 0)),
+    # Lower bounds far below any real part, where a value stops being a
+    # transistor and becomes a float's underflow (5e-324 overflows 1/β).
+    "transistor.beta": _both("", Rule("must be greater than 0 (at least 0.001)", low=1e-3)),
+    "transistor.beta_r": _both("", Rule("must be greater than 0 (at least 0.001)", low=1e-3)),
+    "transistor.va": _both("V", Rule("must be greater than 0 V (at least 0.001 V)", low=1e-3)),
+    "transistor.i_s": _both("A", Rule("must be greater than 0 A (at least 1e-30 A) and less than 1 µA",
+                                      low=1e-30, high=1e-6, high_strict=True)),
+    "transistor.ft": _both("Hz", Rule("must be greater than 0 Hz (at least 1 Hz)", low=1.0)),
     "transistor.cmu": _both("F", _range("F", 0, low_strict=False)),
     "transistor.vceo": _both("V", _range("V", 0)),
     "transistor.pd_max": _both("W", _range("W", 0)),
@@ -164,7 +174,7 @@ FIELDS: dict[str, Field] = {
     # The follower of ce-follower: the same type of part as the gain
     # transistor, so it shares every parameter but β, the one that spreads
     # from part to part.
-    "transistor2.beta": _some("", _range("", 0), TWO_TRANSISTORS),
+    "transistor2.beta": _some("", Rule("must be greater than 0 (at least 0.001)", low=1e-3), TWO_TRANSISTORS),
     "environment.ambient": _both("°C", _range("°C", _ABSOLUTE_ZERO, 300)),
     "parts.resistor_power": _both("W", _range("W", 0)),
     "parts.series": _both("", _choice(SERIES)),

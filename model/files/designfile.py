@@ -27,6 +27,10 @@ from model.files.savefile import Fingerprint
 # sees it, while leaving room for tens of thousands of logged changes.
 MAX_FILE_BYTES = 32 << 20
 MAX_LINE_CHARS = 10_000
+#: The deepest the parsed tables and arrays of a file may nest.  A design
+#: needs at most about 7 ([[history]] → entry → design → tolerance → parts →
+#: a dotted part key); the cap leaves room and keeps every check shallow.
+MAX_NESTING = 16
 
 _BOM = "\ufeff"
 _WHERE = re.compile(r"\s*\(at line (\d+), column (\d+)\)$|\s*\(at end of document\)$")
@@ -130,8 +134,25 @@ def loads_document(text: str, path: str = "<string>") -> tuple:
         long_number = _LONG_NUMBER.search(text)
         line = text.count("\n", 0, long_number.start()) + 1 if long_number else None
         raise DesignFileError(path, line, "not valid TOML: a number has too many digits") from None
+    depth = _nesting(data)
+    if depth > MAX_NESTING:
+        # Legal TOML (a 1,000-part dotted key), but no design is built so:
+        # refused here, before any check recurses into it or quotes it.
+        raise DesignFileError(path, None, f"tables nested {depth} deep (a long dotted key?); "
+                                          f"a design file needs at most {MAX_NESTING}")
     history = history_from_list(data.pop("history"), path) if "history" in data else []
     return design_from_dict(data, path), history
+
+
+def _nesting(data) -> int:
+    """How deeply tables and arrays nest in ``data``, counted without recursion."""
+    deepest, stack = 0, [(data, 1)]
+    while stack:
+        node, depth = stack.pop()
+        deepest = max(deepest, depth)
+        children = node.values() if isinstance(node, dict) else node
+        stack.extend((c, depth + 1) for c in children if isinstance(c, (dict, list)))
+    return deepest
 
 
 def _decode_error(path: str, err: tomllib.TOMLDecodeError) -> DesignFileError:

@@ -28,6 +28,7 @@ import os
 import re
 import secrets
 import socket
+import stat
 import time
 from dataclasses import dataclass
 
@@ -50,10 +51,18 @@ class LockHeld(StageledgerError):
     def __init__(self, path: str, holder: dict):
         self.path = path
         self.holder = holder
-        who = f"pid {holder.get('pid', '?')} on {holder.get('host', '?')}"
-        since = holder.get("since")
-        when = f" since {since}" if since else ""
-        super().__init__(f"{path}: being edited by {who}{when}; open it read-only, or wait")
+        super().__init__(f"{path}: being edited by {_holder_text(holder)}; open it read-only, or wait")
+
+
+def _holder_text(holder: dict) -> str:
+    """Who holds the lock, from the details it wrote; the text is the file's
+    own (callers that print it escape it, as they do all file text)."""
+    if "pid" not in holder:
+        # The holder takes the flock first and writes its details just after.
+        return "another stageledger (starting)"
+    where = f" on {holder['host']}" if "host" in holder else ""
+    since = f" since {holder['since']}" if holder.get("since") else ""
+    return f"pid {holder['pid']}{where}{since}"
 
 
 @dataclass(frozen=True)
@@ -105,22 +114,38 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
     ``seen`` is the fingerprint taken when the file was read; if the file has
     changed since, nothing is written.  With ``create`` the file must not
     exist yet.  Raises SaveError, leaving the original byte-identical.
+
+    A symbolic link is written through: the link's target gets the new
+    bytes (the temporary is made in the target's folder, so the rename stays
+    on its file system) and the link stays a link.  The file keeps its mode
+    and, where the process may set it, its owner; a file without its owner's
+    write bit (mode 444) is refused rather than replaced.
     """
-    folder = os.path.dirname(os.path.abspath(path))
     if create:
         if os.path.lexists(path):
             raise SaveError(path, "the file already exists; choose another name")
-    elif not unchanged_since(path, seen):
-        raise SaveError(path, "the file changed on disk since it was read; "
-                              "reload it, or save your change to another file")
-    try:
-        mode = os.stat(path).st_mode & 0o7777
-    except FileNotFoundError:
-        mode = 0o666
-    tmp = _temp_name(path)
+        target, info = os.path.abspath(path), None
+    else:
+        target = os.path.realpath(path)
+        if not unchanged_since(target, seen):
+            raise SaveError(path, "the file changed on disk since it was read; "
+                                  "reload it, or save your change to another file")
+        try:
+            info = os.stat(target)
+        except FileNotFoundError:
+            info = None  # gone since it was read: unchanged_since allowed that only for seen=None
+        except OSError as err:
+            raise SaveError(path, _reason(err)) from None
+        if info is not None:
+            _refuse_unwritable(path, target, info)
+    folder = os.path.dirname(target)
+    mode = 0o666 if info is None else info.st_mode & 0o7777
+    tmp = _temp_name(target)
     fd = backup = None
     try:
         fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
+        if info is not None:
+            _keep_owner_and_mode(fd, info)
         view = memoryview(data)
         while view:
             written = os.write(fd, view)
@@ -133,20 +158,20 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
         if not create:
             # A second name for the original, so that it can be put back if the
             # rename cannot be made durable: a SaveError promises the file as it was.
-            backup = _temp_name(path)
+            backup = _temp_name(target)
             try:
-                os.link(path, backup, follow_symlinks=False)
+                os.link(target, backup, follow_symlinks=False)
             except OSError:
                 backup = None  # a file system without hard links: no way back, as before
-        os.replace(tmp, path)
+        os.replace(tmp, target)
         tmp = None
         try:
             _fsync_dir(folder)
         except OSError:
             if create:
-                os.unlink(path)
+                os.unlink(target)
             elif backup is not None:
-                os.replace(backup, path)
+                os.replace(backup, target)
                 backup = None
             raise
     except OSError as err:
@@ -164,6 +189,33 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
                 except OSError:
                     pass
     return Fingerprint.of(path, data)
+
+
+def _refuse_unwritable(path: str, target: str, info: os.stat_result) -> None:
+    """SaveError if the file may not be written, though a rename could still
+    replace it: the rename needs only the folder's permission, and root's
+    needs none, so the mode bits are checked, not left to an EACCES."""
+    if not info.st_mode & stat.S_IWUSR:
+        raise SaveError(path, f"the file is read-only (mode {info.st_mode & 0o7777:04o}); "
+                              "make it writable (chmod u+w) to save to it, or save to another file")
+    if not os.access(target, os.W_OK):
+        try:
+            read_only_fs = bool(os.statvfs(os.path.dirname(target)).f_flag & os.ST_RDONLY)
+        except OSError:
+            read_only_fs = False
+        raise SaveError(path, "the file system is read-only" if read_only_fs else
+                              "permission denied: the file is not writable by you; save to another file")
+
+
+def _keep_owner_and_mode(fd: int, info: os.stat_result) -> None:
+    """Give the temporary the original's owner and exact mode (``os.open``'s
+    mode passes through the umask, so a 664 file would come back 644)."""
+    if (info.st_uid, info.st_gid) != (os.geteuid(), os.getegid()):
+        try:
+            os.fchown(fd, info.st_uid, info.st_gid)
+        except PermissionError:
+            pass  # only root may give a file away: it becomes ours, as with any editor
+    os.fchmod(fd, info.st_mode & 0o7777)  # after fchown, which may clear set-id bits
 
 
 def _temp_name(path: str) -> str:
@@ -213,14 +265,14 @@ class DesignLock:
 
     def __init__(self, path: str):
         self.path = os.fspath(path)
+        # Beside the file itself, not a link to it: every name of one design
+        # shares one lock, and the saves' temporaries are in the same folder.
+        self._target = os.path.realpath(self.path)
         self._fd: int | None = None
 
     def acquire(self) -> "DesignLock":
-        name = lock_path(self.path)
-        try:
-            fd = os.open(name, os.O_RDWR | os.O_CREAT, 0o666)
-        except OSError as err:
-            raise SaveError(self.path, f"cannot create the lock file {name}: {_reason(err)}") from None
+        name = lock_path(self._target)
+        fd = _open_lock_file(self.path, name)
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -238,7 +290,7 @@ class DesignLock:
         except OSError:
             pass  # who holds the lock is a courtesy; the flock itself is what protects
         self._fd = fd
-        _remove_stale_temps(self.path)
+        _remove_stale_temps(self._target)
         return self
 
     def release(self) -> None:
@@ -251,6 +303,51 @@ class DesignLock:
 
     def __exit__(self, *exc) -> None:
         self.release()
+
+
+def _open_lock_file(path: str, name: str) -> int:
+    """A descriptor on the lock file ``name`` of ``path``, created if missing.
+
+    The lock file is truncated and rewritten, so a symbolic link or a second
+    hard link planted at its name would let that write land on another file
+    (or create one where a dangling link points).  ``O_NOFOLLOW`` refuses a
+    link as the last component, ``O_NONBLOCK`` keeps a FIFO planted there from
+    blocking the open, and the check on the descriptor (not the name, which
+    could be swapped in between) refuses anything but a regular file with
+    one name.
+    """
+    flags = os.O_RDWR | os.O_CREAT | os.O_NOFOLLOW | os.O_CLOEXEC | os.O_NONBLOCK
+    try:
+        # Checked before opening too, so that no device planted there is ever opened.
+        mode = os.lstat(name).st_mode
+        if stat.S_ISLNK(mode):
+            raise SaveError(path, _not_plain(name, "is a symbolic link"))
+        if not stat.S_ISREG(mode):
+            raise SaveError(path, _not_plain(name, "is not a regular file"))
+    except FileNotFoundError:
+        pass
+    except OSError as err:
+        raise SaveError(path, f"cannot check the lock file {name}: {_reason(err)}") from None
+    try:
+        fd = os.open(name, flags, 0o666)
+    except OSError as err:
+        if err.errno == errno.ELOOP:  # a link put there since the check
+            raise SaveError(path, _not_plain(name, "is a symbolic link")) from None
+        raise SaveError(path, f"cannot create the lock file {name}: {_reason(err)}") from None
+    info = os.fstat(fd)
+    problem = None
+    if not stat.S_ISREG(info.st_mode):
+        problem = "is not a regular file"
+    elif info.st_nlink > 1:
+        problem = "has another name (a hard link), so writing it would change another file"
+    if problem:
+        os.close(fd)
+        raise SaveError(path, _not_plain(name, problem))
+    return fd
+
+
+def _not_plain(name: str, problem: str) -> str:
+    return f"the lock file {name} {problem}; remove it, and the next command makes a plain one"
 
 
 def _read_holder(fd: int) -> dict:
