@@ -19,6 +19,7 @@ from model.files.savefile import LockHeld  # noqa: E402
 from model.files.session import DesignSession, create  # noqa: E402
 
 from .bundled import default_demo  # noqa: E402
+from .safe_text import visible  # noqa: E402
 
 
 def ask(question: str) -> bool:
@@ -52,7 +53,7 @@ def make_app(path: str | None, *, read_only: bool = False, asker=ask):
         try:
             session = DesignSession(path)
         except LockHeld as held:
-            if not asker(f"{held}. Open it read-only?"):
+            if not asker(f"{visible(str(held))}. Open it read-only?"):
                 return None
             session = DesignSession(path, lock=False)
     return Workbench(session.design, session=session, source=path)

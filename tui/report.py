@@ -86,7 +86,7 @@ def noise_lines(design: Design, fig: Figures) -> list:
         return []
     at = _si(design.source.freq, "Hz")
     band = (f"{_si(n.band[0], 'Hz')} – {_si(n.band[1], 'Hz')}" if math.isfinite(n.band[0])
-            else "none (no −3 dB band; set source.noise_low and noise_high)")
+            else "none: the stage has no −3 dB band")
     top = [f"{name} {100 * share:.0f} %" for name, share in n.contributors[:5] if share >= 0.005]
     return [
         "",

@@ -308,7 +308,7 @@ def roots(engine: Engine, lines: list, brackets: list) -> list:
     fb = np.array([b.miss_b for b in brackets])
     best = [(b.a, b.miss_a, b.raw_a) if abs(b.miss_a) <= abs(b.miss_b) else (b.b, b.miss_b, b.raw_b)
             for b in brackets]
-    done = np.array([abs(m) <= tol for _, m, _ in best])
+    done = np.array([abs(m) <= tol for _, m, _ in best], dtype=bool)
     for _ in range(MAX_STEPS):
         live = np.flatnonzero(~done)
         if live.size == 0:

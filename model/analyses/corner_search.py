@@ -281,5 +281,7 @@ def _phase(gain, midband_gain) -> np.ndarray:
         return np.zeros(0)
     phase = np.degrees(np.unwrap(np.angle(gain)))
     ref = phase[int(np.argmin(np.abs(gain - midband_gain)))]
+    if not np.isfinite(ref):  # a degenerate sweep (a 1e-300 Ω source): no branch to choose
+        return phase
     target = 180.0 if midband_gain < 0 else 0.0
     return phase + 360.0 * round((target - ref) / 360.0)
