@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import pytest
 from rich.cells import cell_len
-from test_workbench import SMALL, knobs, readout, region_text, screen_text, settle, status, type_into
+from test_workbench import SCROLLBAR, SMALL, knobs, readout, region_text, screen_text, settle, status, type_into
 
 from model.analyses.figures import analyse
 from model.analyses.loadlines import design_load_lines
@@ -130,7 +130,9 @@ async def _readout_end(pilot) -> str:
 
 
 def _row(text: str, label: str) -> str:
-    rows = [line.strip() for line in text.splitlines() if line.strip().startswith(label + " ")]
+    """The row for ``label``, without the scrollbar's column (test_workbench.SCROLLBAR)."""
+    rows = [line.rstrip().rstrip(SCROLLBAR).strip() for line in text.splitlines()
+            if line.strip().startswith(label + " ")]
     assert rows, f"no {label!r} row in:\n{text}"
     return rows[0]
 

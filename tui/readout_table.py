@@ -26,10 +26,12 @@ ROWS = (
     ("headroom", (("wanted", "vout_wanted", "V"), ("swing_up", "swing_up", "V"),
                   ("swing_down", "swing_down", "V"))),
     ("distortion", (("thd", "thd", "%"),)),
-    ("noise", (("en_total/√Hz", "en_total", "V/√Hz"), ("NF", "nf_db", "dB"), ("SNR", "snr_db", "dB"))),
     ("dissipation", (("p_transistor", "p_transistor", "W"), ("p_supply", "p_supply", "W"),
                      ("tj", "tj", "°C"))),
 )
+#: The noise, last: below the spread's yield, which a design with specs
+#: must see without scrolling.
+NOISE_ROWS = ("noise", (("en_total/√Hz", "en_total", "V/√Hz"), ("NF", "nf_db", "dB"), ("SNR", "snr_db", "dB")))
 #: The follower (q2) of a two-transistor stage, in its own group just above
 #: tj_max, which bounds its tj as it does the gain stage's.
 FOLLOWER_ROWS = ("follower q2", (("q2 region", "region2", None), ("q2 IC", "ic2", "A"), ("q2 VCE", "vce2", "V"),
@@ -113,7 +115,7 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
     groups = ROWS
     if shown.two_transistors or (compare and reference.two_transistors):
         groups += (FOLLOWER_ROWS,)
-    for heading, rows in groups:
+    def group(heading, rows):
         out.append(heading + "\n", style="italic")
         for label, key, kind in rows:
             a = getattr(shown, key)
@@ -127,6 +129,9 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
                 moved = "" if absent or _nan(a) or _nan(b) else relative_change(b, a, key)
                 line += _right((moved + " " + _arrow(key, b, a)).strip(), _CHANGE)
             out.append(line + "\n")
+
+    for heading, rows in groups:
+        group(heading, rows)
         if heading == "response" and shown.response is not None:
             out.append(f"  {_set_by(shown.response)}\n")
         if heading == "headroom" and shown.two_transistors and any(shown.swing_limits):
@@ -139,6 +144,8 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
     if yields is not None:
         out.append("\nspread\n", style="italic")
         out.append(_yield_rows(yields, compare, value_width))
+    out.append("\n")
+    group(*NOISE_ROWS)
     return out
 
 

@@ -136,8 +136,8 @@ def noise_spectrum(stage: StageCircuit, op: OperatingPoint, freq, *, rs, celsius
     """The noise of a built stage (with its device capacitances, see
     :mod:`model.analyses.capacitance`) at its operating point ``op``.
 
-    ``freq`` (Hz, > 0) is one grid for every row; ``rs`` (Ω) and ``celsius``
-    (°C) one value per row.  ``quiet`` names resistors made noiseless (for
+    ``freq`` (Hz, > 0) is one grid (F,) for every row or one per row
+    (batch, F); ``rs`` (Ω) and ``celsius`` (°C) one value per row.  ``quiet`` names resistors made noiseless (for
     checks against formulas that leave them out).  One adjoint solve of
     the sourceless network per frequency; the sources are then products.
     """
@@ -150,7 +150,12 @@ def noise_spectrum(stage: StageCircuit, op: OperatingPoint, freq, *, rs, celsius
     a = sweep.a_g + 1j * omega[:, :, None, None] * sweep.a_c  # (batch, F, n, n)
     out_i, in_i = plan.index[stage.output], plan.index[stage.input]
     pick = np.zeros((n, 2))
-    pick[out_i, 0] = pick[in_i, 1] = 1.0
+    # A terminal that is a known node (held by a rail) moves with nothing:
+    # its column stays 0, so the figures read as unbounded, not as noise.
+    if out_i >= 0:
+        pick[out_i, 0] = 1.0
+    if in_i >= 0:
+        pick[in_i, 1] = 1.0
     nf = freq.shape[1]
     y = solve_batched(np.swapaxes(a, -1, -2).reshape(-1, n, n),
                       np.broadcast_to(pick, (batch * nf, n, 2)).astype(complex))
@@ -160,7 +165,8 @@ def noise_spectrum(stage: StageCircuit, op: OperatingPoint, freq, *, rs, celsius
     # a test current into the input node itself (Zoi, Zii).
     z_out = np.einsum("bfn,bfnk->bkf", y[..., 0], vectors)
     v_in = np.einsum("bfn,bfnk->bkf", y[..., 1], vectors)
-    z_oi, z_ii = y[:, :, in_i, 0][:, None, :], y[:, :, in_i, 1][:, None, :]
+    into = y[:, :, in_i, :] if in_i >= 0 else np.zeros((batch, nf, 2), dtype=complex)
+    z_oi, z_ii = into[:, None, :, 0], into[:, None, :, 1]
     amplitude = np.sqrt(densities)
     # A stage that passes nothing from its input (z_oi → 0) has unbounded
     # input-referred noise: inf, not a warning.
@@ -170,8 +176,7 @@ def noise_spectrum(stage: StageCircuit, op: OperatingPoint, freq, *, rs, celsius
         rs = np.broadcast_to(np.asarray(rs, dtype=float), (batch,))
         gain = (z_oi / (z_ii + rs[:, None, None]))[:, 0]
     kelvin = np.broadcast_to(ZERO_CELSIUS + np.asarray(celsius, float), (batch,))
-    return NoiseSpectrum(freq[0] if np.ndim(freq) == 2 and batch == 1 else freq, names, en_k, in_k,
-                         np.array(rs), np.array(kelvin), gain)
+    return NoiseSpectrum(freq[0] if batch == 1 else freq, names, en_k, in_k, np.array(rs), np.array(kelvin), gain)
 
 
 def _sources(net: Netlist, op: OperatingPoint, plan, omega, celsius, transistor: TransistorNoise, quiet, freq):
