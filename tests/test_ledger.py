@@ -528,6 +528,13 @@ TAMPERING = {
     "unknown history key": (_set(2, colour="red"), "history[2].colour"),
     "note as a number": (_set(2, note=3), "history[2].note"),
     "raised not codes": (_set(2, raised="HEADROOM-SHORT"), "history[2].raised"),
+    # An inconsistent history (issue: the README said it is refused; now it is).
+    "a set that changes nothing": (_set(2, changes=[]), "history[2].changes"),
+    "an undo without its changes": (lambda h: h[2].pop("changes"), "history[3].changes"),
+    "an unknown region": (_set(2, "after", region="molten"), "history[2].after.region"),
+    "an unknown warning code": (_set(2, raised=["SMOKE"]), "history[2].raised"),
+    "a time before the entry before": (lambda h: h[2].update(time=h[1]["time"] - dt.timedelta(seconds=1)),
+                                       "history[3].time"),
 }
 
 
@@ -540,6 +547,22 @@ def test_a_tampered_history_is_refused_naming_entry_and_field(tmp_path, name):
         read_document(bad)
     assert caught.value.field == field
     assert str(caught.value).startswith(f"{bad}: {field} ")
+
+
+def test_an_old_value_the_history_does_not_leave_is_refused_when_replayed(tmp_path, capsys):
+    # Entry 3 (the undo) claims rc was 12 kΩ before it; entry 2 left 10 kΩ.
+    bad = _tampered(tmp_path, lambda h: h[2]["changes"][0].update(old=12e3))
+    # Each entry is well formed on its own; read, the replay refuses it.
+    with pytest.raises(DesignError) as caught:
+        read_document(bad)
+    assert caught.value.field == "history[3].changes[1].old"
+    assert "10000.0" in caught.value.rule and str(bad) in str(caught.value)
+    before = bad.read_bytes()
+    assert main(["report", str(bad)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "history[3].changes[1].old" in err[0]
+    assert main(["set", str(bad), "stage.rc=8k2"]) == 2
+    assert bad.read_bytes() == before
 
 
 def test_history_that_is_not_an_array_of_tables_is_refused(tmp_path):

@@ -272,3 +272,17 @@ def test_a_follower_that_clips_first_is_named():
     messages = _messages(d, "Q2-CLIPS-FIRST")
     assert len(messages) == 1 and "going down" in messages[0] and "cutoff" in messages[0]
     assert "Q2-CLIPS-FIRST" not in _codes(default_design("ce-follower"))  # 10 mV asks for 0.22 V
+
+
+def test_every_code_a_check_can_raise_is_listed_and_documented():
+    """CODES is the list the history reader accepts; each one has its row in
+    the README's table, and a Warning_ outside it cannot be made."""
+    import pathlib
+
+    from model.analyses.checks import CODES, Warning_
+
+    readme = (pathlib.Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    table = readme.split("## Warnings", 1)[1].split("\n## ", 1)[0]
+    assert all(f"`{code}`" in table for code in CODES)
+    with pytest.raises(ValueError):
+        Warning_("SMOKE", "not a code")

@@ -59,6 +59,12 @@ def _pct(x: float) -> str:
     return f"{100.0 * x:.3g} %" if math.isfinite(x) else NONE
 
 
+def _plain(x: float) -> str:
+    """A plain number to 4 figures, or "none" where it does not exist
+    (β_ac of a junction whose derivatives underflow to 0)."""
+    return f"{x:.4g}" if math.isfinite(x) else NONE
+
+
 def _follower_rows(fig: Figures, t) -> list:
     """The follower's (q2's) operating point, for a two-transistor stage."""
     if not fig.two_transistors:
@@ -139,7 +145,7 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
         "",
         "Small signal at the operating point",
         f"  gm {_si(fig.gm, 'S')}   rπ {_si(fig.r_pi, 'Ω')}   ro {_si(fig.ro, 'Ω')}   "
-        f"β_ac {fig.beta_ac:.4g}   re (hand) {_si(h.re, 'Ω')}",
+        f"β_ac {_plain(fig.beta_ac)}   re (hand) {_si(h.re, 'Ω')}",
         "",
         "Midband                            exact                      hand estimate",
         f"  av_open                          {_gain(fig.av_open):<26} {_hand_gain(h.av_open)}",

@@ -18,10 +18,21 @@ SAFE_DC_VOLTS = 60.0
 BETA_SENSITIVITY = 0.10
 
 
+#: Every warning code, in README "Warnings" order; a history's raised and
+#: cleared lists may hold only these.
+CODES = ("Q-SATURATED", "Q-CUTOFF", "HEADROOM-SHORT", "TJ-OVER", "PD-OVER", "VCE-OVER", "R-OVERLOAD",
+         "BETA-DEPENDENT", "FT-INCONSISTENT", "NO-PASSBAND", "OUT-OF-BAND", "HAZARDOUS-VOLTAGE",
+         "Q2-SATURATED", "Q2-CUTOFF", "Q2-TJ-OVER", "Q2-PD-OVER", "Q2-VCE-OVER", "Q2-CLIPS-FIRST")
+
+
 @dataclass(frozen=True)
 class Warning_:
     code: str
     message: str
+
+    def __post_init__(self):
+        if self.code not in CODES:
+            raise ValueError(f"warning code {self.code!r} is not in CODES")
 
     def to_dict(self) -> dict:
         return {"code": self.code, "message": self.message}

@@ -18,8 +18,9 @@ from dataclasses import dataclass
 import tomli_w
 
 from model.design.stage import Design, design_from_dict, design_to_dict
-from model.errors import DesignFileError
+from model.errors import DesignError, DesignFileError
 from model.files.historyfile import history_from_list
+from model.files.ledger import replay
 from model.files.savefile import Fingerprint
 
 # A design is a few kilobytes and each history entry under one; the caps keep
@@ -62,6 +63,9 @@ class Document:
     history: list
     fingerprint: Fingerprint
     comment_lines: tuple
+    #: The design the history replays to (None without a history): read once,
+    #: when the replay checks every entry's old values.
+    logged: Design | None = None
 
 
 def read_design(path: str | os.PathLike) -> Design:
@@ -80,7 +84,18 @@ def read_document(path: str | os.PathLike) -> Document:
         bad = raw[err.start:err.start + 1].hex()
         raise DesignFileError(name, line, f"is not valid UTF-8 text (byte 0x{bad})") from None
     design, history = loads_document(text, name)
-    return Document(name, design, history, Fingerprint.of(name, raw), comment_lines(text))
+    return Document(name, design, history, Fingerprint.of(name, raw), comment_lines(text), _replayed(history, name))
+
+
+def _replayed(history: list, path: str) -> Design | None:
+    """The design ``history`` replays to; DesignError naming the file and the
+    entry whose old values the entries before it do not leave."""
+    if not history:
+        return None
+    try:
+        return replay(history)
+    except DesignError as err:
+        raise err.in_file(path) from None
 
 
 def _read_bytes(name: str) -> bytes:

@@ -29,11 +29,15 @@ import math
 
 import tomli_w
 
+from model.analyses.checks import CODES
+from model.analyses.transfer import ACTIVE, CUTOFF, SATURATION
 from model.design.spread_tables import is_spread_key
 from model.design.stage import CE, NONE, check_key, check_known, check_value, design_from_dict, knows
 from model.errors import DesignError
 from model.files.ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
+#: The regions a recorded figure may name (model.analyses.transfer).
+REGIONS = (ACTIVE, SATURATION, CUTOFF)
 _ENTRY_KEYS = ("entry", "time", "action", "from", "reverses", "note", "changes", "raised",
                "cleared", "before", "after", "design")
 
@@ -108,6 +112,10 @@ def _entry(item: object, number: int, earlier: list, topology: str) -> Entry:
     time = item.get("time")
     if not isinstance(time, _dt.datetime) or time.utcoffset() is None:
         raise DesignError(f"{where}.time", _short(time), "must be a date and time with its UTC offset")
+    if earlier and time < earlier[-1].time:
+        # Entries are appended as they happen: an earlier time is an edit.
+        raise DesignError(f"{where}.time", time.isoformat(),
+                          f"must not be earlier than entry {number - 1}'s ({earlier[-1].time.isoformat()})")
     action = item.get("action")
     if action not in ACTIONS or (action == START) != (number == 1):
         rule = "must be 'start'" if number == 1 else f"must be one of {', '.join(ACTIONS[1:])}"
@@ -132,6 +140,9 @@ def _entry(item: object, number: int, earlier: list, topology: str) -> Entry:
             raise DesignError(f"{where}.design.{err.field}", err.value, err.rule) from None
     elif snapshot is not None:
         raise DesignError(f"{where}.design", "...", "only the start entry holds a design snapshot")
+    if action != START and not item.get("changes"):
+        raise DesignError(f"{where}.changes", _short(item.get("changes", [])),
+                          f"must hold at least one change: a {action} entry records what it changed")
     return Entry(
         number=number, time=time.astimezone(_dt.timezone.utc), action=action,
         changes=_changes(item.get("changes", []), where, topology),
@@ -207,16 +218,20 @@ def _figures(table, where) -> dict:
     for key, value in table.items():
         if key not in HEADLINE:
             raise DesignError(f"{where}.{key}", _short(value), f"is not a recorded figure; expected {', '.join(HEADLINE)}")
-        ok = isinstance(value, str) if key == "region" else (
+        ok = value in REGIONS if key == "region" else (
             isinstance(value, (int, float)) and not isinstance(value, bool) and not math.isnan(value))
         if not ok:
-            raise DesignError(f"{where}.{key}", _short(value), "must be a number" if key != "region" else "must be text")
+            raise DesignError(f"{where}.{key}", _short(value),
+                              "must be a number" if key != "region" else f"must be one of {', '.join(REGIONS)}")
     return dict(table)
 
 
 def _codes(items, where) -> tuple:
     if not isinstance(items, list) or not all(isinstance(c, str) for c in items):
         raise DesignError(where, _short(items), "must be an array of warning codes")
+    unknown = [c for c in items if c not in CODES]
+    if unknown:
+        raise DesignError(where, _short(unknown[0]), "is not a warning code (README, Warnings)")
     return tuple(items)
 
 

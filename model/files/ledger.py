@@ -154,8 +154,22 @@ def replay(history: list, upto: int | None = None) -> Design:
         raise StageledgerError(f"there is no history entry {upto}; entries run from 1 to {len(history)}")
     design = design_from_dict({"format": 1, **history[0].snapshot})
     for entry in history[1:last]:
+        _check_old(design, entry)
         design = apply(design, entry.changes)
     return design
+
+
+def _check_old(design: Design, entry: Entry) -> None:
+    """Refuse an entry whose ``old`` values the design before it does not
+    hold: the history would not tell how the design got where it is."""
+    for k, c in enumerate(entry.changes, start=1):
+        if c.key != "topology" and not knows(c.key, design.topology):
+            continue  # a key the topology lacks: its old is "none", checked when read
+        held = get_value(design, c.key)
+        if held != check_key(c.key, design.topology, c.old):
+            shown = file_word(c.key, held) or held
+            raise DesignError(f"history[{entry.number}].changes[{k}].old", c.old,
+                              f"differs from the value the entries before it leave, {shown!r}")
 
 
 def stacks(history: list) -> tuple[list, list]:

@@ -94,13 +94,14 @@ class DesignSession:
         self.comment_lines = doc.comment_lines
         self.figures = analyse(self.design)
         self._yields: dict = {}
-        self.hand_edits = self._hand_edits()
+        self.hand_edits = self._hand_edits(doc.logged)
 
-    def _hand_edits(self) -> tuple:
-        """Changes made to the file by hand since its last logged entry."""
+    def _hand_edits(self, logged=None) -> tuple:
+        """Changes made to the file by hand since its last logged entry;
+        ``logged`` the design the history replays to, if already known."""
         if not self.history:
             return ()
-        logged = ledger.replay(self.history)
+        logged = logged if logged is not None else ledger.replay(self.history)
         if logged.topology != self.design.topology:
             # Key-by-key changes cannot express a new topology (its keys differ),
             # and logging them would leave a history that no longer replays.
