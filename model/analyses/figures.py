@@ -222,8 +222,8 @@ def analyse(design: Design, *, large_signal: bool = True, per_decade: int = POIN
     resp = (frequency_response(nominal, op, caps, float(mid.av_source[0]), design.source.freq,
                                per_decade=per_decade, followers=followers)
             if large_signal else None)
-    noise = (noise_figures(design, with_device_capacitance(nominal, caps, followers), op, resp.freq,
-                           resp.f_low, resp.f_high) if large_signal else None)
+    noise = (noise_figures(design, design_values([design]), with_device_capacitance(nominal, caps, followers), op,
+                           resp.freq, resp.f_low, resp.f_high) if large_signal else None)
     power = dissipation(nominal, op)
     if follower:
         follower["p_transistor2"] = p2 = float(power.p_transistors[FOLLOWER][0])

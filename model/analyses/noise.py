@@ -208,11 +208,11 @@ def _sources(net: Netlist, op: OperatingPoint, plan, omega, celsius, transistor:
         densities.append(np.broadcast_to((4.0 * BOLTZMANN * kelvin / r.r)[:, None], (batch, nf)))
     bjts = net.of_type(Bjt)
     conductance = terminal_conductance([op.states[q.name] for q in bjts]) if bjts else None
+    caps = {c.name: c for c in net.of_type(Capacitor)}
     for k, q in enumerate(bjts):
         st = op.states[q.name]
         ib, ic = np.abs(st.ib), np.abs(st.ic)
         suffix = "" if k == 0 else str(k + 1)
-        caps = {c.name: c for c in net.of_type(Capacitor)}
         c_pi = caps[f"cpi{suffix}"].c if f"cpi{suffix}" in caps else np.zeros(batch)
         c_mu = caps[f"cmu{suffix}"].c if f"cmu{suffix}" in caps else np.zeros(batch)
         if (rb > 0).any():

@@ -118,13 +118,12 @@ _NOISE_KEYS = ("source.rs", "source.vpk", "source.freq", "source.noise_low", "so
                "environment.ambient", "transistor.rb", "transistor.kf", "transistor.af")
 
 
-def noise_figures(design: Design, stage: StageCircuit, op: OperatingPoint, sweep_freq: np.ndarray,
+def noise_figures(design: Design, values: dict, stage: StageCircuit, op: OperatingPoint, sweep_freq: np.ndarray,
                   f_low: float, f_high: float) -> Noise:
-    """The Noise of ``design`` built as ``stage`` (device capacitances in
-    place) at ``op``; ``sweep_freq`` the response's grid (Hz), f_low and
-    f_high its corners (Hz)."""
-    v = {k: np.array([float(getattr(getattr(design, k.split(".")[0]), k.split(".")[1]))]) for k in _NOISE_KEYS}
-    out, ns, band = noise_many(stage, op, v, f_low, f_high, extra=sweep_freq)
+    """The Noise of ``design`` (its design_values ``values``) built as
+    ``stage`` (device capacitances in place) at ``op``; ``sweep_freq`` the
+    response's grid (Hz), f_low and f_high its corners (Hz)."""
+    out, ns, band = noise_many(stage, op, values, f_low, f_high, extra=sweep_freq)
     with np.errstate(all="ignore"):
         sweep = slice(band.stop, None)
         # Each source's share of the band's noise power (of the density at

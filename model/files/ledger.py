@@ -163,13 +163,21 @@ def _check_old(design: Design, entry: Entry) -> None:
     """Refuse an entry whose ``old`` values the design before it does not
     hold: the history would not tell how the design got where it is."""
     for k, c in enumerate(entry.changes, start=1):
-        if c.key != "topology" and not knows(c.key, design.topology):
-            continue  # a key the topology lacks: its old is "none", checked when read
-        held = get_value(design, c.key)
-        if held != check_key(c.key, design.topology, c.old):
-            shown = file_word(c.key, held) or held
+        differs, shown = _holds_not(design, c.key, c.old)
+        if differs:
             raise DesignError(f"history[{entry.number}].changes[{k}].old", c.old,
                               f"differs from the value the entries before it leave, {shown!r}")
+
+
+def _holds_not(design: Design, key: str, value) -> tuple[bool, object]:
+    """(whether ``design`` does not hold ``value`` for ``key``, what it holds
+    as the file shows it).  A key the design's topology lacks holds "none";
+    the rest are compared as stored values, so "none" and 0.0 (or "open"
+    and inf, as older files wrote some of them) are the same value."""
+    if key != "topology" and not knows(key, design.topology):
+        return value != NONE, NONE
+    held = get_value(design, key)
+    return held != check_key(key, design.topology, value), file_word(key, held) or held
 
 
 def stacks(history: list) -> tuple[list, list]:
@@ -196,16 +204,7 @@ def stacks(history: list) -> tuple[list, list]:
 
 def check_changes_apply(design: Design, changes: tuple) -> None:
     """Refuse to reverse a change whose new values the design no longer holds."""
-    topology = design.topology
     for c in changes:
-        if c.key != "topology" and not knows(c.key, topology):
-            # A key the design's topology lacks is "none" there.
-            if c.old != NONE:
-                raise DesignError(c.key, NONE, f"no longer holds {c.old!r}; cannot reverse that entry")
-            continue
-        current = get_value(design, c.key)
-        # Compared as stored values, so "none" and 0.0 (or "open" and inf,
-        # as older files wrote some of them) are the same value.
-        if current != check_key(c.key, design.topology, c.old):
-            shown = file_word(c.key, current) or current
+        differs, shown = _holds_not(design, c.key, c.old)
+        if differs:
             raise DesignError(c.key, shown, f"no longer holds {c.old!r}; cannot reverse that entry")
