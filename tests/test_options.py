@@ -108,3 +108,16 @@ def test_the_command_prints_and_the_json_parses(capsys):
 def test_a_bad_target_exits_2(capsys):
     assert main(["options", str(DEMO), "bogus=3"]) == 2
     assert "bogus" in capsys.readouterr().err
+
+
+def test_a_larger_emitter_resistance_costs_its_johnson_noise(demo):
+    """Raising the unbypassed re1 lowers the gain and adds its own thermal
+    noise √(4kT·re1) in series with the input (Johnson 1928, Nyquist 1928):
+    the way must show en_total among what it gives up."""
+    ways = options(demo, "av_loaded", "-30")
+    way = next(o for o in ways if o.reached and o.keys == ("stage.re1",))
+    assert way.values["stage.re1"] > get_value(demo, "stage.re1")
+    loss = next(x for x in way.losses if x.figure == "en_total")
+    assert loss.before == pytest.approx(analyse(demo).en_total, rel=1e-12)
+    assert loss.after == pytest.approx(analyse(way.design).en_total, rel=1e-12)
+    assert loss.after > loss.before

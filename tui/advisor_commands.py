@@ -8,7 +8,7 @@ target among them) becomes one line on stderr and exit status 2 in
 from __future__ import annotations
 
 from model.advisor.aim import AimResult, aim
-from model.advisor.options import options
+from model.advisor.options import COST_FIGURES, options
 from model.advisor.search import parse_target
 from model.design.fields import FIELDS
 from model.design.units import format_si
@@ -101,5 +101,5 @@ def options_lines(design, target, present: float, ways: list) -> list:
         lines.append("cannot:")
         lines += [f"  - {o.words(design)}" for o in others]
     lines.append("cost: the sum of |ln(after/before)| over the watched figures that get worse "
-                 "(swing_up, swing_down, rin, rout, p_supply, f_high, thd, yield)")
+                 f"({', '.join(COST_FIGURES)})")
     return lines

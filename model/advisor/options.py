@@ -17,7 +17,9 @@ Cost: the sum, over the figures that get worse, of |ln(after/before)| --
 equal weights, since the advisor cannot know which the designer values
 most, and a log ratio so that halving and doubling weigh alike.  The
 figures watched (COST_FIGURES) are the headroom (swing_up, swing_down),
-rin, rout, p_supply, f_high, thd and the yield; the aimed figure itself is
+rin, rout, p_supply, f_high, thd, the input-referred noise density
+en_total (a front-end's first figure: a way that buys gain with a noisier
+emitter resistance must show it) and the yield; the aimed figure itself is
 never a cost, nor is a change under NEGLIGIBLE (about 0.5 %).  Ratios
 are clipped to [1e-3, 1e3] (a swing that falls to 0 costs ln 1000 ≈ 6.9),
 and a figure that is not finite before or after (f_high with no upper
@@ -41,7 +43,7 @@ from model.files.session import ledger_yield
 
 #: The figures a way may give up, and the direction that is better for each (+1 higher).
 COST_FIGURES = {"swing_up": 1, "swing_down": 1, "rin": 1, "rout": -1, "p_supply": -1,
-                "f_high": 1, "thd": -1, "yield": 1}
+                "f_high": 1, "thd": -1, "en_total": -1, "yield": 1}
 #: Each figure's weight in the cost (equal: see the module's docstring).
 WEIGHTS = {k: 1.0 for k in COST_FIGURES}
 RATIO_CLIP = 1e3
