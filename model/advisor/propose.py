@@ -9,7 +9,8 @@ The search, a design centring on the exact batched engine:
    requested series, evaluated with one quick ``analyse_many`` call (DC and
    midband; swing judged by its load-line estimate);
 3. the best SHORTLIST rows, with capacitors sized for f_low, evaluated in
-   full (swing, distortion, corners) in one call;
+   full (swing, distortion, corners, and the noise when a spec asks for it)
+   in one call;
 4. local refinement: the neighbours of the best few on the series (each
    resistor one step up or down, r1 and r2 together), evaluated in full,
    until a round improves nothing;
@@ -45,7 +46,7 @@ from model.advisor.start import (
     low_corner,
     starting_point,
 )
-from model.analyses.batch_figures import LARGE_FIGURES, analyse_many
+from model.analyses.batch_figures import LARGE_FIGURES, NOISE_FIGURES, analyse_many
 from model.analyses.figures import design_values
 from model.design.eseries import step
 from model.design.spread_tables import Limit, Tolerance, check_spread_value, file_value
@@ -195,7 +196,10 @@ def _swing_estimate(design: Design, rows: dict, fig: dict) -> dict:
 
 
 def _quick_scores(design: Design, rows: dict, fig: dict) -> tuple:
-    quick_specs = tuple(s for s in design.spec if s.key not in LARGE_FIGURES or s.key.startswith("swing"))
+    # The noise needs the sweep, which the quick grid does not run: its specs
+    # are judged from the shortlist on, like distortion and the corners.
+    quick_specs = tuple(s for s in design.spec if s.key.startswith("swing")
+                        or s.key not in LARGE_FIGURES + NOISE_FIGURES)
     figures = {**fig, **_swing_estimate(design, rows, fig)}
     return _scores(design, rows, figures, quick_specs)
 
@@ -272,7 +276,8 @@ class _Pool:
         rows = {k: np.asarray(v, dtype=float)[keep] for k, v in rows.items()}
         quick = analyse_many(self.design.topology, _values(self.design, rows), large_signal=False)
         rows.update(_capacitors(self.design, rows, quick))
-        full = analyse_many(self.design.topology, _values(self.design, rows))
+        noise = any(s.key in NOISE_FIGURES for s in self.design.spec)
+        full = analyse_many(self.design.topology, _values(self.design, rows), noise=noise)
         self.rows += [{k: float(v[i]) for k, v in rows.items()} for i in range(len(keep))]
         for k, v in full.items():
             self.figures[k] = np.concatenate([self.figures[k], v]) if k in self.figures else np.asarray(v)
