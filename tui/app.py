@@ -197,7 +197,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
             yields = (self._yield_of(compared, True) if compared is not None else None,
                       self._yield_of(design, shown.large_signal))
         table = readout_table(shown, reference, shown_label=shown_label, reference_label=ref_label,
-                              tj_max=self.design.transistor.tj_max, yields=yields)
+                              tj_max=design.transistor.tj_max,
+                              reference_tj_max=compared.transistor.tj_max if compared is not None else None,
+                              yields=yields)
         # The readout keeps its size from one keystroke to the next, so skip the
         # layout pass that would otherwise follow every update; only the spread
         # rows coming or going (specs on one side of a comparison) change it.
