@@ -492,7 +492,7 @@ async def test_the_bundled_demo_is_copied_on_the_first_commit(tmp_path, monkeypa
     app = make_app(None)
     async with app.run_test(size=SMALL) as pilot:
         assert app.session is None
-        assert "bundled demo" in app.sub_title
+        assert "(demo, copied on commit)" in app.sub_title  # at 80 columns
         await type_into(pilot, "stage.rc", "10k")
         await pilot.press("enter")
         await pilot.pause()

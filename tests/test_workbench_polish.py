@@ -7,8 +7,14 @@ from ``model.analyse`` of the design the test expects.
 
 from __future__ import annotations
 
+import shutil
+
+import pytest
 from test_workbench import LARGE, SMALL, readout_row, region_text, screen_text, settle, type_into
 
+import tui.launch
+from tui.app import fit_where
+from tui.bundled import default_demo
 from tui.launch import make_app
 
 
@@ -42,3 +48,41 @@ async def test_tj_max_shows_its_unit_in_the_knobs_and_a_value_in_each_readout_co
         await pilot.pause()
         assert app.design.transistor.tj_max == 125.0
         assert knob_row(app, "tj_max").split() == ["tj_max", "125", "°C"]
+
+
+# -- item 11: the title --------------------------------------------------------
+
+
+def _header(app) -> str:
+    return screen_text(app).splitlines()[0]
+
+
+@pytest.mark.parametrize("size", [SMALL, LARGE])
+async def test_the_title_keeps_the_file_name_whole_and_says_it_is_a_demo(tmp_path, monkeypatch, size):
+    # A bundled demo deep in a long folder, as an installed package has it.
+    deep = tmp_path / ("site-packages-" * 4) / "tui" / "demos"
+    deep.mkdir(parents=True)
+    shutil.copyfile(default_demo(), deep / "geophone_preamp.toml")
+    monkeypatch.setattr(tui.launch, "default_demo", lambda: deep / "geophone_preamp.toml")
+    monkeypatch.chdir(tmp_path)
+    app = make_app(None)
+    async with app.run_test(size=size) as pilot:
+        await pilot.pause()
+        header = _header(app)
+        assert "geophone_preamp.toml" in header and "…" not in header.split("geophone_preamp.toml")[1]
+        assert "demo" in header and header.rstrip().endswith(")"), header
+        assert ("…/tui/demos/geophone_preamp.toml" if size == LARGE else "…/geophone_preamp.toml") in header
+        # How it is open, in as many words as fit: a commit saves a copy.
+        assert ("(bundled demo: the first commit saves a copy)" if size == LARGE
+                else "(demo, copied on commit)") in header
+
+
+def test_fit_where_shortens_the_folder_then_the_tag_never_the_name():
+    tags = ("(bundled demo: the first commit saves a copy)", "(demo)")
+    assert fit_where("/a/b.toml", tags, 80) == "/a/b.toml (bundled demo: the first commit saves a copy)"
+    assert fit_where("/a/b.toml", tags, 20) == "/a/b.toml (demo)"
+    assert fit_where("/long/folder/b.toml", tags, 22) == "…/folder/b.toml (demo)"
+    assert fit_where("/long/folder/b.toml", tags, 21) == "…/b.toml (demo)"
+    assert fit_where("/long/folder/b.toml", tags, 55) == "…/b.toml (bundled demo: the first commit saves a copy)"
+    assert fit_where("/long/folder/b.toml", tags, 5) == "…/b.toml (demo)"
+    assert fit_where("b.toml", ("",), 3) == "b.toml"

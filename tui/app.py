@@ -15,6 +15,7 @@ from __future__ import annotations
 import os
 import pathlib
 
+from rich.cells import cell_len
 from textual import work
 from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
@@ -178,14 +179,21 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     def history(self) -> list:
         return self.session.history if self.session else []
 
-    def _where(self) -> str:
-        """The sub-title: the file's path (escaped: a path may hold any byte)."""
+    def _where(self, width: int | None = None) -> str:
+        """The sub-title for a screen ``width`` columns wide: the file's path
+        (escaped: a path may hold any byte) and how it is open, shortened to
+        fit the header but never inside the file name."""
         if self.session is None:
-            where = f"{self.source} (bundled demo: the first commit saves a copy)" if self.demo_copy_dir \
-                else f"{self.source} (read-only)"
+            path = self.source
+            tags = ("(bundled demo: the first commit saves a copy)", "(demo: commit saves a copy)",
+                    "(demo, copied on commit)", "(demo)") if self.demo_copy_dir else ("(read-only)",)
         else:
-            where = self.session.path + (" (read-only)" if self.session.read_only else "")
-        return visible(where)
+            path = self.session.path
+            tags = ("(read-only)",) if self.session.read_only else ("",)
+        return fit_where(visible(path), tags, (self.size.width if width is None else width) - HEADER_ROOM)
+
+    def on_resize(self, event) -> None:
+        self.sub_title = self._where(event.size.width)
 
     # -- the readout --------------------------------------------------------------
 
@@ -425,6 +433,33 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     def on_unmount(self) -> None:
         if self.session is not None:
             self.session.close()
+
+
+#: Header columns that are not the sub-title's: its icon (8), the space kept
+#: for a clock (10) and "stageledger — " before the sub-title.
+HEADER_ROOM = 8 + 10 + len("stageledger — ")
+
+
+def fit_where(path: str, tags: tuple, width: int) -> str:
+    """``path`` and the first of ``tags`` (longest first) that fits in ``width``
+    cells, with the folder shortened from its start ("…/demos/x.toml") if need
+    be: how the file is open tells more than where it is.  The file name
+    always stays whole: it is what tells one design from another."""
+    folder, slash, name = path.rpartition("/")
+    for tag in tags:
+        if cell_len(f"{path} {tag}".strip()) <= width:
+            return f"{path} {tag}".strip()
+        if slash and cell_len(f"…/{name} {tag}".strip()) <= width:
+            break
+    else:
+        return f"{'…/' if slash else ''}{name} {tags[-1]}".strip()
+    # Whole folders from the end, as many as fit.
+    kept = ""
+    for part in reversed(folder.split("/")):
+        if cell_len(f"…/{part}{kept}/{name} {tag}".strip()) > width:
+            break
+        kept = f"/{part}{kept}"
+    return f"…{kept}/{name} {tag}".strip()
 
 
 def _free_name(path: pathlib.Path) -> pathlib.Path:
