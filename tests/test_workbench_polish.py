@@ -10,7 +10,7 @@ from __future__ import annotations
 import shutil
 
 import pytest
-from test_workbench import LARGE, SMALL, readout_row, region_text, screen_text, settle, type_into
+from test_workbench import LARGE, SMALL, readout_row, region_text, screen_text, settle, status, type_into
 
 import tui.launch
 from tui.app import fit_where
@@ -86,3 +86,28 @@ def test_fit_where_shortens_the_folder_then_the_tag_never_the_name():
     assert fit_where("/long/folder/b.toml", tags, 55) == "…/b.toml (bundled demo: the first commit saves a copy)"
     assert fit_where("/long/folder/b.toml", tags, 5) == "…/b.toml (demo)"
     assert fit_where("b.toml", ("",), 3) == "b.toml"
+
+
+# -- item 12: the status line follows the region on show -----------------------
+
+
+async def test_f3_says_what_it_shows_instead_of_the_pictures_line(preamp):
+    app = make_app(str(preamp))
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        await pilot.press("f6")
+        await settle(pilot)
+        assert status(app).startswith("picture: Bode")
+        await pilot.press("f3")
+        await pilot.pause()
+        assert app.query_one("#ledger-box").region.width > 0
+        assert status(app).startswith("ledger:") and "picture" not in status(app)
+        await pilot.press("f3")
+        await pilot.pause()
+        assert app.query_one("#readout-box").region.width > 0
+        assert status(app).startswith("readout")
+    app = make_app(str(preamp))
+    async with app.run_test(size=LARGE) as pilot:
+        await pilot.press("f3")
+        await pilot.pause()
+        assert "ledger is always beside the readout" in status(app)

@@ -390,6 +390,14 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         # The size classes (-narrow/-wide) live on the screen, so these do too.
         self._home.remove_class("-show-pictures")
         self._home.toggle_class("-show-ledger")
+        # The status line follows the region on show, or it would still be
+        # talking about the pictures the ledger just replaced.
+        if not self._home.has_class("-narrow"):
+            self._say("the ledger is always beside the readout at this width; Tab reaches its entries")
+        elif self._home.has_class("-show-ledger"):
+            self._say("ledger: Tab to an entry, Enter pins it as the baseline; F3 back to the readout")
+        else:
+            self._say("readout (F3 the ledger, F6 the pictures)")
 
     def action_baseline(self) -> None:
         self._apply(self.state.toggle_baseline())
