@@ -97,7 +97,8 @@ def header_row(app) -> str:
 
 
 def status(app) -> str:
-    return str(app.query_one("#status").content)
+    """The status line's text, its rows (at most two, wrapped at spaces) joined again."""
+    return " ".join(line.strip() for line in str(app.query_one("#status").content).splitlines())
 
 
 def knobs(app) -> Knobs:

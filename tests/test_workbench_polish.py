@@ -10,10 +10,11 @@ from __future__ import annotations
 import shutil
 
 import pytest
+from rich.cells import cell_len
 from test_workbench import LARGE, SMALL, readout_row, region_text, screen_text, settle, status, type_into
 
 import tui.launch
-from tui.app import fit_where
+from tui.app import fit_where, status_lines
 from tui.bundled import default_demo
 from tui.launch import make_app
 
@@ -111,3 +112,46 @@ async def test_f3_says_what_it_shows_instead_of_the_pictures_line(preamp):
         await pilot.press("f3")
         await pilot.pause()
         assert "ledger is always beside the readout" in status(app)
+
+
+# -- item 1: an error on the status line fits the width -----------------------
+
+
+def status_rows(app) -> list[str]:
+    """The status line's rows as the screen shows them (above the footer)."""
+    box = app.query_one("#status").region
+    return screen_text(app).splitlines()[box.y:box.y + box.height]
+
+
+async def test_a_refused_value_shows_its_rule_and_limit_within_80_columns(preamp):
+    app = make_app(str(preamp))
+    async with app.run_test(size=SMALL) as pilot:
+        await type_into(pilot, "stage.re1", "abc")
+        rows = status_rows(app)
+        assert 1 <= len(rows) <= 2 and all(len(r) <= SMALL[0] for r in rows), rows
+        shown = " ".join(r.strip() for r in rows)
+        # The row and the whole rule, with its examples, come before the text typed.
+        assert shown.startswith("✗ stage.re1: not a number")
+        assert "(examples: 4k7, 2.2k, 100n, R47)" in shown
+        assert shown.index("R47") < shown.index("'abc'")
+        # A limit: both ends of the range are on screen, and nothing is cut inside a word.
+        await type_into(pilot, "stage.re1", "-5")
+        rows = status_rows(app)
+        shown = " ".join(r.strip() for r in rows)
+        assert shown.startswith("✗ stage.re1: must be") and "Ω" in shown and "'-5'" in shown, rows
+        # Back to a valid value: one row again, the readout as tall as before.
+        height = app.query_one("#readout-box").region.height
+        await type_into(pilot, "stage.re1", "220")
+        assert len(status_rows(app)) == 1
+        assert app.query_one("#readout-box").region.height == height + 1
+
+
+def test_a_status_longer_than_two_rows_is_cut_at_a_word_with_an_ellipsis():
+    text = "✗ " + " ".join(f"word{n}" for n in range(60))
+    lines = status_lines(text, 80)
+    assert len(lines) == 2 and all(cell_len(line) <= 80 for line in lines)
+    assert lines[1].startswith("  ") and lines[1].endswith(" …")
+    assert lines[1][:-2].split()[-1] in text.split()  # a whole word before the ellipsis
+    assert status_lines("short", 80) == ["short"]
+    # Wide characters count two cells.
+    assert all(cell_len(line) <= 20 for line in status_lines("✗ " + "測" * 30, 20))

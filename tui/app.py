@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 import pathlib
+import textwrap
 
 from rich.cells import cell_len
 from textual import work
@@ -107,6 +108,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         #: Design → its Yield, for the designs with specs shown so far (a few).
         self._yields: dict = {}
         self._readout_rows = -1
+        #: The status line's last (text, error), wrapped again on a resize.
+        self._said: tuple | None = None
+        self._status_rows = 1
 
     # What the state holds, by the names the app has always used.
     @property
@@ -194,6 +198,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
 
     def on_resize(self, event) -> None:
         self.sub_title = self._where(event.size.width)
+        # The status line's latest text (not this moment's: a key may say more first).
+        self.call_after_refresh(lambda: self._said is not None and self._say(*self._said))
 
     # -- the readout --------------------------------------------------------------
 
@@ -282,8 +288,12 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         return bool(self.screen_stack) and bool(self._home.query(Picture))
 
     def _say(self, text: str, error: bool = False) -> None:
+        self._said = (text, error)
         status = self._home.query_one("#status", Static)
-        status.update(("✗ " if error else "") + text, layout=False)  # always one line
+        lines = status_lines(("✗ " if error else "") + text, self._home.size.width or self.size.width)
+        # A layout pass only when the line grows to two rows or back to one.
+        status.update("\n".join(lines), layout=len(lines) != self._status_rows)
+        self._status_rows = len(lines)
         status.set_class(error, "-error")
 
     def _commit(self, save: Save) -> None:
@@ -293,7 +303,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
             session = self._writable_session()
             entry = save.run(session)
         except StageledgerError as err:
-            self._say(f"not saved: {err}", error=True)
+            self._say(f"not saved: {_path_last(str(err), self.session.path if self.session else self.source)}",
+                      error=True)
             self.notify(visible(str(err)), title="not saved", severity="error", timeout=8, markup=False)
             return
         except Exception as err:  # noqa: BLE001 - a fault of ours: keep the candidate, say so
@@ -443,9 +454,45 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
             self.session.close()
 
 
+def _path_last(text: str, path: str) -> str:
+    """An error that opens with the file's path, the path moved to its end:
+    the reason comes first, and the header already names the file."""
+    prefix = f"{path}: "
+    return f"{text.removeprefix(prefix)} ({path})" if text.startswith(prefix) else text
+
+
 #: Header columns that are not the sub-title's: its icon (8), the space kept
 #: for a clock (10) and "stageledger — " before the sub-title.
 HEADER_ROOM = 8 + 10 + len("stageledger — ")
+
+
+#: Rows the status line may take; beyond them its end is cut, with "…".
+STATUS_ROWS = 2
+
+
+def status_lines(text: str, width: int) -> list[str]:
+    """``text`` wrapped at spaces into at most STATUS_ROWS lines of ``width``
+    cells; later lines are indented under the first word after "✗ ".  The
+    messages put what is wrong and the limit first, so a cut loses the least."""
+    width = max(width, 10)
+    indent = "  " if text.startswith("✗ ") else ""
+    lines = textwrap.wrap(text, width, subsequent_indent=indent, break_on_hyphens=False) or [""]
+    lines = [_cut(line, width) for line in lines]
+    if len(lines) > STATUS_ROWS:
+        last = lines[STATUS_ROWS - 1].removesuffix("…")
+        while cell_len(last + " …") > width:  # whole words off, so no word is left half
+            last = last.rsplit(" ", 1)[0] if " " in last.strip() else last[:-1]
+        lines = lines[:STATUS_ROWS - 1] + [last.rstrip() + " …"]
+    return lines
+
+
+def _cut(line: str, width: int) -> str:
+    """``line`` within ``width`` cells (a wide character counts two), with "…" if cut."""
+    if cell_len(line) <= width:
+        return line
+    while line and cell_len(line) > width - 1:
+        line = line[:-1]
+    return line + "…"
 
 
 def fit_where(path: str, tags: tuple, width: int) -> str:

@@ -184,8 +184,8 @@ class WorkState:
         try:
             self._set_candidate(pending)
         except StageledgerError as err:
-            self.broken[key] = (text, str(err))
-            return self._outcome(status=f"{err} (the readout keeps the last valid values)", error=True,
+            self.broken[key] = (text, refusal(err))
+            return self._outcome(status=f"{refusal(err)}; the readout keeps the last valid values", error=True,
                                  invalid=True)
         # The keys first: a candidate of several fields runs past 80 columns.
         said = f"Enter commits, Esc drops this row: candidate {self.candidate.describe()}" \
@@ -212,7 +212,8 @@ class WorkState:
             # A DesignError already opens with the key; said twice, the rule
             # that follows would be cut off at 80 columns.
             named = isinstance(err, DesignError) and err.field == key
-            return Outcome(status=f"cannot step: {err}" if named else f"{key}: cannot step: {err}", error=True)
+            return Outcome(status=f"cannot step: {key}: {err.rule}" if named else f"{key}: cannot step: {err}",
+                           error=True)
         text = field_text(key, new)
         outcome = self.edit(key, text)
         self.checkpoint(key)
@@ -377,6 +378,15 @@ class WorkState:
         """An Outcome that asks for a readout redraw if the candidate was set since the last one."""
         redraw, self._redraw = self._redraw, False
         return Outcome(readout=redraw, **fields)
+
+
+def refusal(err: StageledgerError) -> str:
+    """Why a value was refused, for the status line: the row and the rule
+    before the text that broke it, so that what is wrong and the limit come
+    first and only the least telling part is cut on a narrow screen."""
+    if isinstance(err, DesignError) and err.path is None:
+        return f"{err.field}: {err.rule} ({err.value!r} not taken)"
+    return str(err)
 
 
 def _holds(design: Design, key: str, text: str) -> bool:
