@@ -7,6 +7,7 @@ from ``model.analyse`` of the design the test expects.
 
 from __future__ import annotations
 
+import re
 import shutil
 
 import pytest
@@ -14,9 +15,12 @@ from rich.cells import cell_len
 from test_workbench import LARGE, SMALL, readout_row, region_text, screen_text, settle, status, type_into
 
 import tui.launch
+from model.design.stage import SERIES, default_design, with_values
+from model.files.session import create
 from tui.app import fit_where, status_lines
 from tui.bundled import default_demo
 from tui.launch import make_app
+from tui.screens import footer_text
 
 
 def knob_row(app, label: str) -> str:
@@ -155,3 +159,98 @@ def test_a_status_longer_than_two_rows_is_cut_at_a_word_with_an_ellipsis():
     assert status_lines("short", 80) == ["short"]
     # Wide characters count two cells.
     assert all(cell_len(line) <= 20 for line in status_lines("✗ " + "測" * 30, 20))
+
+
+# -- item 15: the footer keeps every region's key ------------------------------
+
+
+@pytest.mark.parametrize("size", [SMALL, LARGE])
+async def test_the_footer_lists_every_f_key_at_both_sizes_and_f3_reaches_the_ledger(preamp, size):
+    app = make_app(str(preamp))
+    async with app.run_test(size=size) as pilot:
+        await settle(pilot)
+        footer = screen_text(app).splitlines()[-1]
+        assert len(footer) <= size[0]
+        words = {"F1": "help", "F2": "note", "F3": "ledger", "F4": "baseline", "F5": "series",
+                 "F6": "plot" if size == SMALL else "pictures", "F7": "undo", "F8": "redo",
+                 "F9": "drop" if size == SMALL else "abandon", "F10": "quit"}
+        for key, word in words.items():
+            assert re.search(rf"(^| ){key} ?{word}\b", footer), (key, footer)
+        if size == LARGE:
+            assert "^P palette" in footer
+        # What the footer offers reaches each region on the narrow screen.
+        boxes = {name: app.query_one(f"#{name}-box") for name in ("readout", "pictures", "ledger")}
+        for key, region in (("f3", "ledger"), ("f3", "readout"), ("f6", "pictures"), ("f3", "ledger")):
+            await pilot.press(key)
+            await pilot.pause()
+            assert boxes[region].region.width > 0, (key, region)
+
+
+def test_the_footer_leaves_keys_out_only_below_the_tightest_form():
+    assert footer_text(78).plain.split() == ["F1help", "F2note", "F3ledger", "F4baseline", "F5series", "F6plot",
+                                             "F7undo", "F8redo", "F9drop", "F10quit"]
+    narrow = footer_text(40).plain
+    assert len(narrow) <= 40
+    for kept in ("F1help", "F3ledger", "F6plot"):
+        assert kept in narrow.split()
+    assert "F4baseline" not in narrow  # the first to go after the palette
+
+
+# -- item 13: the series F5 steps through --------------------------------------
+
+
+async def test_help_and_palette_name_every_series_a_file_takes_and_what_f5_cycles(preamp):
+    app = make_app(str(preamp))
+    async with app.run_test(size=LARGE) as pilot:
+        await pilot.press("f1")
+        await pilot.pause()
+        await pilot.press("end")
+        await pilot.pause()
+        help_text = " ".join(screen_text(app).split())
+        palette = dict((title, text) for title, text, _ in app.PALETTE)["Switch the preferred series"]
+        for text in (help_text, palette):
+            for series in SERIES:  # every series parts.series accepts
+                assert re.search(rf"\b{series}\b", text), (series, text)
+            assert "E12 → E24 → E96 → E12" in text
+        assert "stocked resistor ranges" in help_text
+
+
+@pytest.mark.parametrize("start, after", [("E6", "E12"), ("E12", "E24"), ("E24", "E96"), ("E48", "E96"),
+                                          ("E96", "E12")])
+async def test_f5_goes_on_to_the_next_of_the_cycle_from_any_series(tmp_path, start, after):
+    path = tmp_path / "d.toml"
+    create(str(path), with_values(default_design("common-emitter"), {"parts.series": start}))
+    app = make_app(str(path))
+    async with app.run_test(size=SMALL) as pilot:
+        await pilot.press("f5")
+        await pilot.pause()
+        assert app.design.parts.series == after
+        assert app.session.history[-1].changes[-1].new == after
+
+
+# -- item 14: the palette speaks in one voice ----------------------------------
+
+
+#: The verbs the palette's descriptions open with.
+VERBS = {"List", "Write", "Switch", "Show", "Pin", "Make", "Drop", "Undo", "Redo", "Set", "Rebuild", "Quit",
+         "Change", "Save"}
+
+
+async def test_every_palette_entry_says_what_it_does_verb_first_and_help_is_offered_once(preamp):
+    app = make_app(str(preamp))
+    async with app.run_test(size=LARGE) as pilot:
+        commands = list(app.get_system_commands(app.screen))
+        for command in commands:
+            assert command.help.split()[0] in VERBS, (command.title, command.help)
+        titles = [c.title for c in commands]
+        assert len(titles) == len(set(titles))
+        # Textual's key panel is a second help; a maximised one-line editor shows nothing more.
+        assert not {"Keys", "Maximize", "Minimize"} & set(titles)
+        # On screen: the palette opened with Ctrl+P and asked for help lists one entry.
+        await pilot.press("ctrl+p")
+        await pilot.pause()
+        await pilot.press(*"help")
+        await pilot.pause(0.3)
+        shown = screen_text(app)
+        assert "List every key and what it does (F1)" in shown
+        assert "summary of available keys" not in shown

@@ -22,7 +22,7 @@ from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.message import Message
-from textual.widgets import Footer, Header, OptionList, Static
+from textual.widgets import Header, OptionList, Static
 
 from model.analyses.figures import Figures, analyse
 from model.design.stage import Design, with_article
@@ -38,12 +38,12 @@ from .messages import LargeSignalReady, YieldReady
 from .pictures_pane import PicturesPane
 from .readout_table import PENDING, readout_table, warnings_text
 from .safe_text import internal_error, visible
-from .screens import HelpScreen, NotePrompt
+from .screens import HelpScreen, NotePrompt, footer_text
 from .topology_screen import TopologyDialog
 from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
-from .workstate import Baseline, Candidate, Save, WorkState
+from .workstate import SERIES_CYCLE_TEXT, Baseline, Candidate, Save, WorkState
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.
 DEBOUNCE = 0.15
@@ -70,8 +70,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     TITLE = "stageledger"
     HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]
     BINDINGS = [
-        # The footer shows the first key of each; F3 and F5 are left to the help
-        # screen so that the rest fits at 80 columns.
+        # The footer line is our own (tui.screens.FOOTER): ``show`` matters
+        # only to Textual's key panel.
         Binding("f1", "help", "help", id="help"),
         # Priority: the prompt must be up before the keys typed behind F2
         # are handed on, or the note would land in a field.
@@ -159,7 +159,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
                     yield Static("Ledger", classes="pane-title")
                     yield LedgerPane(id="ledger")
         yield Static(id="status", markup=False)
-        yield Footer()
+        # Our own footer line, not Textual's: it shows every key a region
+        # needs at 80 columns (see footer_text), where Textual's cuts them.
+        yield Static(footer_text(width), id="keys")
 
     def on_mount(self) -> None:
         self.sub_title = self._where()
@@ -198,6 +200,7 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
 
     def on_resize(self, event) -> None:
         self.sub_title = self._where(event.size.width)
+        self._home.query_one("#keys", Static).update(footer_text(event.size.width))
         # The status line's latest text (not this moment's: a key may say more first).
         self.call_after_refresh(lambda: self._said is not None and self._say(*self._said))
 
@@ -339,29 +342,43 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
 
     # -- actions ----------------------------------------------------------------
 
-    #: Every action by name for the command palette (Ctrl+P), with its keys.
+    #: Every action by name for the command palette (Ctrl+P): its title, what
+    #: it does (a verb first) with its keys, and the action.
     PALETTE = (
-        ("Help", "list every key (F1)", "help"),
-        ("Note for the next commit", "F2 or Ctrl+N", "note"),
-        ("Show ledger / readout", "switch on a narrow screen (F3)", "toggle_ledger"),
-        ("Show pictures / next picture", "Bode, load lines (q2's too), transfer, spread, knob effects (F6)",
-         "picture"),
-        ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
-        ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
-        ("Abandon", "this row's pending value, or on a row with none the whole candidate (Esc or F9)",
+        ("Help", "List every key and what it does (F1)", "help"),
+        ("Note for the next commit", "Write a note that the next logged change carries (F2 or Ctrl+N)", "note"),
+        ("Show ledger / readout", "Switch between the Ledger and the Readout on a narrow screen (F3)",
+         "toggle_ledger"),
+        ("Show pictures / next picture", "Show the pictures, then step to the next: Bode, noise, load lines "
+         "(q2's too), transfer, spread, knob effects (F6)", "picture"),
+        ("Next spread figure", "Show the spread of the next figure, the design's specs first (Ctrl+G)",
+         "spread_figure"),
+        ("Pin or unpin the baseline", "Pin the committed design as it is now to compare against, or unpin it (F4)",
+         "baseline"),
+        ("Switch the preferred series", f"Make the next of {SERIES_CYCLE_TEXT} the series values step along, a logged "
+         "change; a file's E6 or E48 goes on to the next of these (F5)", "cycle_series"),
+        ("Abandon", "Drop this row's pending value, or on a row with none the whole candidate (Esc or F9)",
          "abandon"),
-        ("Undo", "the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
-        ("Redo", "the last undone change, logged (F8 or Ctrl+Y)", "redo"),
-        ("Aim the knob at a target", "FIGURE=TARGET by the knob under the cursor, as a candidate (Ctrl+T)", "aim"),
-        ("Options for a target", "every usual way to FIGURE=TARGET, cheapest first (Ctrl+O)", "options"),
-        ("Change the topology", "one of the seven stages, logged; shared keys keep their values (Ctrl+R)",
-         "topology"),
+        ("Undo", "Undo the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
+        ("Redo", "Redo the last undone change, logged as a new entry (F8 or Ctrl+Y)", "redo"),
+        ("Aim the knob at a target", "Set the knob under the cursor so that FIGURE=TARGET holds, "
+         "as a candidate (Ctrl+T)", "aim"),
+        ("Options for a target", "List every usual way to reach FIGURE=TARGET, cheapest first (Ctrl+O)", "options"),
+        ("Change the topology", "Rebuild the design as one of the seven stages, logged; shared keys keep "
+         "their values (Ctrl+R)", "topology"),
+        ("Quit", "Quit the workbench; every commit is already saved (F10 or Ctrl+Q)", "quit"),
     )
 
     def get_system_commands(self, screen):
-        yield from super().get_system_commands(screen)
+        # Ours, and of Textual's only the two that apply here, in our words:
+        # its key panel would be a second help, and maximising the one-line
+        # editor shows nothing more.
         for title, text, action in self.PALETTE:
             yield SystemCommand(title, text, getattr(self, "action_" + action))
+        yield SystemCommand("Theme", "Change the colours (ansi-dark and ansi-light follow the terminal's own)",
+                            self.action_change_theme)
+        yield SystemCommand("Screenshot", "Save the screen as an SVG file in the current folder",
+                            lambda: self.set_timer(0.1, self.deliver_screenshot))
 
     # Tab and Shift+Tab from the readout or the ledger: entering the Knobs
     # forward lands on the first row, backward on the last, as a focus

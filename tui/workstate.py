@@ -27,6 +27,14 @@ from .fieldtext import field_text
 from .safe_text import internal_error
 
 
+#: The series F5 steps through, in turn: the resistor ranges stocked as
+#: standard (10 %, 5 % and 1 % parts).  A file may also name E6 (mostly a
+#: capacitor range) or E48 (2 %, priced as 1 %); F5 goes on from either to
+#: the next of these.
+SERIES_CYCLE = ("E12", "E24", "E96")
+SERIES_CYCLE_TEXT = " → ".join(SERIES_CYCLE + SERIES_CYCLE[:1])
+
+
 @dataclass(frozen=True)
 class Candidate:
     """Uncommitted values, one or more fields at once, and what they would do.
@@ -301,9 +309,10 @@ class WorkState:
         return Save(lambda s: s.redo(note), keep=True)
 
     def next_series(self) -> Save:
-        """F5: the next preferred series (E12 → E24 → E96 → E12), logged."""
+        """F5: the next of SERIES_CYCLE after the design's series (in the order
+        of SERIES, so E6 → E12 and E48 → E96), logged."""
         current = self.design.parts.series
-        wanted = next((s for s in ("E12", "E24", "E96") if SERIES.index(s) > SERIES.index(current)), "E12")
+        wanted = next((s for s in SERIES_CYCLE if SERIES.index(s) > SERIES.index(current)), SERIES_CYCLE[0])
         note = self.note or f"step along {wanted}"
         return Save(lambda s: s.commit({"parts.series": wanted}, note), keep=True)
 
