@@ -26,7 +26,6 @@ from model.errors import DesignError, StageledgerError
 from .fieldtext import field_text
 from .safe_text import internal_error
 
-
 #: The series F5 steps through, in turn: the resistor ranges stocked as
 #: standard (10 %, 5 % and 1 % parts).  A file may also name E6 (mostly a
 #: capacitor range) or E48 (2 %, priced as 1 %); F5 goes on from either to
