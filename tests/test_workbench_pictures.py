@@ -19,6 +19,7 @@ from model.design.stage import TOPOLOGIES, default_design, with_values
 from model.design.units import format_si, parse_value
 from tui.chart import render_stack
 from tui.launch import make_app
+from tui.messages import PictureReady
 from tui.pictures import BODE, LOAD_LINES, NEAR_Q_SPAN, NOISE, PICTURES, TRANSFER, bode, charts_for
 from tui.readout_table import readout_table
 
@@ -229,3 +230,25 @@ def test_a_large_amplitude_needs_no_near_q_view():
     small = with_values(design, {"source.vpk": 1e-3})
     charts = charts_for(TRANSFER, small, analyse(small))
     assert len(charts) == 2 and charts[1].x.hi == pytest.approx(NEAR_Q_SPAN * 1e-3)
+
+
+async def test_a_picture_dropped_while_another_design_was_on_show_is_drawn_when_it_is_back(preamp):
+    """The committed design's Bode arrives while a candidate is on show (so it
+    is dropped); once Esc brings the committed design back, its picture is
+    drawn again rather than the candidate's left beside the committed Readout."""
+    app = make_app(str(preamp))
+    async with app.run_test(size=LARGE) as pilot:
+        await settle(pilot)
+        committed, fig = app.design, app.figures
+        await type_into(pilot, "load.cl", "1n")
+        await settle(pilot)
+        candidate = analyse(with_values(committed, {"load.cl": 1e-9}))
+        assert f"H f_high {format_si(candidate.f_high, 'Hz')}" in picture(app)
+        # A draw of the committed design, asked for and arriving now, under the candidate.
+        size = app._picture_asked[3]
+        app._picture_asked = (committed, BODE, app._picture_key(), size)
+        app.post_message(PictureReady(committed, (BODE, app._picture_key()), (), None))
+        await pilot.pause()
+        await pilot.press("escape")
+        await settle(pilot)
+        assert f"H f_high {format_si(fig.f_high, 'Hz')}" in picture(app)

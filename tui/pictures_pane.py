@@ -91,6 +91,12 @@ class PicturesPane:
         if not self._in_service():
             return
         if message.design != self.state.on_show()[0] or message.kind != (self.picture_kind, self._picture_key()):
+            # Dropped: if it was the one last asked for, asking again must
+            # draw it, or the picture would keep an older design's figures
+            # (a corner the Readout no longer shows) once that design is back.
+            asked = self._picture_asked
+            if asked is not None and (asked[0], asked[1:3]) == (message.design, message.kind):
+                self._picture_asked = None
             return
         self._home.query_one(Picture).show(message.charts, message.rendered)
 
