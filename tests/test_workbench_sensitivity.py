@@ -14,9 +14,10 @@ from test_workbench import LARGE, SMALL, knobs, settle
 from test_workbench_pictures import picture
 
 from model.advisor.sensitivity import sensitivity_matrix
+from tui.chart_scale import minus_signs
 from tui.launch import make_app
 from tui.pictures import KNOB_EFFECTS, PICTURES
-from tui.sensitivity_text import cell
+from tui.sensitivity_text import cell as text_cell
 
 
 async def _show_knob_effects(pilot) -> None:
@@ -24,6 +25,11 @@ async def _show_knob_effects(pilot) -> None:
         await pilot.press("f6")
         await settle(pilot)
     assert pilot.app.picture_kind == KNOB_EFFECTS
+
+
+def cell(value: float) -> str:
+    """A change as the picture writes it: the table's text, with the pictures' minus sign."""
+    return minus_signs(text_cell(value))
 
 
 def _row_line(shown: str, figure: str) -> str:

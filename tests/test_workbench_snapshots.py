@@ -59,12 +59,36 @@ def test_candidate_with_ledger_120x40(app, snap_compare):
 
 
 def test_load_lines_picture_80x24(app, snap_compare):
-    """The pictures take the readout's place on a narrow screen (F6 twice:
-    show them, then step from the Bode plot to the load lines)."""
+    """The pictures take the readout's place on a narrow screen (F6 three
+    times: show them, then step from the Bode plot past the noise to the
+    load lines)."""
     async def before(pilot):
         _steady(pilot)
         await settle(pilot)
-        await pilot.press("f6", "f6")
+        await pilot.press("f6", "f6", "f6")
+        await settle(pilot)
+
+    assert snap_compare(app, terminal_size=(80, 24), run_before=before)
+
+
+def test_transfer_picture_80x24(app, snap_compare):
+    """The transfer, with the view around Q where ±vpk can be read."""
+    async def before(pilot):
+        _steady(pilot)
+        await settle(pilot)
+        await pilot.press("f6", "f6", "f6", "f6")
+        await settle(pilot)
+
+    assert snap_compare(app, terminal_size=(80, 24), run_before=before)
+
+
+def test_refused_value_80x24(app, snap_compare):
+    """A value that is not a number: the rule on the status line, on two rows."""
+    async def before(pilot):
+        _steady(pilot)
+        await settle(pilot)
+        # From vcc, where the editor starts, to re1: r1, r2, rc, re1.
+        await pilot.press("tab", "tab", "tab", "tab", "a", "b", "c")
         await settle(pilot)
 
     assert snap_compare(app, terminal_size=(80, 24), run_before=before)

@@ -14,13 +14,15 @@ from __future__ import annotations
 
 import os
 import pathlib
+import textwrap
 
+from rich.cells import cell_len
 from textual import work
 from textual.app import App, ComposeResult, SystemCommand
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.message import Message
-from textual.widgets import Footer, Header, OptionList, Static
+from textual.widgets import Header, OptionList, Static
 
 from model.analyses.figures import Figures, analyse
 from model.design.stage import Design, with_article
@@ -36,12 +38,12 @@ from .messages import LargeSignalReady, YieldReady
 from .pictures_pane import PicturesPane
 from .readout_table import PENDING, readout_table, warnings_text
 from .safe_text import internal_error, visible
-from .screens import HelpScreen, NotePrompt
+from .screens import HelpScreen, NotePrompt, footer_text
 from .topology_screen import TopologyDialog
 from .widgets.knobs import KnobAbandoned, Knobs
 from .widgets.ledger_pane import LedgerPane
 from .widgets.picture import Picture
-from .workstate import Baseline, Candidate, Save, WorkState
+from .workstate import SERIES_CYCLE_TEXT, Baseline, Candidate, Save, WorkState
 
 #: Seconds of quiet typing before the swing and distortion sweep starts.
 DEBOUNCE = 0.15
@@ -68,8 +70,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     TITLE = "stageledger"
     HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]
     BINDINGS = [
-        # The footer shows the first key of each; F3 and F5 are left to the help
-        # screen so that the rest fits at 80 columns.
+        # The footer line is our own (tui.screens.FOOTER): ``show`` matters
+        # only to Textual's key panel.
         Binding("f1", "help", "help", id="help"),
         # Priority: the prompt must be up before the keys typed behind F2
         # are handed on, or the note would land in a field.
@@ -106,6 +108,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         #: Design → its Yield, for the designs with specs shown so far (a few).
         self._yields: dict = {}
         self._readout_rows = -1
+        #: The status line's last (text, error), wrapped again on a resize.
+        self._said: tuple | None = None
+        self._status_rows = 1
 
     # What the state holds, by the names the app has always used.
     @property
@@ -154,7 +159,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
                     yield Static("Ledger", classes="pane-title")
                     yield LedgerPane(id="ledger")
         yield Static(id="status", markup=False)
-        yield Footer()
+        # Our own footer line, not Textual's: it shows every key a region
+        # needs at 80 columns (see footer_text), where Textual's cuts them.
+        yield Static(footer_text(width), id="keys")
 
     def on_mount(self) -> None:
         self.sub_title = self._where()
@@ -178,14 +185,24 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     def history(self) -> list:
         return self.session.history if self.session else []
 
-    def _where(self) -> str:
-        """The sub-title: the file's path (escaped: a path may hold any byte)."""
+    def _where(self, width: int | None = None) -> str:
+        """The sub-title for a screen ``width`` columns wide: the file's path
+        (escaped: a path may hold any byte) and how it is open, shortened to
+        fit the header but never inside the file name."""
         if self.session is None:
-            where = f"{self.source} (bundled demo: the first commit saves a copy)" if self.demo_copy_dir \
-                else f"{self.source} (read-only)"
+            path = self.source
+            tags = ("(bundled demo: the first commit saves a copy)", "(demo: commit saves a copy)",
+                    "(demo, copied on commit)", "(demo)") if self.demo_copy_dir else ("(read-only)",)
         else:
-            where = self.session.path + (" (read-only)" if self.session.read_only else "")
-        return visible(where)
+            path = self.session.path
+            tags = ("(read-only)",) if self.session.read_only else ("",)
+        return fit_where(visible(path), tags, (self.size.width if width is None else width) - HEADER_ROOM)
+
+    def on_resize(self, event) -> None:
+        self.sub_title = self._where(event.size.width)
+        self._home.query_one("#keys", Static).update(footer_text(event.size.width))
+        # The status line's latest text (not this moment's: a key may say more first).
+        self.call_after_refresh(lambda: self._said is not None and self._say(*self._said))
 
     # -- the readout --------------------------------------------------------------
 
@@ -197,7 +214,9 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
             yields = (self._yield_of(compared, True) if compared is not None else None,
                       self._yield_of(design, shown.large_signal))
         table = readout_table(shown, reference, shown_label=shown_label, reference_label=ref_label,
-                              tj_max=self.design.transistor.tj_max, yields=yields)
+                              tj_max=design.transistor.tj_max,
+                              reference_tj_max=compared.transistor.tj_max if compared is not None else None,
+                              yields=yields)
         # The readout keeps its size from one keystroke to the next, so skip the
         # layout pass that would otherwise follow every update; only the spread
         # rows coming or going (specs on one side of a comparison) change it.
@@ -272,8 +291,12 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         return bool(self.screen_stack) and bool(self._home.query(Picture))
 
     def _say(self, text: str, error: bool = False) -> None:
+        self._said = (text, error)
         status = self._home.query_one("#status", Static)
-        status.update(("✗ " if error else "") + text, layout=False)  # always one line
+        lines = status_lines(("✗ " if error else "") + text, self._home.size.width or self.size.width)
+        # A layout pass only when the line grows to two rows or back to one.
+        status.update("\n".join(lines), layout=len(lines) != self._status_rows)
+        self._status_rows = len(lines)
         status.set_class(error, "-error")
 
     def _commit(self, save: Save) -> None:
@@ -283,7 +306,8 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
             session = self._writable_session()
             entry = save.run(session)
         except StageledgerError as err:
-            self._say(f"not saved: {err}", error=True)
+            self._say(f"not saved: {_path_last(str(err), self.session.path if self.session else self.source)}",
+                      error=True)
             self.notify(visible(str(err)), title="not saved", severity="error", timeout=8, markup=False)
             return
         except Exception as err:  # noqa: BLE001 - a fault of ours: keep the candidate, say so
@@ -318,29 +342,43 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
 
     # -- actions ----------------------------------------------------------------
 
-    #: Every action by name for the command palette (Ctrl+P), with its keys.
+    #: Every action by name for the command palette (Ctrl+P): its title, what
+    #: it does (a verb first) with its keys, and the action.
     PALETTE = (
-        ("Help", "list every key (F1)", "help"),
-        ("Note for the next commit", "F2 or Ctrl+N", "note"),
-        ("Show ledger / readout", "switch on a narrow screen (F3)", "toggle_ledger"),
-        ("Show pictures / next picture", "Bode, load lines (q2's too), transfer, spread, knob effects (F6)",
-         "picture"),
-        ("Pin or unpin the baseline", "compare against the committed design as it is now (F4)", "baseline"),
-        ("Switch the preferred series", "E12, E24, E96; logged (F5)", "cycle_series"),
-        ("Abandon", "this row's pending value, or on a row with none the whole candidate (Esc or F9)",
+        ("Help", "List every key and what it does (F1)", "help"),
+        ("Note for the next commit", "Write a note that the next logged change carries (F2 or Ctrl+N)", "note"),
+        ("Show ledger / readout", "Switch between the Ledger and the Readout on a narrow screen (F3)",
+         "toggle_ledger"),
+        ("Show pictures / next picture", "Show the pictures, then step to the next: Bode, noise, load lines "
+         "(q2's too), transfer, spread, knob effects (F6)", "picture"),
+        ("Next spread figure", "Show the spread of the next figure, the design's specs first (Ctrl+G)",
+         "spread_figure"),
+        ("Pin or unpin the baseline", "Pin the committed design as it is now to compare against, or unpin it (F4)",
+         "baseline"),
+        ("Switch the preferred series", f"Make the next of {SERIES_CYCLE_TEXT} the series values step along, a logged "
+         "change; a file's E6 or E48 goes on to the next of these (F5)", "cycle_series"),
+        ("Abandon", "Drop this row's pending value, or on a row with none the whole candidate (Esc or F9)",
          "abandon"),
-        ("Undo", "the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
-        ("Redo", "the last undone change, logged (F8 or Ctrl+Y)", "redo"),
-        ("Aim the knob at a target", "FIGURE=TARGET by the knob under the cursor, as a candidate (Ctrl+T)", "aim"),
-        ("Options for a target", "every usual way to FIGURE=TARGET, cheapest first (Ctrl+O)", "options"),
-        ("Change the topology", "one of the seven stages, logged; shared keys keep their values (Ctrl+R)",
-         "topology"),
+        ("Undo", "Undo the last change, logged as a new entry (F7 or Ctrl+Z)", "undo"),
+        ("Redo", "Redo the last undone change, logged as a new entry (F8 or Ctrl+Y)", "redo"),
+        ("Aim the knob at a target", "Set the knob under the cursor so that FIGURE=TARGET holds, "
+         "as a candidate (Ctrl+T)", "aim"),
+        ("Options for a target", "List every usual way to reach FIGURE=TARGET, cheapest first (Ctrl+O)", "options"),
+        ("Change the topology", "Rebuild the design as one of the seven stages, logged; shared keys keep "
+         "their values (Ctrl+R)", "topology"),
+        ("Quit", "Quit the workbench; every commit is already saved (F10 or Ctrl+Q)", "quit"),
     )
 
     def get_system_commands(self, screen):
-        yield from super().get_system_commands(screen)
+        # Ours, and of Textual's only the two that apply here, in our words:
+        # its key panel would be a second help, and maximising the one-line
+        # editor shows nothing more.
         for title, text, action in self.PALETTE:
             yield SystemCommand(title, text, getattr(self, "action_" + action))
+        yield SystemCommand("Theme", "Change the colours (ansi-dark and ansi-light follow the terminal's own)",
+                            self.action_change_theme)
+        yield SystemCommand("Screenshot", "Save the screen as an SVG file in the current folder",
+                            lambda: self.set_timer(0.1, self.deliver_screenshot))
 
     # Tab and Shift+Tab from the readout or the ledger: entering the Knobs
     # forward lands on the first row, backward on the last, as a focus
@@ -380,6 +418,14 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
         # The size classes (-narrow/-wide) live on the screen, so these do too.
         self._home.remove_class("-show-pictures")
         self._home.toggle_class("-show-ledger")
+        # The status line follows the region on show, or it would still be
+        # talking about the pictures the ledger just replaced.
+        if not self._home.has_class("-narrow"):
+            self._say("the ledger is always beside the readout at this width; Tab reaches its entries")
+        elif self._home.has_class("-show-ledger"):
+            self._say("ledger: Tab to an entry, Enter pins it as the baseline; F3 back to the readout")
+        else:
+            self._say("readout (F3 the ledger, F6 the pictures)")
 
     def action_baseline(self) -> None:
         self._apply(self.state.toggle_baseline())
@@ -423,6 +469,69 @@ class Workbench(Editing, PicturesPane, AdvisorActions, App):
     def on_unmount(self) -> None:
         if self.session is not None:
             self.session.close()
+
+
+def _path_last(text: str, path: str) -> str:
+    """An error that opens with the file's path, the path moved to its end:
+    the reason comes first, and the header already names the file."""
+    prefix = f"{path}: "
+    return f"{text.removeprefix(prefix)} ({path})" if text.startswith(prefix) else text
+
+
+#: Header columns that are not the sub-title's: its icon (8), the space kept
+#: for a clock (10) and "stageledger — " before the sub-title.
+HEADER_ROOM = 8 + 10 + len("stageledger — ")
+
+
+#: Rows the status line may take; beyond them its end is cut, with "…".
+STATUS_ROWS = 2
+
+
+def status_lines(text: str, width: int) -> list[str]:
+    """``text`` wrapped at spaces into at most STATUS_ROWS lines of ``width``
+    cells; later lines are indented under the first word after "✗ ".  The
+    messages put what is wrong and the limit first, so a cut loses the least."""
+    width = max(width, 10)
+    indent = "  " if text.startswith("✗ ") else ""
+    lines = textwrap.wrap(text, width, subsequent_indent=indent, break_on_hyphens=False) or [""]
+    lines = [_cut(line, width) for line in lines]
+    if len(lines) > STATUS_ROWS:
+        last = lines[STATUS_ROWS - 1].removesuffix("…")
+        while cell_len(last + " …") > width:  # whole words off, so no word is left half
+            last = last.rsplit(" ", 1)[0] if " " in last.strip() else last[:-1]
+        lines = lines[:STATUS_ROWS - 1] + [last.rstrip() + " …"]
+    return lines
+
+
+def _cut(line: str, width: int) -> str:
+    """``line`` within ``width`` cells (a wide character counts two), with "…" if cut."""
+    if cell_len(line) <= width:
+        return line
+    while line and cell_len(line) > width - 1:
+        line = line[:-1]
+    return line + "…"
+
+
+def fit_where(path: str, tags: tuple, width: int) -> str:
+    """``path`` and the first of ``tags`` (longest first) that fits in ``width``
+    cells, with the folder shortened from its start ("…/demos/x.toml") if need
+    be: how the file is open tells more than where it is.  The file name
+    always stays whole: it is what tells one design from another."""
+    folder, slash, name = path.rpartition("/")
+    for tag in tags:
+        if cell_len(f"{path} {tag}".strip()) <= width:
+            return f"{path} {tag}".strip()
+        if slash and cell_len(f"…/{name} {tag}".strip()) <= width:
+            break
+    else:
+        return f"{'…/' if slash else ''}{name} {tags[-1]}".strip()
+    # Whole folders from the end, as many as fit.
+    kept = ""
+    for part in reversed(folder.split("/")):
+        if cell_len(f"…/{part}{kept}/{name} {tag}".strip()) > width:
+            break
+        kept = f"/{part}{kept}"
+    return f"…{kept}/{name} {tag}".strip()
 
 
 def _free_name(path: pathlib.Path) -> pathlib.Path:

@@ -16,7 +16,7 @@ import numpy as np
 
 from model.design.units import format_si
 
-from .chart_scale import axis_range, finite, scaled, tick_labels, ticks
+from .chart_scale import axis_range, finite, minus, rounded_out, scaled, tick_labels, ticks
 
 __all__ = ["Axis", "Series", "Marker", "Spot", "Chart", "render", "render_stack"]
 
@@ -36,12 +36,15 @@ _GLYPHS = np.array([" "] + [chr(0x2800 + code) for code in range(1, 256)], dtype
 
 @dataclass(frozen=True)
 class Axis:
-    """One axis: its name, unit and range (``None`` ends follow the data)."""
+    """One axis: its name, unit and range (``None`` ends follow the data).
+    ``round_ends`` moves the ends out to the nearest ticks, so that every
+    value on the axis lies between two labelled ticks."""
     label: str
     unit: str
     log: bool = False
     lo: float | None = None
     hi: float | None = None
+    round_ends: bool = False
 
 
 @dataclass(frozen=True)
@@ -56,10 +59,13 @@ class Series:
 
 @dataclass(frozen=True)
 class Marker:
-    """A vertical line at ``x`` (x-axis unit), such as a corner frequency."""
+    """A vertical line at ``x`` (x-axis unit), such as a corner frequency;
+    ``text`` is its value as the legend writes it (None: the chart formats
+    ``x``), so a figure shown elsewhere too reads the same in both places."""
     x: float
     symbol: str
     label: str
+    text: str | None = None
 
 
 @dataclass(frozen=True)
@@ -128,8 +134,10 @@ def _legend_items(chart: Chart, x_range, y_range) -> list[str]:
     items = [f"{s.mark or LINE_KEY} {s.label}" for s in chart.series]
     for m in chart.markers if chart.marker_legend else ():
         off = "" if _inside(chart.x, m.x, x_range) else " (off chart)"
-        items.append(f"{m.symbol} {m.label} {format_si(m.x, chart.x.unit)}{off}")
-    for s in chart.spots:
+        item = f"{m.symbol} {m.label} {m.text or minus(format_si(m.x, chart.x.unit))}{off}"
+        if item not in items:  # a pair of marks (±vpk) explained once
+            items.append(item)
+    for s in chart.spots if chart.marker_legend else ():
         inside = _inside(chart.x, s.x, x_range) and _inside(chart.y, s.y, y_range)
         items.append(f"{s.symbol} {s.label}" + ("" if inside else " (off chart)"))
     return items
@@ -167,6 +175,8 @@ def _frame(chart: Chart, width: int, height: int, gutter: int = 0, right: int = 
     if plot_rows < _MIN_PLOT_ROWS:
         return None
     y_values = ticks(chart.y, *y_range, count=max(2, plot_rows // 3))
+    if chart.y.round_ends and not chart.y.log:
+        y_range, y_values = rounded_out(y_range, y_values)
     y_ticks = tick_labels(y_values, chart.y.unit)
     gutter = max(gutter, max((_cells(t) for _, t in y_ticks), default=0))
     # The x labels depend on the plot width and the width on the widest

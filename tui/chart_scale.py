@@ -7,6 +7,7 @@ the axis ends, and tick values with labels that tell neighbours apart.
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 
@@ -100,5 +101,31 @@ def tick_labels(values: list[float], unit: str) -> tuple:
     for value in values:
         allowed = 1e-6 * abs(value) if tolerance is None else tolerance
         digits = next((d for d in range(1, 13) if abs(float(f"{value:.{d - 1}e}") - value) <= allowed), 12)
-        pairs.append((value, format_si(value, unit, digits)))
+        pairs.append((value, minus(format_si(value, unit, digits))))
     return tuple(pairs)
+
+
+def rounded_out(ends: tuple, values: list[float]) -> tuple:
+    """Axis ends moved out to the multiples of the tick step just beyond
+    them, and the ticks between: every value then lies between two labels."""
+    if len(values) < 2:
+        return ends, values
+    step = values[1] - values[0]
+    first, last = math.floor(ends[0] / step + 1e-9), math.ceil(ends[1] / step - 1e-9)
+    ticks_out = [0.0 if k == 0 else k * step for k in range(first, last + 1)]
+    return (first * step, last * step), ticks_out
+
+
+_HYPHEN_MINUS = re.compile(r"(?<![\w.])-(?=[\d.])")
+
+
+def minus_signs(text: str) -> str:
+    """Text with U+2212 for each hyphen that is a number's sign ("-0.26 %"),
+    leaving hyphens inside words ("cut-off") as they are."""
+    return _HYPHEN_MINUS.sub("\u2212", text)
+
+
+def minus(number: str) -> str:
+    """A formatted number with the minus sign U+2212 for its hyphens (a sign,
+    or an exponent's): one minus sign in every picture."""
+    return number.replace("-", "\u2212")

@@ -18,7 +18,10 @@ def field_text(key: str, value) -> str:
     if word is not None:
         return word
     if unit == "°C":
-        return f"{value:g}"
+        # No SI prefix for a temperature ("150 °C", never "150 k…"), but the
+        # unit all the same, as every other row shows its own.
+        text = f"{value:g}"
+        return f"{text if float(text) == value else repr(value)} °C"
     for digits in range(3, 13):
         text = format_si(value, unit, digits)
         try:

@@ -17,13 +17,16 @@ import math
 import numpy as np
 
 from model.analyses.curves import StageCurves, stage_curves
-from model.analyses.figures import Figures
+from model.analyses.figures import Figures, design_values
 from model.analyses.loadlines import LoadLines, design_load_lines
-from model.circuit.topologies import FOLLOWER
+from model.analyses.transfer import TransferCurve, transfer_curve
+from model.circuit.newton import operating_point
+from model.circuit.topologies import FOLLOWER, build
 from model.design.stage import TWO_TRANSISTORS, Design
 
 from .chart import Axis, Chart, Marker, Series, Spot
 from .noise_picture import noise_chart
+from .readout_table import show
 from .spread_picture import spread_chart
 
 BODE, NOISE, LOAD_LINES, TRANSFER, SPREAD = "Bode", "noise", "load lines", "transfer", "spread"
@@ -70,12 +73,15 @@ def bode(design: Design, fig: Figures) -> tuple:
     if r is None:
         return ()
     x = Axis("f", "Hz", log=True, lo=float(r.freq[0]), hi=float(r.freq[-1]))
+    # The corners are the Readout's own figures, written by its own formatter,
+    # so the legend and the Readout never show one corner two ways.
     markers = tuple(
-        Marker(f, symbol, label) for f, symbol, label in (
-            (r.f_low, "L", "f_low"), (r.f_high, "H", "f_high"), (design.source.freq, "F", "signal"))
+        Marker(f, symbol, label, show(f, "Hz")) for f, symbol, label in (
+            (fig.f_low, "L", "f_low"), (fig.f_high, "H", "f_high"), (design.source.freq, "F", "signal"))
         if math.isfinite(f) and f > 0
     )
-    gain = Chart("Bode of av_source", x, Axis("gain", "dB"),
+    # Ends on whole ticks: the midband gain, the curve's top, lies between two labels.
+    gain = Chart("Bode of av_source", x, Axis("gain", "dB", round_ends=True),
                  series=(Series(r.freq, r.magnitude_db(), "gain"),), markers=markers, x_ticks=False)
     # The same marks as above, explained once: the rows go to the curve.
     phase = Chart("Bode phase", x, Axis("phase", "°"),
@@ -117,18 +123,48 @@ def _lines_chart(title: str, ll: LoadLines, spots: list, vce_reached: float, ic_
     ),)
 
 
+#: The near-Q view is drawn when ±vpk spans less than this share of the full
+#: view's EMF range, where its marks would sit within a cell or two of Q.
+NEAR_Q_SHARE = 0.1
+#: The near-Q view's EMF range, in multiples of vpk either side of Q, and its points.
+NEAR_Q_SPAN, NEAR_Q_POINTS = 2.5, 41
+
+
 def transfer_chart(design: Design, c: StageCurves) -> tuple:
     """Load voltage against source EMF with the clip points, the quiescent
-    point and the requested amplitude ±vpk marked."""
+    point and the requested amplitude ±vpk marked; when ±vpk is too small a
+    part of that range to read, a second view around Q spans ±2.5·vpk."""
     curve = c.curve
     vpk = design.source.vpk
-    markers = tuple(Marker(x, "A", label) for x, label in ((vpk, "+vpk"), (-vpk, "−vpk")) if vpk > 0)
+    # One legend entry for the pair: the marks are the same letter either side of Q.
+    markers = tuple(Marker(x, "A", "±vpk", show(vpk, "V")) for x in (vpk, -vpk)) if vpk > 0 else ()
     spots = [Spot(0.0, 0.0, "Q", "quiescent")]
-    spots += [Spot(e.emf, e.out, *_REGION_MARK[e.region]) for e in c.edges if e.region in _REGION_MARK]
-    return (Chart(
+    # "saturation", not "saturation edge": the legend must fit two rows of half a picture.
+    spots += [Spot(e.emf, e.out, _REGION_MARK[e.region][0], _REGION_MARK[e.region][1].removesuffix(" edge"))
+              for e in c.edges if e.region in _REGION_MARK]
+    whole = Chart(
         "Transfer",
         Axis("emf", "V", lo=float(curve.emf[0]), hi=float(curve.emf[-1])),
         Axis("v_load", "V"),
         series=(Series(curve.emf, curve.out, "v_load − quiescent"),),
         markers=markers, spots=tuple(spots),
-    ),)
+    )
+    span = float(curve.emf[-1] - curve.emf[0])
+    if not 0 < 2 * vpk < NEAR_Q_SHARE * span:
+        return (whole,)
+    near = _near_q(design, NEAR_Q_SPAN * vpk)
+    return whole, Chart(
+        f"Near Q, ±{NEAR_Q_SPAN:g}·vpk",
+        Axis("emf", "V", lo=float(near.emf[0]), hi=float(near.emf[-1])),
+        Axis("v_load", "V"),
+        series=(Series(near.emf, near.out, "v_load − quiescent"),),
+        markers=markers, spots=(Spot(0.0, 0.0, "Q", "quiescent"),), marker_legend=False,
+    )
+
+
+def _near_q(design: Design, half: float) -> TransferCurve:
+    """The transfer over ±``half`` (V of EMF) around Q, solved at points of
+    its own: the full view's points are too far apart there."""
+    stage = build(design.topology, design_values([design]))
+    op = operating_point(stage.net)
+    return transfer_curve(stage, op, np.linspace(-half, half, NEAR_Q_POINTS))

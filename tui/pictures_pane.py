@@ -16,6 +16,7 @@ from model.analyses.figures import Figures
 from model.design.stage import Design
 
 from .chart import render_stack
+from .chart_scale import minus_signs
 from .messages import PictureReady
 from .pictures import KNOB_EFFECTS, LOAD_LINES, PICTURES, SPREAD, charts_for, pictures_for
 from .sensitivity_text import knob_effect_lines
@@ -83,12 +84,19 @@ class PicturesPane:
         kept = self._sensitivity
         sens = kept[1] if kept is not None and kept[0] == design else sensitivity_matrix(design)
         self._sensitivity = (design, sens)
-        return Rows(tuple(knob_effect_lines(sens, design, knob, height)))
+        # One minus sign in every picture, this table of text included.
+        return Rows(tuple(minus_signs(line) for line in knob_effect_lines(sens, design, knob, height)))
 
     def on_picture_ready(self, message: PictureReady) -> None:
         if not self._in_service():
             return
         if message.design != self.state.on_show()[0] or message.kind != (self.picture_kind, self._picture_key()):
+            # Dropped: if it was the one last asked for, asking again must
+            # draw it, or the picture would keep an older design's figures
+            # (a corner the Readout no longer shows) once that design is back.
+            asked = self._picture_asked
+            if asked is not None and (asked[0], asked[1:3]) == (message.design, message.kind):
+                self._picture_asked = None
             return
         self._home.query_one(Picture).show(message.charts, message.rendered)
 

@@ -99,8 +99,10 @@ PENDING = "…"
 
 
 def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str, reference_label: str,
-                  tj_max: float, yields: tuple | None = None) -> Text:
+                  tj_max: float, reference_tj_max: float | None = None, yields: tuple | None = None) -> Text:
     """Figures of ``shown``; with a ``reference``, its values and the change beside them.
+    ``tj_max`` (°C) is the shown design's limit, ``reference_tj_max`` the
+    reference's (the candidate may be the one that moves it).
     ``yields`` (reference, shown), each a Yield, PENDING or None (no specs),
     adds the spread rows: the yield and the shown design's 95 % interval."""
     compare = reference is not None
@@ -139,14 +141,24 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
             # second transistor raises.
             ends = [f"{way}: {why}" for way, why in zip(("up", "down"), shown.swing_limits) if why]
             out.append(f"  {' · '.join(ends)}\n")
-    out.append(f"  {'tj_max':<{_LABEL - 2}}" + (" " * _VALUE if compare else "")
-               + f"{tj_max:g} °C".rjust(value_width))
+    out.append(_tj_max_row(tj_max, reference_tj_max if compare else None, compare, value_width))
     if yields is not None:
         out.append("\nspread\n", style="italic")
         out.append(_yield_rows(yields, compare, value_width))
     out.append("\n")
     group(*NOISE_ROWS)
     return out
+
+
+def _tj_max_row(shown: float, reference: float | None, compare: bool, value_width: int) -> str:
+    """The limit the tj rows are read against, in each column that has a design."""
+    line = f"  {'tj_max':<{_LABEL - 2}}"
+    if compare:
+        line += _right("" if reference is None else f"{reference:g} °C", _VALUE)
+    line += _right(f"{shown:g} °C", value_width)
+    if compare and reference is not None and reference != shown:
+        line += _right(f"{shown - reference:+g} K " + _arrow("tj_max", reference, shown), _CHANGE)
+    return line
 
 
 def _yield_rows(yields: tuple, compare: bool, value_width: int) -> str:

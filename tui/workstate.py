@@ -26,6 +26,13 @@ from model.errors import DesignError, StageledgerError
 from .fieldtext import field_text
 from .safe_text import internal_error
 
+#: The series F5 steps through, in turn: the resistor ranges stocked as
+#: standard (10 %, 5 % and 1 % parts).  A file may also name E6 (mostly a
+#: capacitor range) or E48 (2 %, priced as 1 %); F5 goes on from either to
+#: the next of these.
+SERIES_CYCLE = ("E12", "E24", "E96")
+SERIES_CYCLE_TEXT = " → ".join(SERIES_CYCLE + SERIES_CYCLE[:1])
+
 
 @dataclass(frozen=True)
 class Candidate:
@@ -184,8 +191,8 @@ class WorkState:
         try:
             self._set_candidate(pending)
         except StageledgerError as err:
-            self.broken[key] = (text, str(err))
-            return self._outcome(status=f"{err} (the readout keeps the last valid values)", error=True,
+            self.broken[key] = (text, refusal(err))
+            return self._outcome(status=f"{refusal(err)}; the readout keeps the last valid values", error=True,
                                  invalid=True)
         # The keys first: a candidate of several fields runs past 80 columns.
         said = f"Enter commits, Esc drops this row: candidate {self.candidate.describe()}" \
@@ -212,7 +219,8 @@ class WorkState:
             # A DesignError already opens with the key; said twice, the rule
             # that follows would be cut off at 80 columns.
             named = isinstance(err, DesignError) and err.field == key
-            return Outcome(status=f"cannot step: {err}" if named else f"{key}: cannot step: {err}", error=True)
+            return Outcome(status=f"cannot step: {key}: {err.rule}" if named else f"{key}: cannot step: {err}",
+                           error=True)
         text = field_text(key, new)
         outcome = self.edit(key, text)
         self.checkpoint(key)
@@ -300,9 +308,10 @@ class WorkState:
         return Save(lambda s: s.redo(note), keep=True)
 
     def next_series(self) -> Save:
-        """F5: the next preferred series (E12 → E24 → E96 → E12), logged."""
+        """F5: the next of SERIES_CYCLE after the design's series (in the order
+        of SERIES, so E6 → E12 and E48 → E96), logged."""
         current = self.design.parts.series
-        wanted = next((s for s in ("E12", "E24", "E96") if SERIES.index(s) > SERIES.index(current)), "E12")
+        wanted = next((s for s in SERIES_CYCLE if SERIES.index(s) > SERIES.index(current)), SERIES_CYCLE[0])
         note = self.note or f"step along {wanted}"
         return Save(lambda s: s.commit({"parts.series": wanted}, note), keep=True)
 
@@ -377,6 +386,15 @@ class WorkState:
         """An Outcome that asks for a readout redraw if the candidate was set since the last one."""
         redraw, self._redraw = self._redraw, False
         return Outcome(readout=redraw, **fields)
+
+
+def refusal(err: StageledgerError) -> str:
+    """Why a value was refused, for the status line: the row and the rule
+    before the text that broke it, so that what is wrong and the limit come
+    first and only the least telling part is cut on a narrow screen."""
+    if isinstance(err, DesignError) and err.path is None:
+        return f"{err.field}: {err.rule} ({err.value!r} not taken)"
+    return str(err)
 
 
 def _holds(design: Design, key: str, text: str) -> bool:
