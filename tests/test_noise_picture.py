@@ -23,8 +23,9 @@ def test_the_noise_picture_draws_the_spectrum_with_its_letters():
     assert [s.mark for s in chart.series] == [None, "e", "i", "r"]
     text = render_stack((chart,), 78, 20)
     drawn = text if isinstance(text, str) else "\n".join(map(str, text))
-    for words in ("e en", "i in·rs", "r rs alone", "B noise band", "F signal"):
+    for words in ("e en", "i in·rs", "r rs alone", "B noise band 2.00 Hz – 200 Hz", "F signal"):
         assert words in drawn, words
+    assert drawn.count("B noise band") == 1  # the band's two ends explained once
     assert NOISE in PICTURES
 
 

@@ -12,6 +12,7 @@ import numpy as np
 
 from model.analyses.figures import Figures
 from model.design.stage import Design
+from model.design.units import format_si
 
 from .chart import Axis, Chart, Marker, Series
 
@@ -30,8 +31,11 @@ def noise_chart(design: Design, fig: Figures) -> tuple:
     series += [_positive(freq[every], y[every], label, mark) for y, label, mark in (
         (en, "en, the stage's voltage noise", "e"), (in_rs, "in·rs, its current noise in rs", "i"),
         (floor, "rs alone, √(4kT·rs)", "r"))]
-    markers = [Marker(f, symbol, label) for f, symbol, label in (
-        (n.band[0], "B", "noise band"), (n.band[1], "B", "noise band"), (design.source.freq, "F", "signal"))
+    # Both ends of the band share one legend entry, the band as the report writes it.
+    band = f"{format_si(n.band[0], 'Hz')} – {format_si(n.band[1], 'Hz')}"
+    markers = [Marker(f, symbol, label, text) for f, symbol, label, text in (
+        (n.band[0], "B", "noise band", band), (n.band[1], "B", "noise band", band),
+        (design.source.freq, "F", "signal", None))
         if math.isfinite(f) and freq[0] <= f <= freq[-1]]
     chart = Chart("Input-referred noise", Axis("f", "Hz", log=True, lo=float(freq[0]), hi=float(freq[-1])),
                   Axis("density", "V/√Hz", log=True), series=tuple(s for s in series if s.x.size),
