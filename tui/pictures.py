@@ -16,12 +16,10 @@ import math
 
 import numpy as np
 
-from model.analyses.curves import StageCurves, stage_curves
-from model.analyses.figures import Figures, design_values
+from model.analyses.curves import StageCurves, stage_curves, transfer_near_q
+from model.analyses.figures import Figures
 from model.analyses.loadlines import LoadLines, design_load_lines
-from model.analyses.transfer import TransferCurve, transfer_curve
-from model.circuit.newton import operating_point
-from model.circuit.topologies import FOLLOWER, build
+from model.circuit.topologies import FOLLOWER
 from model.design.stage import TWO_TRANSISTORS, Design
 
 from .chart import Axis, Chart, Marker, Series, Spot
@@ -152,7 +150,7 @@ def transfer_chart(design: Design, c: StageCurves) -> tuple:
     span = float(curve.emf[-1] - curve.emf[0])
     if not 0 < 2 * vpk < NEAR_Q_SHARE * span:
         return (whole,)
-    near = _near_q(design, NEAR_Q_SPAN * vpk)
+    near = transfer_near_q(design, NEAR_Q_SPAN * vpk, NEAR_Q_POINTS)
     return whole, Chart(
         f"Near Q, ±{NEAR_Q_SPAN:g}·vpk",
         Axis("emf", "V", lo=float(near.emf[0]), hi=float(near.emf[-1])),
@@ -160,11 +158,3 @@ def transfer_chart(design: Design, c: StageCurves) -> tuple:
         series=(Series(near.emf, near.out, "v_load − quiescent"),),
         markers=markers, spots=(Spot(0.0, 0.0, "Q", "quiescent"),), marker_legend=False,
     )
-
-
-def _near_q(design: Design, half: float) -> TransferCurve:
-    """The transfer over ±``half`` (V of EMF) around Q, solved at points of
-    its own: the full view's points are too far apart there."""
-    stage = build(design.topology, design_values([design]))
-    op = operating_point(stage.net)
-    return transfer_curve(stage, op, np.linspace(-half, half, NEAR_Q_POINTS))

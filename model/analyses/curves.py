@@ -45,9 +45,7 @@ def stage_curves(design: Design, emf_edges: tuple) -> StageCurves:
     """Load lines and the transfer over ±1.4× the farther of ``emf_edges`` (V),
     with the edges themselves among the points."""
     stage = build(design.topology, design_values([design]))
-    op = operating_point(stage.net)
-    if not op.converged[0]:
-        raise SolveError(*unsolved_message(design, float(op.residual[0]), op.iterations))
+    op = _solved(design, stage)
     finite = [abs(e) for e in emf_edges if math.isfinite(e)]
     span = _BEYOND * max(finite) if finite and max(finite) > 0 else 0.1
     inside = [e for e in emf_edges if math.isfinite(e) and e != 0.0]
@@ -56,6 +54,20 @@ def stage_curves(design: Design, emf_edges: tuple) -> StageCurves:
     curve = transfer_curve(stage, op, np.union1d(np.linspace(-span, span, CURVE_POINTS), inside))
     edges = tuple(_edge(curve, e) for e in inside)
     return StageCurves(load_lines(stage, op), curve, edges)
+
+
+def transfer_near_q(design: Design, half: float, points: int) -> TransferCurve:
+    """The transfer at ``points`` EMFs over ±``half`` (V) around Q: a small
+    amplitude's close-up, where the whole picture's points are too far apart."""
+    stage = build(design.topology, design_values([design]))
+    return transfer_curve(stage, _solved(design, stage), np.linspace(-half, half, points))
+
+
+def _solved(design: Design, stage):
+    op = operating_point(stage.net)
+    if not op.converged[0]:
+        raise SolveError(*unsolved_message(design, float(op.residual[0]), op.iterations))
+    return op
 
 
 def _edge(curve: TransferCurve, emf: float) -> Edge:
