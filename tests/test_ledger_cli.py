@@ -296,6 +296,18 @@ def test_bad_value_names_key_value_and_rule(logged, capsys, key, value):
     assert logged.read_bytes() == before
 
 
+def test_a_typo_suggests_a_key_the_design_accepts(logged, capsys):
+    assert main(["set", str(logged), "stage.rx=10k"]) == 2
+    line = one_error_line(capsys, "stage.rx", "did you mean stage.rc?")
+    assert "stage.re?" not in line
+
+
+def test_a_misspelt_prefix_names_only_its_own_rule(logged, capsys):
+    assert main(["set", str(logged), "stage.rc=10meg"]) == 2
+    line = one_error_line(capsys, "stage.rc", "'meg' is not accepted; write M")
+    assert "greater than" not in line
+
+
 def test_assignment_without_equals(logged, capsys):
     assert main(["set", str(logged), "stage.rc"]) == 2
     one_error_line(capsys, "stage.rc", "KEY=VALUE")
