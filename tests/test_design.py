@@ -163,7 +163,8 @@ def test_other_units_take_strings(key, text, value):
 def test_string_in_the_wrong_unit_is_refused():
     with pytest.raises(DesignError, match="bias.r1") as caught:
         dm.with_value(default_design(), "bias.r1", "4.7kV")
-    assert "greater than 0 Ω" in caught.value.rule
+    # A number in another unit breaks only the unit rule (issue 15: no limit that does not apply).
+    assert caught.value.rule == "unit 'V' does not match the expected 'Ω'"
 
 
 @pytest.mark.parametrize("value", ["open", " Open ", math.inf, "inf"])
@@ -193,13 +194,23 @@ def test_typo_key_suggests_the_right_one():
 @pytest.mark.parametrize("topology, typo, meant", [
     (CE, "stage.rx", "stage.rc"),  # not stage.re, which a common-emitter design refuses
     (EF, "stage.rx", "stage.re"),
-    (CE, "stage.ree", "stage.re1"),
+    (CF, "bias.rff", "bias.rf"),
 ])
 def test_a_typo_is_matched_only_to_keys_the_topology_has(topology, typo, meant):
     with pytest.raises(DesignError) as caught:
         dm.with_value(default_design(topology), typo, "10k")
     assert caught.value.rule.endswith(f"did you mean {meant}?")
     dm.with_value(default_design(topology), meant, "10k")  # the suggestion is accepted
+
+
+@pytest.mark.parametrize("topology", TOPOLOGIES)
+@pytest.mark.parametrize("typo", ["stage.rx", "stage.ree", "bias.rff", "supply.vea", "transistor2.betta",
+                                  "stage.cbb", "bias.rbb"])
+def test_every_suggestion_is_a_key_of_the_design(topology, typo):
+    with pytest.raises(DesignError) as caught:
+        dm.with_value(default_design(topology), typo, "10k")
+    suggested = caught.value.rule.partition("did you mean ")[2].removesuffix("?")
+    assert not suggested or suggested in keys_for(topology), caught.value.rule
 
 
 def test_a_typo_of_a_table_is_matched_only_to_tables_the_topology_has():

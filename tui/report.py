@@ -41,18 +41,36 @@ def signed(x: float, spec: str) -> str:
     return text.lstrip("+-") if float(text) == 0 else text
 
 
+def gain_text(x: float) -> str:
+    """A gain (V/V) to four significant figures, its trailing zeros kept, so
+    that gains side by side read alike: -10.00 beside -8.839, not -10."""
+    text = signed(x, "+#.4g")
+    if float(text) == 0:
+        return "0"  # a gain that is not there: no sign, no figures of it
+    return text.removesuffix(".")  # "#" keeps the point of a whole number: 1234.
+
+
+def db_text(db: float) -> str:
+    """A gain in dB: to one decimal, or to two significant figures where
+    that would read 0.0 (a follower's 0.9944 V/V is -0.049 dB, not -0.0),
+    down to the 0.001 dB a gain to four figures resolves near 1 V/V."""
+    if 0.0005 <= abs(db) < 0.05:
+        return f"{db:+.2g}"
+    return signed(db, "+.1f")
+
+
 def _db(x: float) -> str:
     """A gain's magnitude in dB; a zero gain has none."""
     db = float(decibels(x))
-    return f"{signed(db, '+.1f')} dB" if math.isfinite(db) else "zero gain, no dB"
+    return f"{db_text(db)} dB" if math.isfinite(db) else "zero gain, no dB"
 
 
 def _gain(x: float) -> str:
-    return f"{signed(x, '+.4g')} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
+    return f"{gain_text(x)} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
 
 
 def _hand_gain(x: float) -> str:
-    return f"{signed(x, '+.4g')} V/V" if math.isfinite(x) else _si(x, "V/V")
+    return f"{gain_text(x)} V/V" if math.isfinite(x) else _si(x, "V/V")
 
 
 def _pct(x: float) -> str:

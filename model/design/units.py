@@ -114,6 +114,8 @@ def _strip_unit(text: str, body: str, unit: str) -> str:
         tail = body[-len(spelling):]
         if tail == spelling or (spelling in _CASELESS and tail.lower() == spelling):
             if spelling not in accepted:
+                # "lots" ends in s but is no number in seconds: say what it is not.
+                _parse_number(text, body[: -len(spelling)].rstrip() or spelling)
                 raise UnitError(text, f"unit {spelling!r} does not match the expected {unit!r}"
                                 if unit else f"unexpected unit {spelling!r} (no unit belongs here)")
             return body[: -len(spelling)].rstrip()
