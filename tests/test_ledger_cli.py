@@ -432,6 +432,39 @@ def test_new_and_key_errors_use_the_spoken_article(tmp_path, capsys):
     one_error_line(capsys, "stage.re1", "is not used by an emitter-follower design")
 
 
+def test_propose_uses_the_spoken_article(tmp_path, capsys):
+    follower = tmp_path / "f.toml"
+    assert main(["new", str(follower), "--topology", EF]) == 0
+    capsys.readouterr()
+    assert main(["propose", str(tmp_path / "p.toml"), "--topology", CE, "--spec", "av_loaded=10..20",
+                 "--from", str(follower)]) == 2
+    one_error_line(capsys, "an emitter-follower design")
+    assert main(["propose", str(tmp_path / "q.toml"), "--topology", "emitter-follower-split",
+                 "--spec", "av_loaded=0.5..1"]) == 2
+    one_error_line(capsys, "start an emitter-follower-split with")
+
+
+def test_a_history_entry_without_changes_names_its_action_with_an_article(logged, capsys):
+    assert main(["set", str(logged), "stage.rc=10k"]) == 0
+    assert main(["undo", str(logged)]) == 0
+    capsys.readouterr()
+    text = logged.read_text(encoding="utf-8")
+    head, sep, undo = text.rpartition("[[history]]")
+    undo = re.sub(r"changes = \[.*?\n\]\n", "changes = []\n", undo, flags=re.S)  # the undo loses its changes
+    logged.write_text(head + sep + undo, encoding="utf-8")
+    assert main(["history", str(logged)]) == 2
+    one_error_line(capsys, "an undo entry records what it changed")
+
+
+def test_no_message_puts_a_fixed_article_before_a_substituted_word():
+    """"a {topology}" reads "a emitter-follower"; fields.with_article picks the article."""
+    sources = [p for folder in ("model", "tui") for p in (ROOT / folder).rglob("*.py")]
+    found = [f"{p.relative_to(ROOT)}:{n}" for p in sources
+             for n, line in enumerate(p.read_text(encoding="utf-8").splitlines(), 1)
+             if re.search(r"\b[Aa]n? \{", line)]
+    assert found == []
+
+
 @pytest.mark.parametrize("assignment", ["stage.rc=6k8", "stage.cin=0"])
 def test_a_dry_run_of_no_change_is_refused_as_the_commit_is(logged, capsys, assignment):
     """A dry run previews the commit it stands for; a commit of no change is
