@@ -432,6 +432,66 @@ def test_new_and_key_errors_use_the_spoken_article(tmp_path, capsys):
     one_error_line(capsys, "stage.re1", "is not used by an emitter-follower design")
 
 
+# -- new with starting values ---------------------------------------------------
+
+def test_new_takes_starting_values_and_logs_them_in_the_first_entry(tmp_path, capsys):
+    path = tmp_path / "n.toml"
+    assert main(["new", str(path), "--topology", EF, "supply.vcc=15", "stage.re=1k", "load.rl=4k7"]) == 0
+    out = capsys.readouterr().out
+    assert "an emitter-follower design from defaults" in out
+    doc = read_document(path)
+    expected = with_values(default_design(EF), {"supply.vcc": 15.0, "stage.re": 1e3, "load.rl": 4.7e3})
+    assert doc.design == expected
+    (start,) = doc.history
+    assert start.action == "start"
+    default = default_design(EF)
+    assert [(c.key, c.old, c.new) for c in start.changes] == [
+        ("supply.vcc", default.supply.vcc, 15.0), ("stage.re", default.stage.re, 1e3),
+        ("load.rl", default.load.rl, 4.7e3)]
+    assert analyse(doc.design).ic == pytest.approx(start.after["ic"], rel=1e-5)  # the figures are the new design's
+    assert "supply.vcc: 12.0 V → 15.0 V" in out
+    assert main(["history", str(path)]) == 0
+    assert "stage.re: 2.20 kΩ → 1.00 kΩ" in capsys.readouterr().out
+
+
+def test_new_takes_starting_values_before_and_after_its_options(tmp_path, capsys):
+    path = tmp_path / "n.toml"
+    assert main(["new", str(path), "supply.vcc=9", "--topology", CE, "stage.rc=4k7"]) == 0
+    design = read_document(path).design
+    assert (design.topology, design.supply.vcc, design.stage.rc) == (CE, 9.0, 4.7e3)
+
+
+def test_new_from_another_design_with_starting_values(logged, tmp_path, capsys):
+    path = tmp_path / "copy.toml"
+    assert main(["new", str(path), "--from", str(logged), "stage.rc=10k"]) == 0
+    (start,) = read_document(path).history
+    assert start.origin == str(logged)
+    assert [(c.key, c.new) for c in start.changes] == [("stage.rc", 1e4)]
+
+
+@pytest.mark.parametrize("items, needles", [
+    (["stage.rc=10meg"], ("stage.rc", "'meg' is not accepted")),
+    (["supply.vcc=2000"], ("supply.vcc", "at most 1000 V")),
+    (["stage.re=1k"], ("stage.re", "common-emitter design")),
+    (["stage.rx=1k"], ("stage.rx", "did you mean stage.rc?")),
+    (["supply.vcc"], ("supply.vcc", "KEY=VALUE")),
+    (["topology=common-base"], ("topology", "--topology")),
+])
+def test_new_refuses_a_bad_starting_value_and_writes_nothing(tmp_path, capsys, items, needles):
+    path = tmp_path / "n.toml"
+    assert main(["new", str(path), "--topology", CE, *items]) == 2
+    one_error_line(capsys, *needles)
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("items, needle", [(["stage.rc=-5"], "stage.rc"), (["supply.vcc=12", "--bogus"], "--bogus")])
+def test_new_with_a_bad_value_exits_2_in_a_real_process(tmp_path, items, needle):
+    proc = run("new", str(tmp_path / "n.toml"), "--topology", CE, *items)
+    assert proc.returncode == 2 and proc.stdout == "" and needle in proc.stderr
+    assert len(proc.stderr.strip().splitlines()) == 1
+    assert list(tmp_path.iterdir()) == []
+
+
 def test_propose_uses_the_spoken_article(tmp_path, capsys):
     follower = tmp_path / "f.toml"
     assert main(["new", str(follower), "--topology", EF]) == 0

@@ -94,12 +94,14 @@ def _resolution(key: str, before: float) -> float:
 
 
 def _to_resolution(change: float, resolution: float, unit: str) -> str:
-    """``change`` to the places its resolution supports (at most three
-    significant figures), or a plain 0 when it is below it: a sign or an
-    arrow on noise reads as a direction that is not there."""
+    """``change`` to the places its resolution supports (three significant
+    figures at most, but dB to two places where the resolution has them), or
+    a plain 0 when it is below it: a sign or an arrow on noise reads as a
+    direction that is not there."""
     places = max(0, math.ceil(-math.log10(resolution)))
     if change:
-        places = min(places, max(0, 2 - math.floor(math.log10(abs(change)))))
+        figures = max(0, 2 - math.floor(math.log10(abs(change))))
+        places = min(places, max(figures, 2 if unit == "dB" else 0))
     text = signed(change, f"+.{places}f")
     return f"{'0' if float(text) == 0 else text} {unit}"
 
@@ -150,6 +152,8 @@ def sign_change(before, after) -> str:
 
 
 def render_changes(changes) -> list:
+    """``  stage.rc: 6.80 kΩ → 10.0 kΩ``, one line a change (a name or notes
+    as long as its text: the terminal wraps it, as it would the text)."""
     return [f"  {c.key}: {show_value(c.key, c.old)} → {show_value(c.key, c.new)}" for c in changes]
 
 
@@ -195,8 +199,8 @@ _COMPACT = (("av_source", "gain"), ("yield", "yield"), ("rin", "rin"), ("rout", 
             ("ic", "ic"), ("vce", "vce"), ("f_low", "f_low"), ("f_high", "f_high"))
 
 
-def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
-    """The biggest moves of a change in a few words, e.g. "gain +6.1 dB, rin −48 %".
+def compact_parts(before: dict, after: dict, most: int = 3) -> list:
+    """The biggest moves of a change in a few words each, e.g. ["gain +6.1 dB", "rin -48 %"].
 
     The gain comes first when it moved; the others are the largest relative
     changes. A move below a figure's resolution is left out.
@@ -209,7 +213,7 @@ def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
             continue
         if not isinstance(b, (int, float)) or not isinstance(a, (int, float)) or not moved(key, b, a):
             continue  # a move below the figure's resolution is no consequence
-        text = f"{short} {relative_change(b, a, key)}".replace("-", "−")
+        text = f"{short} {relative_change(b, a, key)}"
         if key == "av_source":
             parts.append(text)
         elif b and math.isfinite(b) and math.isfinite(a):
@@ -218,4 +222,4 @@ def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
     parts += [text for _, text in ranked[: most - len(parts) + 1]]
     if before.get("region") != after.get("region") and "region" in after:
         parts.append(f"now {after['region']}")
-    return ", ".join(parts) or "no change in the figures"
+    return parts or ["no change in the figures"]

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import textwrap
 
 import numpy as np
 
@@ -13,6 +12,7 @@ from model.design.stage import Design
 from model.design.units import format_si
 
 from .safe_text import visible
+from .wrapping import units_kept, wrap
 
 #: The words for a figure that is not a finite number: an infinite one is
 #: unbounded (a resistance with no path, a band with no upper corner); a NaN
@@ -195,8 +195,7 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
     rows += noise_lines(design, fig)
     rows += ["", "Warnings"]
     rows += [line for w in fig.warnings
-             for line in textwrap.wrap(f"{w.code}: {w.message}", 78, initial_indent="  ",
-                                       subsequent_indent="    ")] or ["  none"]
+             for line in wrap(units_kept(f"{w.code}: {w.message}"), 78, indent="    ", first="  ")] or ["  none"]
     return "\n".join(rows) + "\n"
 
 
