@@ -63,8 +63,8 @@ def show(value, kind, compact: bool = False) -> str:
     if math.isinf(value):
         # In words, as the report writes it: no upper corner, or a resistance with no path.
         return "none" if kind == "Hz" else "unbounded"
-    if kind == "V/V":
-        return f"{value:.4g}"
+    if kind == "V/V":  # four figures with their zeros, as gain_text writes a gain
+        return format(value, "#.4g").removesuffix(".")
     return format_si(value, kind)
 
 
