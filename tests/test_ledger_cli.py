@@ -298,6 +298,20 @@ def test_bad_value_names_key_value_and_rule(logged, capsys, key, value):
     assert logged.read_bytes() == before
 
 
+def test_a_change_at_noise_level_reads_0_in_the_table(logged, capsys):
+    """An ambient 0.001 K warmer moves tj by about 0.001 K and the other
+    figures by far less than their last shown figure: each change reads 0
+    (issue 15: not "-0.000706 K"), each column apart from the next."""
+    assert main(["set", str(logged), "environment.ambient=25.001", "--dry-run"]) == 0
+    out = capsys.readouterr().out
+    rows = figure_rows(out)
+    assert rows["tj"][2] == "0 K"
+    assert all(rows[k][2] in ("0 %", "0 dB") for k in rows if k not in ("tj", "region")), rows
+    for line in out.splitlines():
+        if line.strip().split(" ")[0] in ("IC", "tj", "av_loaded", "rin"):
+            assert re.search(r"\S  +\S+ \S+$", line), line
+
+
 def test_a_typo_suggests_a_key_the_design_accepts(logged, capsys):
     assert main(["set", str(logged), "stage.rx=10k"]) == 2
     line = one_error_line(capsys, "stage.rx", "did you mean stage.rc?")

@@ -167,7 +167,7 @@ def render_consequences(before: dict, after: dict, raised, cleared) -> list:
         b = show_figure(key, before[key]) if key in before else ("none" if before else "")
         a = show_figure(key, after[key]) if key in after else "none"
         change = relative_change(before[key], after[key], key) if key in before and key in after else ""
-        rows.append(f"  {_SHOW[key][0]:<14}{b:>16}{a:>16} {change:>11}")
+        rows.append(f"  {_SHOW[key][0]:<14}{b:>16}{a:>16}  {change:>10}")  # a gap before the change, always
         flip = sign_change(before.get(key), after.get(key)) if _SHOW[key][1] == "gain" else ""
         if flip:  # the dB column shows the size alone; a phase reversal needs words
             rows.append(f"  {'':<14}{flip:>44}")
