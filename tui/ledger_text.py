@@ -14,7 +14,7 @@ from __future__ import annotations
 import re
 
 from model.design.fields import FIELDS
-from model.files.ledger import START, Entry
+from model.files.ledger import HAND_EDIT, START, Entry
 
 from .consequences import compact_parts
 from .fieldtext import field_text
@@ -46,7 +46,9 @@ def _step(change, minus: str) -> str:
     """``re1 220 Ω→330 Ω``: one change as one piece (a name or notes change
     is the file's text, escaped)."""
     old, new = (visible(field_text(change.key, v)) + _unit(change.key, v) for v in (change.old, change.new))
-    return _piece(f"{_key(change.key)} {old}→{new}", minus)
+    step = f"{_key(change.key)} {old}→{new}"
+    # Text (a name, notes) is the user's, hyphens and all; only numbers take the minus.
+    return whole(step) if isinstance(change.old, str) or isinstance(change.new, str) else _piece(step, minus)
 
 
 def _unit(key: str, value) -> str:
@@ -69,7 +71,8 @@ def _parts(e: Entry, shown_date: bool, minus: str) -> list:
     head = whole(f"#{e.number} {when} {_action(e)}")
     steps = [_step(c, minus) for c in e.changes]
     # The head and the first change read as one phrase: "#3 20:31 set rc 6.8 kΩ→10 kΩ".
-    colon = ":" if e.action == START or e.reverses is not None else ""  # "undo #4: rc ...", not "undo #4 rc"
+    # "undo #4: rc ..." and "hand-edit: rc ...", where "set rc ..." reads as it is.
+    colon = ":" if e.action in (START, HAND_EDIT) or e.reverses is not None else ""
     parts = [[f"{head}{colon} {steps[0]}", *steps[1:]] if steps else [head]]
     if e.before:
         parts.append([_piece(p, minus) for p in compact_parts(e.before, e.after)])
