@@ -158,3 +158,15 @@ async def test_the_ledger_pane_at_80_columns_breaks_only_at_separators(story):
             for piece in _pieces(last):
                 assert any(piece in r for r in rows), (size, piece, rows)
             assert all(cell_len(r) <= pane.size.width for r in rows)
+
+
+def test_a_spread_change_is_a_line_too(tmp_path, capsys):
+    """A tolerance or spec entry holds a number or a range: shown as set takes it."""
+    path = tmp_path / "t.toml"
+    create(str(path), default_design())
+    assert main(["set", str(path), "tolerance.ambient=0..40", "tolerance.resistors=0.01"]) == 0
+    capsys.readouterr()
+    assert main(["history", str(path), "--oneline"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert re.match(r"#2 \d\d:\d\d set tolerance\.", out[1]), out
+    assert "tolerance.ambient none→0..40" in out[1] and "tolerance.resistors none→0.01" in out[1]

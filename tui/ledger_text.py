@@ -16,7 +16,7 @@ import re
 from model.design.fields import FIELDS
 from model.files.ledger import HAND_EDIT, START, Entry
 
-from .consequences import compact_parts
+from .consequences import compact_parts, show_value
 from .fieldtext import field_text
 from .safe_text import visible
 from .wrapping import KEEP, whole, wrap
@@ -45,7 +45,10 @@ def _key(key: str) -> str:
 def _step(change, minus: str) -> str:
     """``re1 220 Ω→330 Ω``: one change as one piece (a name or notes change
     is the file's text, escaped)."""
-    old, new = (visible(field_text(change.key, v)) + _unit(change.key, v) for v in (change.old, change.new))
+    if change.key in FIELDS:
+        old, new = (visible(field_text(change.key, v)) + _unit(change.key, v) for v in (change.old, change.new))
+    else:  # a tolerance or spec entry: a number or a range MIN..MAX, as set takes it
+        old, new = (show_value(change.key, v) for v in (change.old, change.new))
     step = f"{_key(change.key)} {old}→{new}"
     # Text (a name, notes) is the user's, hyphens and all; only numbers take the minus.
     return whole(step) if isinstance(change.old, str) or isinstance(change.new, str) else _piece(step, minus)
