@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 import pathlib
+import re
 import shutil
 import subprocess
 import sys
@@ -118,6 +119,20 @@ def test_gains_side_by_side_are_shown_to_the_same_figures(gains, shown):
     assert tuple(gain_text(g) for g in gains) == shown
     assert tuple(show_figure("av_loaded", g) for g in gains) == tuple(f"{s} V/V" for s in shown)
     assert tuple(show(g, "gain", compact=True) for g in gains) == shown
+
+
+def test_aim_writes_its_target_as_the_gains_it_finds(tmp_path, capsys):
+    """The target -10 V/V is written -10.00 V/V, as the four-figure gains beside it."""
+    from model.design.stage import default_design
+    from model.files.session import create
+
+    path = tmp_path / "a.toml"
+    create(str(path), default_design())
+    assert main(["aim", str(path), "av_loaded=-10", "--vary", "stage.rc", "--dry-run"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("aim av_loaded at -10.00 V/V by stage.rc")
+    gains = re.findall(r"gives ([-+]\d\S*) V/V", out)
+    assert gains and all(len(g.lstrip("+-").replace(".", "")) == 4 for g in gains), gains
 
 
 def test_a_cut_off_stage_prints_its_zero_hand_gains_unsigned(tmp_path, capsys):

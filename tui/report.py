@@ -245,7 +245,7 @@ def response_lines(design: Design, fig: Figures) -> list:
         f"    open-circuit estimates   {high}",
         f"{pad}1/(2πΣτ) {_hz(r.f_high_estimate)}; Miller (input pole) {_hz(r.f_high_miller)}",
         f"  bandwidth                        {_hz(r.bandwidth, UNBOUNDED)}",
-        f"  at source.freq {_si(design.source.freq, 'Hz'):<17} {abs(r.gain_at_freq):.4g} V/V "
+        f"  at source.freq {_si(design.source.freq, 'Hz'):<17} {gain_text(abs(r.gain_at_freq)).lstrip('+')} V/V "
         f"({_db(r.gain_at_freq)}), phase {_deg(r.phase_at_freq)}",
         f"  device capacitance               Cπ {_si(r.device.c_pi, 'F')}, Cμ {_si(r.device.c_mu, 'F')}"
         + (" (Cπ floored at 0)" if r.device.floored else ""),
