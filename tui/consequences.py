@@ -138,7 +138,12 @@ def relative_change(before, after, key: str = "") -> str:
 def moved(key: str, before, after) -> bool:
     """Whether the change from ``before`` to ``after`` shows at all (so earns
     an arrow): not when it is below the resolution of the figure."""
-    return relative_change(before, after, key).split(" ")[0] not in ("", "0", "unchanged", "—")
+    return _shows(relative_change(before, after, key))
+
+
+def _shows(change: str) -> bool:
+    """Whether a relative_change text is a move, not 0 or no figure at all."""
+    return change.split(" ")[0] not in ("", "0", "unchanged", "—")
 
 
 def sign_change(before, after) -> str:
@@ -211,9 +216,12 @@ def compact_parts(before: dict, after: dict, most: int = 3) -> list:
         if before and (b is None) != (a is None):
             parts.append(f"{short} {'none' if a is None else 'back'}")
             continue
-        if not isinstance(b, (int, float)) or not isinstance(a, (int, float)) or not moved(key, b, a):
+        if not isinstance(b, (int, float)) or not isinstance(a, (int, float)):
+            continue
+        change = relative_change(b, a, key)
+        if not _shows(change):
             continue  # a move below the figure's resolution is no consequence
-        text = f"{short} {relative_change(b, a, key)}"
+        text = f"{short} {change}"
         if key == "av_source":
             parts.append(text)
         elif b and math.isfinite(b) and math.isfinite(a):

@@ -89,15 +89,21 @@ def _joined(parts: list) -> str:
     return f"{KEEP}· ".join(", ".join(pieces) for pieces in parts)
 
 
-def ledger_lines(history: list, minus: str = SCREEN_MINUS) -> list:
+def ledger_lines(history: list, minus: str = SCREEN_MINUS, cache: dict | None = None) -> list:
     """One line per entry, oldest first, with no-break spaces inside its
     pieces (see :func:`wrap_line`, :func:`tui.wrapping.plain`).  The date is written
     where it changes from the entry before (always on the first), the time
-    to the minute everywhere."""
+    to the minute everywhere.  ``cache`` keeps the lines of one file's
+    entries from call to call: entries are only ever appended, never
+    rewritten, so a long history is not worded again after each commit."""
     lines, last_date = [], None
+    cache = {} if cache is None else cache
     for e in history:
         date = e.time.date()
-        lines.append(_joined(_parts(e, date != last_date, minus)))
+        key = (e.number, e.time, e.action, date != last_date, minus)
+        if key not in cache:
+            cache[key] = _joined(_parts(e, date != last_date, minus))
+        lines.append(cache[key])
         last_date = date
     return lines
 

@@ -21,9 +21,10 @@ class LedgerPane(OptionList):
         super().__init__(id=id, markup=False)
         self._entry_lines: list = []
         self._wrap_width = 0
+        self._worded: dict = {}  # ledger_text's cache of this file's lines
 
     def show(self, history: list) -> None:
-        self._entry_lines = ledger_lines(history)
+        self._entry_lines = ledger_lines(history, cache=self._worded)
         self._wrap_width = self._text_width()
         self.clear_options()
         self.add_options([Option(wrap_line(line, self._wrap_width), id=f"entry-{e.number}")
