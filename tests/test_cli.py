@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 import pathlib
+import re
 import shutil
 import subprocess
 import sys
@@ -89,12 +90,49 @@ def test_numbers_that_show_as_zero_carry_no_sign():
     from tui.consequences import show_figure
     from tui.report import _db, _gain
 
-    assert _gain(-0.99999) == "-1 V/V (0.0 dB)"  # 20·log10(0.99999) = −8.7e-5 dB
+    assert _gain(-0.99999) == "-1.000 V/V (0.0 dB)"  # 20·log10(0.99999) = −8.7e-5 dB
     assert _gain(0.0) == _gain(-0.0) == "0 V/V (zero gain, no dB)"
     assert _db(-1.0) == "0.0 dB"
-    assert _gain(-10.0) == "-10 V/V (+20.0 dB)"
+    assert _gain(-10.0) == "-10.00 V/V (+20.0 dB)"
     assert show_figure("av_loaded", -0.0) == show_figure("av_loaded", 0.0) == "0 V/V"
-    assert show_figure("av_loaded", 0.5) == "+0.5 V/V"
+
+
+def test_a_gain_just_under_one_shows_its_db_in_significant_figures():
+    """20·log10(0.9944) = −0.0488 dB (arithmetic): one decimal would print
+    the sign of nothing, −0.0."""
+    from tui.report import _gain, db_text
+
+    assert _gain(0.9944) == "+0.9944 V/V (-0.049 dB)"
+    assert db_text(-0.0488) == "-0.049" and db_text(27.44) == "+27.4" and db_text(-0.05) == "-0.1"
+
+
+@pytest.mark.parametrize("gains, shown", [
+    ((-10.0, -8.839), ("-10.00", "-8.839")), ((0.5, 0.9943), ("+0.5000", "+0.9943")),
+    ((100.0, 1234.5), ("+100.0", "+1234")),
+])
+def test_gains_side_by_side_are_shown_to_the_same_figures(gains, shown):
+    """Four significant figures, trailing zeros kept: -10.00 beside -8.839, not -10."""
+    from tui.consequences import show_figure
+    from tui.readout_table import show
+    from tui.report import gain_text
+
+    assert tuple(gain_text(g) for g in gains) == shown
+    assert tuple(show_figure("av_loaded", g) for g in gains) == tuple(f"{s} V/V" for s in shown)
+    assert tuple(show(g, "gain", compact=True) for g in gains) == shown
+
+
+def test_aim_writes_its_target_as_the_gains_it_finds(tmp_path, capsys):
+    """The target -10 V/V is written -10.00 V/V, as the four-figure gains beside it."""
+    from model.design.stage import default_design
+    from model.files.session import create
+
+    path = tmp_path / "a.toml"
+    create(str(path), default_design())
+    assert main(["aim", str(path), "av_loaded=-10", "--vary", "stage.rc", "--dry-run"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("aim av_loaded at -10.00 V/V by stage.rc")
+    gains = re.findall(r"gives ([-+]\d\S*) V/V", out)
+    assert gains and all(len(g.lstrip("+-").replace(".", "")) == 4 for g in gains), gains
 
 
 def test_a_cut_off_stage_prints_its_zero_hand_gains_unsigned(tmp_path, capsys):

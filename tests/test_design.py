@@ -118,7 +118,10 @@ def test_number_keys_refuse_wrong_types(key, topology, bad):
     with pytest.raises(DesignError) as caught:
         dm.with_value(default_design(topology), key, bad)
     assert caught.value.field == key
-    assert FIELDS[key].rules[topology].text in caught.value.rule
+    if bad == "4q7":  # a misspelt number: only the spelling rule it broke (issue 15)
+        assert caught.value.rule == "unknown prefix 'q'"
+    else:
+        assert FIELDS[key].rules[topology].text in caught.value.rule
 
 
 @pytest.mark.parametrize("key, topology", NUMBER_KEYS)
@@ -160,7 +163,8 @@ def test_other_units_take_strings(key, text, value):
 def test_string_in_the_wrong_unit_is_refused():
     with pytest.raises(DesignError, match="bias.r1") as caught:
         dm.with_value(default_design(), "bias.r1", "4.7kV")
-    assert "greater than 0 Ω" in caught.value.rule
+    # A number in another unit breaks only the unit rule (issue 15: no limit that does not apply).
+    assert caught.value.rule == "unit 'V' does not match the expected 'Ω'"
 
 
 @pytest.mark.parametrize("value", ["open", " Open ", math.inf, "inf"])
@@ -185,6 +189,60 @@ def test_typo_key_suggests_the_right_one():
     with pytest.raises(DesignError, match="did you mean stage.rc") as caught:
         dm.with_value(default_design(), "stage.rcc", 1e3)
     assert caught.value.field == "stage.rcc"
+
+
+@pytest.mark.parametrize("topology, typo, meant", [
+    (CE, "stage.rx", "stage.rc"),  # not stage.re, which a common-emitter design refuses
+    (EF, "stage.rx", "stage.re"),
+    (CF, "bias.rff", "bias.rf"),
+])
+def test_a_typo_is_matched_only_to_keys_the_topology_has(topology, typo, meant):
+    with pytest.raises(DesignError) as caught:
+        dm.with_value(default_design(topology), typo, "10k")
+    assert caught.value.rule.endswith(f"did you mean {meant}?")
+    dm.with_value(default_design(topology), meant, "10k")  # the suggestion is accepted
+
+
+@pytest.mark.parametrize("topology", TOPOLOGIES)
+@pytest.mark.parametrize("typo", ["stage.rx", "stage.ree", "bias.rff", "supply.vea", "transistor2.betta",
+                                  "stage.cbb", "bias.rbb"])
+def test_every_suggestion_is_a_key_of_the_design(topology, typo):
+    with pytest.raises(DesignError) as caught:
+        dm.with_value(default_design(topology), typo, "10k")
+    suggested = caught.value.rule.partition("did you mean ")[2].removesuffix("?")
+    assert not suggested or suggested in keys_for(topology), caught.value.rule
+
+
+def test_a_typo_of_a_table_is_matched_only_to_tables_the_topology_has():
+    with pytest.raises(DesignError) as caught:
+        dm.design_from_dict({"format": 1, "transistor3": {"beta": 100}})
+    assert "did you mean transistor?" in caught.value.rule
+    assert "transistor2" not in caught.value.rule
+
+
+@pytest.mark.parametrize("text, reason", [
+    ("10meg", "'meg' is not accepted; write M for mega (m is milli)"),
+    ("4q7", "unknown prefix 'q'"),
+    ("1.2.3", "two decimal points"),
+    ("1e3k", "both an exponent and a prefix; use one of them"),
+    ("10nF", "unit 'F' does not match the expected 'Ω'"),
+])
+def test_a_misspelt_number_reports_only_the_spelling_rule(text, reason):
+    """The value's limits are not broken by a misspelling, so they are not named."""
+    with pytest.raises(DesignError) as caught:
+        dm.with_value(default_design(), "stage.rc", text)
+    assert caught.value.rule == reason
+
+
+@pytest.mark.parametrize("text, reason", [
+    ("abc", "not a number with an SI prefix or RKM code"), ("inf", "an infinite value is not allowed here"),
+    ("1e999", "too large to represent"), ("nan", "nan is not a value"),
+])
+def test_no_number_at_all_reports_the_limits_first(text, reason):
+    with pytest.raises(DesignError) as caught:
+        dm.with_value(default_design(), "stage.rc", text)
+    limits = dm.rule_for("stage.rc", CE).text
+    assert caught.value.rule.startswith(limits + "; " + reason)
 
 
 @pytest.mark.parametrize("topology, key, own", [

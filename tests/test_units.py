@@ -152,6 +152,7 @@ def test_float_infinity_only_when_allowed():
         ("--5", "", "not a number with an SI prefix or RKM code"),
         ("1,5", "", "not a number with an SI prefix or RKM code"),
         ("Ω", "Ω", "not a number with an SI prefix or RKM code"),
+        ("lots", "V", "not a number with an SI prefix or RKM code"),  # ends in s, yet no time
         ("1e", "", "exponent has no digits"),
         ("1e-", "", "exponent has no digits"),
         ("1e3k", "", "both an exponent and a prefix"),

@@ -44,6 +44,8 @@ def _parser() -> argparse.ArgumentParser:
     new.add_argument("file")
     new.add_argument("--topology", choices=TOPOLOGIES)
     new.add_argument("--from", dest="origin", metavar="OTHER", help="copy this design (FILE or FILE@N)")
+    new.add_argument("assignments", nargs="*", metavar="KEY=VALUE",
+                     help="starting values, for example supply.vcc=12 load.rl=10k")
 
     st = sub.add_parser("set", help="apply a what-if change, log it with its consequences and save")
     st.add_argument("file")
@@ -61,7 +63,10 @@ def _parser() -> argparse.ArgumentParser:
 
     hist = sub.add_parser("history", help="print the change log")
     hist.add_argument("file")
-    hist.add_argument("--json", action="store_true")
+    form = hist.add_mutually_exclusive_group()
+    form.add_argument("--json", action="store_true", help="one JSON object: entries and unlogged hand edits")
+    form.add_argument("--oneline", action="store_true",
+                      help="one line per entry: number, time, action, change, biggest consequences, note")
 
     spr = sub.add_parser("spread", help="Monte Carlo over the tolerances: spread, yield, worst cases")
     spr.add_argument("file", help="design file (TOML) with [tolerance] and [spec] tables")
@@ -152,13 +157,13 @@ def _dispatch(args) -> int:
     if args.command == "response":
         return _response(args.file, args.csv, args.per_decade)
     if args.command == "new":
-        return subcommands.cmd_new(args.file, args.topology, args.origin)
+        return subcommands.cmd_new(args.file, args.topology, args.origin, args.assignments)
     if args.command == "set":
         return subcommands.cmd_set(args.file, args.assignments, args.note, args.dry_run, args.drop_comments)
     if args.command in ("undo", "redo"):
         return subcommands.cmd_reverse(args.file, args.command, args.note, args.drop_comments)
     if args.command == "history":
-        return subcommands.cmd_history(args.file, args.json)
+        return subcommands.cmd_history(args.file, args.json, args.oneline)
     if args.command == "diff":
         return subcommands.cmd_diff(args.a, args.b)
     if args.command in ("aim", "options"):
@@ -240,6 +245,21 @@ def _sensitivity(path: str, as_json: bool, with_yield: bool) -> int:
     return 0
 
 
+def _parse(argv: list) -> argparse.Namespace:
+    """The subcommand's arguments. ``new FILE --topology T KEY=VALUE ...``
+    puts its starting values after an option, where argparse, having taken
+    the positionals before it, would refuse them: they are collected here."""
+    parser = _parser()
+    if argv[0] != "new":
+        return parser.parse_args(argv)
+    args, extra = parser.parse_known_args(argv)
+    unknown = [x for x in extra if x.startswith("-")]
+    if unknown:
+        parser.error(f"unrecognized arguments: {' '.join(unknown)}")
+    args.assignments = [*args.assignments, *extra]
+    return args
+
+
 #: The subcommands; anything else in first place is a design file for the workbench.
 COMMANDS = ("report", "response", "new", "set", "undo", "redo", "history", "diff", "spread", "aim", "options",
             "propose", "sensitivity")
@@ -296,7 +316,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         try:
             if argv and argv[0] in COMMANDS:
-                args = _parser().parse_args(argv)
+                args = _parse(argv)
             else:
                 args = _workbench_parser().parse_args(argv)
                 args.command = None

@@ -8,7 +8,7 @@ from model.design.stage import FIELDS
 from model.design.units import format_si
 from model.files.ledger import HEADLINE, Entry
 
-from .report import signed
+from .report import gain_text, signed
 from .safe_text import visible
 
 #: How each headline figure is shown: (label, unit for format_si, or a special kind).
@@ -31,7 +31,7 @@ def show_figure(key: str, value) -> str:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return _not_finite(key, value)
     if unit == "gain":
-        return f"{signed(value, '+.4g')} V/V"
+        return f"{gain_text(value)} V/V"
     if unit == "%":
         return f"{100 * value:.3g} %"
     if unit == "°C":
@@ -62,9 +62,56 @@ def show_value(key: str, value) -> str:
     return format_si(value, field.unit)
 
 
+#: Significant figures each kind of figure is shown to (show_figure, the
+#: Readout): the resolution its change is shown to. dB figures and tj are
+#: shown to fixed places instead (see _resolution).
+_FIGURES = {"gain": 4, "gain_at_freq": 4}
+#: Figures shown in °C to one decimal: their change is a difference, in K.
+_TEMPERATURES = ("tj", "tj2")
+
+
+def _kind(key: str) -> str | None:
+    return _SHOW[key][1] if key in _SHOW else None
+
+
+def _resolution(key: str, before: float) -> float:
+    """The smallest step of ``before`` as it is shown, in the unit its change
+    is shown in: dB for gains and dB figures, K for temperatures, points for
+    the yield, else per cent of ``before``."""
+    kind = _kind(key)
+    if kind == "dB":
+        return 0.01  # shown to two places
+    if key in _TEMPERATURES:
+        return 0.1  # shown to one decimal
+    shown = 100.0 * before if key == "yield" else before
+    figures = _FIGURES.get(kind or key, 3)
+    step = 10.0 ** (math.floor(math.log10(abs(shown))) - (figures - 1))
+    if key == "yield":
+        return step
+    if kind == "gain":  # a step of the last figure, as a ratio in dB (20·log10 e ≈ 8.69 dB per unit ratio)
+        return 20.0 / math.log(10.0) * step / abs(before)
+    return 100.0 * step / abs(before)
+
+
+def _to_resolution(change: float, resolution: float, unit: str) -> str:
+    """``change`` to the places its resolution supports (three significant
+    figures at most, but dB to two places where the resolution has them), or
+    a plain 0 when it is below it: a sign or an arrow on noise reads as a
+    direction that is not there."""
+    places = max(0, math.ceil(-math.log10(resolution)))
+    if change:
+        figures = max(0, 2 - math.floor(math.log10(abs(change))))
+        places = min(places, max(figures, 2 if unit == "dB" else 0))
+    text = signed(change, f"+.{places}f")
+    return f"{'0' if float(text) == 0 else text} {unit}"
+
+
 def relative_change(before, after, key: str = "") -> str:
     """The change from ``before`` to ``after``: in dB for gains (so a larger
-    inverting gain reads as a gain, not a loss), else in per cent."""
+    inverting gain reads as a gain, not a loss), a difference for dB figures,
+    in K for temperatures, in points for the yield, else in per cent; always
+    to the resolution ``before`` is shown to, so a move smaller than its last
+    figure reads as 0."""
     if not all(isinstance(v, (int, float)) for v in (before, after)):
         return "" if before == after else "changed"
     if not (math.isfinite(before) and math.isfinite(after)):
@@ -72,19 +119,31 @@ def relative_change(before, after, key: str = "") -> str:
         # compare what the table shows.
         same = key in _SHOW and show_figure(key, before) == show_figure(key, after)
         return "unchanged" if same or before == after else "—"
-    if key in _SHOW and _SHOW[key][1] == "gain" and before and after:
-        return f"{signed(20.0 * math.log10(abs(after) / abs(before)), '+.2f')} dB"
-    if key in _SHOW and _SHOW[key][1] == "dB":  # already a ratio: its change is a difference
-        return f"{signed(after - before, '+.2f')} dB"
-    if key in ("tj", "tj2"):  # a per cent of a Celsius reading means nothing
-        return f"{signed(after - before, '+.3g')} K"
+    kind = _kind(key)
+    if kind == "gain" and before and after:
+        return _to_resolution(20.0 * math.log10(abs(after) / abs(before)), _resolution(key, before), "dB")
+    if kind == "dB":  # already a ratio: its change is a difference
+        return _to_resolution(after - before, _resolution(key, before), "dB")
+    if key in _TEMPERATURES:  # a per cent of a Celsius reading means nothing
+        return _to_resolution(after - before, _resolution(key, before), "K")
     if key == "yield":  # a change of a fraction, in percentage points
-        return f"{signed(100.0 * (after - before), '+.3g')} pts"
+        return _to_resolution(100.0 * (after - before), _resolution(key, before) if before else 0.1, "pts")
     if before == after:
         return "0 %"
     if before == 0:
         return "—"
-    return f"{100.0 * (after - before) / abs(before):+.3g} %"
+    return _to_resolution(100.0 * (after - before) / abs(before), _resolution(key, before), "%")
+
+
+def moved(key: str, before, after) -> bool:
+    """Whether the change from ``before`` to ``after`` shows at all (so earns
+    an arrow): not when it is below the resolution of the figure."""
+    return _shows(relative_change(before, after, key))
+
+
+def _shows(change: str) -> bool:
+    """Whether a relative_change text is a move, not 0 or no figure at all."""
+    return change.split(" ")[0] not in ("", "0", "unchanged", "—")
 
 
 def sign_change(before, after) -> str:
@@ -98,6 +157,8 @@ def sign_change(before, after) -> str:
 
 
 def render_changes(changes) -> list:
+    """``  stage.rc: 6.80 kΩ → 10.0 kΩ``, one line a change (a name or notes
+    as long as its text: the terminal wraps it, as it would the text)."""
     return [f"  {c.key}: {show_value(c.key, c.old)} → {show_value(c.key, c.new)}" for c in changes]
 
 
@@ -110,8 +171,8 @@ def render_consequences(before: dict, after: dict, raised, cleared) -> list:
         # corner with no passband): "none", so a vanished band is seen.
         b = show_figure(key, before[key]) if key in before else ("none" if before else "")
         a = show_figure(key, after[key]) if key in after else "none"
-        moved = relative_change(before[key], after[key], key) if key in before and key in after else ""
-        rows.append(f"  {_SHOW[key][0]:<14}{b:>16}{a:>16}{moved:>12}")
+        change = relative_change(before[key], after[key], key) if key in before and key in after else ""
+        rows.append(f"  {_SHOW[key][0]:<14}{b:>16}{a:>16}  {change:>10}")  # a gap before the change, always
         flip = sign_change(before.get(key), after.get(key)) if _SHOW[key][1] == "gain" else ""
         if flip:  # the dB column shows the size alone; a phase reversal needs words
             rows.append(f"  {'':<14}{flip:>44}")
@@ -143,10 +204,11 @@ _COMPACT = (("av_source", "gain"), ("yield", "yield"), ("rin", "rin"), ("rout", 
             ("ic", "ic"), ("vce", "vce"), ("f_low", "f_low"), ("f_high", "f_high"))
 
 
-def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
-    """The biggest moves of a change in a few words, e.g. "gain +6.1 dB, rin −48 %".
+def compact_parts(before: dict, after: dict, most: int = 3) -> list:
+    """The biggest moves of a change in a few words each, e.g. ["gain +6.1 dB", "rin -48 %"].
 
-    The gain always comes first; the others are the largest relative changes.
+    The gain comes first when it moved; the others are the largest relative
+    changes. A move below a figure's resolution is left out.
     """
     parts, ranked = [], []
     for key, short in _COMPACT:
@@ -154,9 +216,12 @@ def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
         if before and (b is None) != (a is None):
             parts.append(f"{short} {'none' if a is None else 'back'}")
             continue
-        if not isinstance(b, (int, float)) or not isinstance(a, (int, float)) or b == a:
+        if not isinstance(b, (int, float)) or not isinstance(a, (int, float)):
             continue
-        text = f"{short} {relative_change(b, a, key)}".replace("-", "−")
+        change = relative_change(b, a, key)
+        if not _shows(change):
+            continue  # a move below the figure's resolution is no consequence
+        text = f"{short} {change}"
         if key == "av_source":
             parts.append(text)
         elif b and math.isfinite(b) and math.isfinite(a):
@@ -165,4 +230,4 @@ def compact_deltas(before: dict, after: dict, most: int = 3) -> str:
     parts += [text for _, text in ranked[: most - len(parts) + 1]]
     if before.get("region") != after.get("region") and "region" in after:
         parts.append(f"now {after['region']}")
-    return ", ".join(parts) or "no change in the figures"
+    return parts or ["no change in the figures"]

@@ -9,7 +9,7 @@ import os
 from model.advisor.propose import Candidate, propose, resistor_keys
 from model.design.eseries import series_names
 from model.design.spread_tables import check_spread_value, file_value
-from model.design.stage import default_design, with_values
+from model.design.stage import default_design, with_article, with_values
 from model.design.units import format_si
 from model.errors import DesignError, StageledgerError
 from model.files.session import create, design_at
@@ -51,7 +51,7 @@ def cmd_propose(path: str, topology: str, items: list, supply: float | None, ser
         raise DesignError("--series", series, "must be one of " + ", ".join(series_names()))
     base = design_at(origin)[0] if origin else default_design(topology)
     if base.topology != topology:
-        raise StageledgerError(f"--topology {topology} conflicts with {origin}, a {base.topology} design")
+        raise StageledgerError(f"--topology {topology} conflicts with {origin}, {with_article(base.topology)} design")
     specs = parse_specs(items, topology)
     vcc = base.supply.vcc if supply is None else supply
     found = propose(topology, specs, vcc, series.upper(), base.tolerance if origin else None, base=base)

@@ -12,8 +12,8 @@ from model.analyses.figures import FOLLOWER_KEYS, Figures
 from model.analyses.midband import decibels
 from model.design.units import format_si
 
-from .consequences import relative_change
-from .report import part_name
+from .consequences import moved, relative_change
+from .report import db_text, gain_text, part_name
 
 #: (group heading, rows of (label, figure key, unit kind)).
 ROWS = (
@@ -51,7 +51,7 @@ def show(value, kind, compact: bool = False) -> str:
     if isinstance(value, float) and math.isnan(value):
         return "…"  # the large-signal sweep has not reported yet
     if kind == "gain":
-        return f"{value:+.4g}" if compact else f"{value:+.4g} ({float(decibels(value)):+.1f} dB)"
+        return gain_text(value) if compact else f"{gain_text(value)} ({db_text(float(decibels(value)))} dB)"
     if kind == "%":
         return f"{100 * value:.3g} %"
     if kind == "dB":
@@ -63,8 +63,8 @@ def show(value, kind, compact: bool = False) -> str:
     if math.isinf(value):
         # In words, as the report writes it: no upper corner, or a resistance with no path.
         return "none" if kind == "Hz" else "unbounded"
-    if kind == "V/V":
-        return f"{value:.4g}"
+    if kind == "V/V":  # four figures with their zeros, as gain_text writes a gain
+        return format(value, "#.4g").removesuffix(".")
     return format_si(value, kind)
 
 
@@ -79,7 +79,7 @@ def _cell(fig: Figures, key: str, value, kind, compact: bool) -> str:
 
 
 def _arrow(key, before, after) -> str:
-    if not all(isinstance(v, (int, float)) for v in (before, after)) or before == after:
+    if not all(isinstance(v, (int, float)) for v in (before, after)) or not moved(key, before, after):
         return ""
     if any(math.isnan(v) for v in (before, after)):
         return ""

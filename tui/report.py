@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import textwrap
 
 import numpy as np
 
@@ -13,6 +12,7 @@ from model.design.stage import Design
 from model.design.units import format_si
 
 from .safe_text import visible
+from .wrapping import units_kept, wrap
 
 #: The words for a figure that is not a finite number: an infinite one is
 #: unbounded (a resistance with no path, a band with no upper corner); a NaN
@@ -41,18 +41,36 @@ def signed(x: float, spec: str) -> str:
     return text.lstrip("+-") if float(text) == 0 else text
 
 
+def gain_text(x: float) -> str:
+    """A gain (V/V) to four significant figures, its trailing zeros kept, so
+    that gains side by side read alike: -10.00 beside -8.839, not -10."""
+    text = signed(x, "+#.4g")
+    if float(text) == 0:
+        return "0"  # a gain that is not there: no sign, no figures of it
+    return text.removesuffix(".")  # "#" keeps the point of a whole number: 1234.
+
+
+def db_text(db: float) -> str:
+    """A gain in dB: to one decimal, or to two significant figures where
+    that would read 0.0 (a follower's 0.9944 V/V is -0.049 dB, not -0.0),
+    down to the 0.001 dB a gain to four figures resolves near 1 V/V."""
+    if 0.0005 <= abs(db) < 0.05:
+        return f"{db:+.2g}"
+    return signed(db, "+.1f")
+
+
 def _db(x: float) -> str:
     """A gain's magnitude in dB; a zero gain has none."""
     db = float(decibels(x))
-    return f"{signed(db, '+.1f')} dB" if math.isfinite(db) else "zero gain, no dB"
+    return f"{db_text(db)} dB" if math.isfinite(db) else "zero gain, no dB"
 
 
 def _gain(x: float) -> str:
-    return f"{signed(x, '+.4g')} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
+    return f"{gain_text(x)} V/V ({_db(x)})" if math.isfinite(x) else _si(x, "V/V")
 
 
 def _hand_gain(x: float) -> str:
-    return f"{signed(x, '+.4g')} V/V" if math.isfinite(x) else _si(x, "V/V")
+    return f"{gain_text(x)} V/V" if math.isfinite(x) else _si(x, "V/V")
 
 
 def _pct(x: float) -> str:
@@ -177,8 +195,7 @@ def render_report(design: Design, fig: Figures, source: str) -> str:
     rows += noise_lines(design, fig)
     rows += ["", "Warnings"]
     rows += [line for w in fig.warnings
-             for line in textwrap.wrap(f"{w.code}: {w.message}", 78, initial_indent="  ",
-                                       subsequent_indent="    ")] or ["  none"]
+             for line in wrap(units_kept(f"{w.code}: {w.message}"), 78, indent="    ", first="  ")] or ["  none"]
     return "\n".join(rows) + "\n"
 
 
@@ -228,7 +245,7 @@ def response_lines(design: Design, fig: Figures) -> list:
         f"    open-circuit estimates   {high}",
         f"{pad}1/(2πΣτ) {_hz(r.f_high_estimate)}; Miller (input pole) {_hz(r.f_high_miller)}",
         f"  bandwidth                        {_hz(r.bandwidth, UNBOUNDED)}",
-        f"  at source.freq {_si(design.source.freq, 'Hz'):<17} {abs(r.gain_at_freq):.4g} V/V "
+        f"  at source.freq {_si(design.source.freq, 'Hz'):<17} {gain_text(abs(r.gain_at_freq)).lstrip('+')} V/V "
         f"({_db(r.gain_at_freq)}), phase {_deg(r.phase_at_freq)}",
         f"  device capacitance               Cπ {_si(r.device.c_pi, 'F')}, Cμ {_si(r.device.c_mu, 'F')}"
         + (" (Cπ floored at 0)" if r.device.floored else ""),

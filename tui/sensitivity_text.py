@@ -5,13 +5,13 @@ words, and the knobs that move the gain most)."""
 from __future__ import annotations
 
 import math
-import textwrap
 
 from model.advisor.sensitivity import AMBIENT, SKIPPED, YIELD, Sensitivity, unit_of
 from model.design.stage import Design, get_value, rule_for
 from model.errors import DesignError
 
 from .safe_text import visible
+from .wrapping import units_kept, wrap
 
 #: Column headings of the table, five characters at most.
 HEADINGS = {"ic": "ic", "vce": "vce", "av_loaded": "av dB", "rin": "rin", "rout": "rout",
@@ -89,9 +89,8 @@ def _has(design: Design, key: str) -> bool:
 
 
 def _wrap(text: str) -> list:
-    """``text`` in lines of 80 columns, never broken between a number and its %."""
-    lines = textwrap.wrap(text.replace(" %", "\u00a0%"), 80, break_on_hyphens=False)
-    return [line.replace("\u00a0", " ") for line in lines]
+    """``text`` in lines of 80 columns, never broken between a number and its unit."""
+    return wrap(units_kept(text), 80, indent="")
 
 
 def _word(value: float) -> str:

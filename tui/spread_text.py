@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 import math
-import textwrap
 
 from model.design.spread_tables import FRACTIONS, figure_unit
 from model.design.units import format_si
 from model.spread.analysis import SpreadReport
 
 from .safe_text import visible
+from .wrapping import units_kept, wrap
 
 #: Figures in the summary table, in the report's order; the others are in --json.
 TABLE = ("ic", "vce", "av_loaded", "av_source", "rin", "rout", "swing_up", "swing_down",
@@ -21,8 +21,7 @@ DRIVERS_SHOWN = 3
 def _wrapped(text: str) -> list:
     """``text`` wrapped to 78 columns under a two-space indent, never between
     a number and its per cent sign."""
-    lines = textwrap.wrap(text.replace(" %", "\u00a0%"), 78, initial_indent="  ", subsequent_indent="    ")
-    return [line.replace("\u00a0", " ") for line in lines]
+    return wrap(units_kept(text), 78, indent="    ", first="  ")
 
 
 def _unit(key: str) -> str:
@@ -91,8 +90,8 @@ def _yield_lines(report: SpreadReport) -> list:
     if y is None:
         return ["", "yield: no [spec] table in the file, so there is nothing to pass or fail"]
     low, high = y.all.interval
-    lines = [""] + textwrap.wrap(f"yield {percent(y.all.value)} (95 % interval {percent(low)} to {percent(high)}), "
-                                 f"{y.all.passed:,} of {y.all.total:,} builds pass", 80, subsequent_indent="  ")
+    lines = [""] + wrap(units_kept(f"yield {percent(y.all.value)} (95 % interval {percent(low)} to {percent(high)}), "
+                                   f"{y.all.passed:,} of {y.all.total:,} builds pass"), 80)
     for limit in report.design.spec:
         one = y.per_spec[limit.key]
         lo, hi = one.interval

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from model import analyse
 from model.design.fields import with_article
-from model.design.stage import TOPOLOGIES, default_design
+from model.design.stage import TOPOLOGIES, default_design, with_values
 from model.errors import StageledgerError
 from model.files import plain_json
 from model.files.historyfile import entry_to_dict
@@ -16,7 +16,9 @@ from model.files.ledger import changes_between, headline, warning_codes
 from model.files.session import NOTHING_TO_COMMIT, DesignSession, create, design_at
 
 from .consequences import render_changes, render_consequences, render_entry
+from .ledger_text import ledger_lines
 from .safe_text import visible
+from .wrapping import plain
 
 
 def parse_assignments(items: list) -> dict:
@@ -30,16 +32,27 @@ def parse_assignments(items: list) -> dict:
     return values
 
 
-def cmd_new(path: str, topology: str | None, origin: str | None) -> int:
+def cmd_new(path: str, topology: str | None, origin: str | None, items: list = ()) -> int:
+    """Create ``path`` from the defaults of ``topology`` or from ``origin``,
+    with the starting values ``items`` (KEY=VALUE, validated as by set and
+    logged as the start entry's changes). Nothing is written if one is bad."""
     if origin:
         design, label = design_at(origin)
         if topology and topology != design.topology:
             raise StageledgerError(f"--topology {topology} conflicts with {origin}, {with_article(design.topology)} design")
     else:
         design, label = default_design(topology or TOPOLOGIES[0]), None
-    create(path, design, origin=label)
+    values = parse_assignments(list(items))
+    if "topology" in values:
+        raise StageledgerError(f"topology = {values['topology']!r}: a new design takes its topology from "
+                               "--topology, not KEY=VALUE")
+    start = with_values(design, values)
+    changes = changes_between(design, start)
+    create(path, start, origin=label, changes=changes)
     print(f"created {visible(path)}: {with_article(design.topology)} design"
           + (f" from {visible(label)}" if label else " from defaults"))
+    if changes:
+        print("\n".join(render_changes(changes)))
     return 0
 
 
@@ -74,9 +87,17 @@ def _print_entry(path: str, entry) -> None:
     print(f"saved {visible(path)} (entry {entry.number})")
 
 
-def cmd_history(path: str, as_json: bool) -> int:
+def cmd_history(path: str, as_json: bool, oneline: bool = False) -> int:
     with DesignSession(path, lock=False) as s:
         history, hand = s.history, s.hand_edits
+    if oneline:
+        # The Ledger's own lines, with the command line's ASCII minus.
+        for line in ledger_lines(history, minus="-"):
+            print(plain(line))
+        if hand:
+            print(f"(changed by hand since entry {len(history)}: {', '.join(c.key for c in hand)})" if history
+                  else f"(changed by hand: {', '.join(c.key for c in hand)})")
+        return 0
     if as_json:
         items = []
         for e in history:

@@ -50,7 +50,7 @@ from model.analyses.batch_figures import LARGE_FIGURES, NOISE_FIGURES, analyse_m
 from model.analyses.figures import design_values
 from model.design.eseries import step
 from model.design.spread_tables import Limit, Tolerance, check_spread_value, file_value
-from model.design.stage import CE, EF, Design, default_design, validate, with_values
+from model.design.stage import CE, EF, Design, default_design, validate, with_article, with_values
 from model.errors import DesignError
 from model.spread.analysis import quick_yield
 
@@ -152,7 +152,7 @@ PROPOSED = (CE, EF)
 def _base(topology, specs, vcc, series, tolerance, base) -> Design:
     if topology not in PROPOSED:
         raise DesignError("topology", topology, "propose starts only common-emitter and emitter-follower "
-                          f"designs; start a {topology} with `new --topology {topology}` and tune it with "
+                          f"designs; start {with_article(topology)} with `new --topology {topology}` and tune it with "
                           "aim or options")
     design = base if base is not None else default_design(topology)
     if design.topology != topology:

@@ -81,7 +81,9 @@ class Target:
         if self.figure in FRACTIONS:
             return f"{100 * figure:.3g} %"
         if self.figure in GAINS:
-            return f"{figure:+.4g} V/V"
+            # Four figures with their trailing zeros, as tui.report.gain_text
+            # writes a gain: the target -10.00 beside the -8.839 it gives.
+            return f"{format(figure, '+#.4g').removesuffix('.')} V/V"
         return format_si(figure, SPEC_UNITS[self.figure], 4)
 
     def words(self) -> str:

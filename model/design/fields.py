@@ -12,7 +12,7 @@ import numbers
 import unicodedata
 from dataclasses import dataclass
 
-from model.design.units import parse_value
+from model.design.units import NO_NUMBER, parse_value
 from model.errors import DesignError, UnitError
 
 FORMAT = 1
@@ -197,7 +197,8 @@ def rule_for(key: str, topology: str) -> Rule:
     """The rule ``key`` follows in a design of ``topology``; DesignError if it has none."""
     field = FIELDS.get(key)
     if field is None:
-        close = difflib.get_close_matches(key, FIELDS, n=1)
+        # Only keys this topology has: a suggestion the design then refuses helps nobody.
+        close = difflib.get_close_matches(key, keys_for(topology), n=1)
         hint = f"; did you mean {close[0]}?" if close else ""
         raise DesignError(key, None, f"is not a design key{hint}")
     if topology not in field.rules:
@@ -255,7 +256,11 @@ def check_value(key: str, topology: str, value: object) -> float | str:
     try:
         number = parse_value(value, FIELDS[key].unit, allow_inf=rule.open_ok)
     except UnitError as err:
-        raise broken(f"{err.reason}; {rule.text}") from None
+        # A misspelt number (a 'meg', an unknown prefix) breaks only the
+        # spelling rule, which names its fix; the limits are no part of it.
+        # No usable number at all gets the limits first, then why, so a
+        # status line cut short still shows them.
+        raise broken(f"{rule.text}; {err.reason}" if err.reason in NO_NUMBER else err.reason) from None
     if rule.none_ok and number == 0.0:
         return 0.0  # also turns -0.0 into the one stored form of "none"
     too_low = number <= rule.low if rule.low_strict else number < rule.low

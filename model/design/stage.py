@@ -479,10 +479,12 @@ def _from_dict(data: dict) -> Design:
     values: dict[str, object] = spread_from_dict(data)
     for name, content in data.items():
         if name not in allowed:
-            close = difflib.get_close_matches(name, allowed, n=1)
+            # Only names this topology has (no transistor2 for a one-transistor stage).
+            own = [n for n in allowed if n not in TABLES or any(k.startswith(n + ".") for k in keys_for(topology))]
+            close = difflib.get_close_matches(name, own, n=1)
             hint = f"did you mean {close[0]}? " if close else ""
             raise DesignError(name, _shown(content),
-                              f"is not a design key or table; {hint}expected {', '.join(allowed)}")
+                              f"is not a design key or table; {hint}expected {', '.join(own)}")
         if name in TABLES:
             if not isinstance(content, dict):
                 raise DesignError(name, _shown(content), "must be a table of keys")

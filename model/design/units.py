@@ -14,7 +14,7 @@ import re
 
 from model.errors import UnitError
 
-__all__ = ["parse_value", "format_si", "format_rkm"]
+__all__ = ["parse_value", "format_si", "format_rkm", "NO_NUMBER"]
 
 # Power of ten for each prefix letter a user may type (SI prefixes, BIPM SI
 # Brochure). Both micro code points are accepted because keyboards differ.
@@ -44,7 +44,12 @@ _DECIMAL = re.compile(
     r"(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?(?:\s*([A-Za-z\u00b5\u03bc]))?", re.ASCII
 )
 _BARE_EXPONENT = re.compile(r"[\d.]+[eE][+-]?", re.ASCII)
-_GENERIC = "not a number with an SI prefix or RKM code (examples: 4k7, 2.2k, 100n, R47)"
+NOT_A_NUMBER = "not a number with an SI prefix or RKM code (examples: 4k7, 2.2k, 100n, R47)"
+_NAN, _INFINITE, _TOO_LARGE = "nan is not a value", "an infinite value is not allowed here", "too large to represent"
+#: The reasons that say a value is no usable number at all, as against a
+#: misspelt one (a 'meg', an unknown prefix) whose reason names its fix: a
+#: field's limits belong beside these only.
+NO_NUMBER = (NOT_A_NUMBER, _NAN, _INFINITE, _TOO_LARGE)
 
 
 def parse_value(value: object, unit: str = "", *, allow_inf: bool = False) -> float:
@@ -78,11 +83,11 @@ def parse_value(value: object, unit: str = "", *, allow_inf: bool = False) -> fl
     try:
         result = float(value)
     except OverflowError:
-        raise UnitError(value, "too large to represent") from None
+        raise UnitError(value, _TOO_LARGE) from None
     if math.isnan(result):
-        raise UnitError(value, "nan is not a value")
+        raise UnitError(value, _NAN)
     if math.isinf(result) and not allow_inf:
-        raise UnitError(value, "an infinite value is not allowed here")
+        raise UnitError(value, _INFINITE)
     return result
 
 
@@ -94,12 +99,12 @@ def _parse_text(text: str, unit: str, allow_inf: bool) -> float:
     body = _strip_unit(text, body, unit)
     if body.lower() in ("inf", "infinity", "∞"):
         if not allow_inf:
-            raise UnitError(text, "an infinite value is not allowed here")
+            raise UnitError(text, _INFINITE)
         magnitude = math.inf
     else:
         magnitude = _parse_number(text, body)
         if math.isinf(magnitude):
-            raise UnitError(text, "too large to represent")
+            raise UnitError(text, _TOO_LARGE)
     return -magnitude if negative else magnitude
 
 
@@ -109,6 +114,8 @@ def _strip_unit(text: str, body: str, unit: str) -> str:
         tail = body[-len(spelling):]
         if tail == spelling or (spelling in _CASELESS and tail.lower() == spelling):
             if spelling not in accepted:
+                # "lots" ends in s but is no number in seconds: say what it is not.
+                _parse_number(text, body[: -len(spelling)].rstrip() or spelling)
                 raise UnitError(text, f"unit {spelling!r} does not match the expected {unit!r}"
                                 if unit else f"unexpected unit {spelling!r} (no unit belongs here)")
             return body[: -len(spelling)].rstrip()
@@ -118,7 +125,7 @@ def _strip_unit(text: str, body: str, unit: str) -> str:
 def _parse_number(text: str, body: str) -> float:
     lowered = body.lower()
     if lowered == "nan":
-        raise UnitError(text, "nan is not a value")
+        raise UnitError(text, _NAN)
     if "meg" in lowered:
         raise UnitError(text, "'meg' is not accepted; write M for mega (m is milli)")
     if body.count(".") > 1:
@@ -141,7 +148,7 @@ def _parse_number(text: str, body: str) -> float:
         return float(f"{number}e{_PREFIX_EXPONENT[prefix]}")
     if rkm and (rkm[1] or rkm[3]):
         raise UnitError(text, f"unknown prefix {rkm[2]!r}")
-    raise UnitError(text, _GENERIC)
+    raise UnitError(text, NOT_A_NUMBER)
 
 
 def _round_sig(value: float, digits: int) -> tuple[str, int]:

@@ -32,7 +32,7 @@ import tomli_w
 from model.analyses.checks import CODES
 from model.analyses.transfer import ACTIVE, CUTOFF, SATURATION
 from model.design.spread_tables import is_spread_key
-from model.design.stage import CE, NONE, check_key, check_known, check_value, design_from_dict, knows
+from model.design.stage import CE, NONE, check_key, check_known, check_value, design_from_dict, knows, with_article
 from model.errors import DesignError
 from model.files.ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
@@ -142,7 +142,7 @@ def _entry(item: object, number: int, earlier: list, topology: str) -> Entry:
         raise DesignError(f"{where}.design", "...", "only the start entry holds a design snapshot")
     if action != START and not item.get("changes"):
         raise DesignError(f"{where}.changes", _short(item.get("changes", [])),
-                          f"must hold at least one change: a {action} entry records what it changed")
+                          f"must hold at least one change: {with_article(action)} entry records what it changed")
     return Entry(
         number=number, time=time.astimezone(_dt.timezone.utc), action=action,
         changes=_changes(item.get("changes", []), where, topology),
@@ -201,7 +201,7 @@ def _changes(items, where, topology) -> tuple:
             if not knows(c["key"], side_topology):
                 if c[side] != NONE:
                     raise DesignError(f"{here}.{side}", _short(c[side]),
-                                      f"must be {NONE!r}: a {side_topology} design has no {c['key']}")
+                                      f"must be {NONE!r}: {with_article(side_topology)} design has no {c['key']}")
                 continue
             try:
                 check_key(c["key"], side_topology, c[side])

@@ -121,9 +121,12 @@ def _flat(data: dict, prefix: str = "") -> dict:
 
 
 def start_entry(design: Design, fig: Figures, *, origin: str | None = None, note: str = "",
-                yield_: float | None = None) -> Entry:
+                yield_: float | None = None, changes: tuple = ()) -> Entry:
+    """The first entry: the whole design; ``changes`` are the starting values
+    given on top of the defaults (or of the design copied), for the record:
+    the replay starts from the snapshot, which already holds them."""
     snapshot = {k: v for k, v in design_to_dict(design).items() if k != "format"}
-    return Entry(1, now(), START, note=note, after=headline(fig, yield_), raised=warning_codes(fig),
+    return Entry(1, now(), START, changes=changes, note=note, after=headline(fig, yield_), raised=warning_codes(fig),
                  origin=origin, snapshot=snapshot)
 
 

@@ -217,12 +217,14 @@ class DesignSession:
         return entry
 
 
-def create(path: str, design: Design, *, origin: str | None = None, note: str = "") -> Entry:
-    """Write a new design file holding ``design`` and its start entry.
+def create(path: str, design: Design, *, origin: str | None = None, note: str = "", changes: tuple = ()) -> Entry:
+    """Write a new design file holding ``design`` and its start entry
+    (``changes``: the starting values set on top of where it came from).
 
     Refuses to overwrite an existing file.
     """
-    entry = ledger.start_entry(design, analyse(design), origin=origin, note=note, yield_=ledger_yield(design))
+    entry = ledger.start_entry(design, analyse(design), origin=origin, note=note, yield_=ledger_yield(design),
+                               changes=changes)
     data = dumps_document(design, [entry_text(entry)]).encode("utf-8")
     with DesignLock(path):
         atomic_write(path, data, None, create=True)

@@ -5,43 +5,45 @@ from __future__ import annotations
 from textual.widgets import OptionList
 from textual.widgets.option_list import Option
 
-from model.files.ledger import Entry
-
-from ..consequences import compact_deltas
-from ..safe_text import visible
-from .knobs import field_text
-
-
-def entry_line(e: Entry) -> str:
-    """``#3 20:31 rc 8.2 kΩ→10 kΩ · gain +1.6 dB, rin −0.6 % · "note"``"""
-    if e.action == "start":
-        what = "start" + (f" from {e.origin}" if e.origin else "")
-    else:
-        steps = ", ".join(f"{c.key.split('.')[-1]} {field_text(c.key, c.old)}→{field_text(c.key, c.new)}"
-                          for c in e.changes)
-        what = (f"{e.action} #{e.reverses}: " if e.reverses else ("hand edit: " if e.action == "hand-edit" else "")) + steps
-    line = f"#{e.number} {e.time:%H:%M} {what}"
-    if e.before:
-        line += " · " + compact_deltas(e.before, e.after)
-    if e.note:
-        line += f' · "{e.note}"'
-    # The note, the origin and any name or notes change are the file's text.
-    return visible(line)
+from ..ledger_text import ledger_lines, wrap_line
 
 
 class LedgerPane(OptionList):
     """The history; selecting an entry pins it as the baseline.
 
     Its lines are plain text, never markup: a note such as "[b]x[/b]" or
-    "gain[dB]" is shown as typed.
+    "gain[dB]" is shown as typed.  They are wrapped here, at their
+    separators, to the pane's width, and again when it changes: Textual
+    would wrap them at any space, between a number and its unit too.
     """
 
     def __init__(self, *, id: str | None = None):
         super().__init__(id=id, markup=False)
+        self._entry_lines: list = []
+        self._wrap_width = 0
+        self._worded: dict = {}  # ledger_text's cache of this file's lines
 
     def show(self, history: list) -> None:
+        self._entry_lines = ledger_lines(history, cache=self._worded)
+        self._wrap_width = self._text_width()
         self.clear_options()
-        self.add_options([Option(entry_line(e), id=f"entry-{e.number}") for e in history])
+        self.add_options([Option(wrap_line(line, self._wrap_width), id=f"entry-{e.number}")
+                          for line, e in zip(self._entry_lines, history)])
         if history:
             self.highlighted = len(history) - 1
             self.scroll_end(animate=False)
+
+    def _text_width(self) -> int:
+        """The cells an option's text may take: the content region less the
+        options' padding, and less a vertical scrollbar even before one shows,
+        so that its arrival never makes Textual re-wrap a line itself."""
+        padding = self.get_component_styles("option-list--option").padding
+        scrollbar = 0 if self.show_vertical_scrollbar else self.styles.scrollbar_size_vertical
+        return self.scrollable_content_region.width - padding.width - scrollbar
+
+    def on_resize(self) -> None:
+        width = self._text_width()
+        if width != self._wrap_width and self._entry_lines:
+            self._wrap_width = width
+            for index, line in enumerate(self._entry_lines):
+                self.replace_option_prompt_at_index(index, wrap_line(line, width))
