@@ -238,11 +238,11 @@ def test_a_misspelt_number_reports_only_the_spelling_rule(text, reason):
     ("abc", "not a number with an SI prefix or RKM code"), ("inf", "an infinite value is not allowed here"),
     ("1e999", "too large to represent"), ("nan", "nan is not a value"),
 ])
-def test_no_number_at_all_reports_the_limits_first(text, reason):
+def test_no_number_at_all_reports_what_is_wrong_then_the_limits(text, reason):
     with pytest.raises(DesignError) as caught:
         dm.with_value(default_design(), "stage.rc", text)
     limits = dm.rule_for("stage.rc", CE).text
-    assert caught.value.rule.startswith(limits + "; " + reason)
+    assert caught.value.rule.startswith(reason) and caught.value.rule.endswith("; " + limits)
 
 
 @pytest.mark.parametrize("topology, key, own", [

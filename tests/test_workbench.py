@@ -27,9 +27,10 @@ from model.files.savefile import LockHeld
 from model.files.session import DesignSession
 from tui.bundled import default_demo, demo_dir
 from tui.launch import make_app
+from tui.minus_sign import minus_signs
 from tui.screens import HelpScreen, NotePrompt
 from tui.widgets.knobs import Knobs, field_text
-from tui.widgets.ledger_pane import LedgerPane
+from tui.widgets.ledger_pane import EMPTY, LedgerPane
 
 DEMOS = pathlib.Path(__file__).resolve().parent.parent / "saved_designs"
 SMALL = (80, 24)
@@ -177,7 +178,7 @@ async def test_typing_with_a_prefix_makes_a_candidate_and_previews_it(preamp):
         # The change column, for 10k: one screen line per figure, with its arrow.
         new = analyse(with_values(committed, {"stage.rc": 10e3}), large_signal=False)
         gain = readout_row(app, "av_loaded")
-        assert f"{20 * math.log10(abs(new.av_loaded) / abs(old.av_loaded)):+.2f} dB" in gain
+        assert minus_signs(f"{20 * math.log10(abs(new.av_loaded) / abs(old.av_loaded)):+.2f} dB") in gain
         assert gain.endswith("↑" if abs(new.av_loaded) > abs(old.av_loaded) else "↓")
         rout = readout_row(app, "rout")
         assert f"{100 * (new.rout - old.rout) / old.rout:+.3g} %" in rout
@@ -198,6 +199,9 @@ async def test_commit_logs_an_entry_with_the_note_and_saves_it(preamp):
     async with app.run_test(size=SMALL) as pilot:
         original = app.design
         assert app.session.history == []  # the demo has never been tuned
+        ledger = app.query_one(LedgerPane)
+        assert ledger.option_count == 1 and str(ledger.get_option_at_index(0).prompt) == EMPTY
+        assert ledger.get_option_at_index(0).disabled
 
         await pilot.press("f2")
         assert isinstance(app.screen, NotePrompt)
@@ -304,7 +308,7 @@ async def test_invalid_text_is_marked_and_refused_on_screen(preamp):
         assert status(app).startswith("✗") and "not a number" in status(app)
         # The readout still shows the last valid candidate, not the broken text.
         gain = analyse(with_values(app.design, {"stage.rc": 10e3}), large_signal=False).av_loaded
-        assert f"{gain:+.4g}" in readout_row(app, "av_loaded")
+        assert minus_signs(f"{gain:+.4g}") in readout_row(app, "av_loaded")  # the screen's minus
         assert "candidate" in header_row(app)
 
         await pilot.press("enter")
@@ -589,7 +593,7 @@ async def test_the_wide_screen_without_colour(preamp, monkeypatch):
         # Every column stays apart, even a value as wide as its column.
         assert readout_row(app, "region").split() == ["region", old.region, new.region, "changed"]
         gain = readout_row(app, "av_loaded")
-        assert f"{20 * math.log10(abs(new.av_loaded) / abs(old.av_loaded)):+.2f} dB" in gain
+        assert minus_signs(f"{20 * math.log10(abs(new.av_loaded) / abs(old.av_loaded)):+.2f} dB") in gain
         assert gain.endswith("↓")
         head = header_row(app)
         assert "committed" in head and "candidate" in head

@@ -20,6 +20,7 @@ from model.files.session import create
 from tui.app import fit_where, status_lines
 from tui.bundled import default_demo
 from tui.launch import make_app
+from tui.minus_sign import minus_signs
 from tui.screens import footer_text
 
 
@@ -47,7 +48,7 @@ async def test_tj_max_shows_its_unit_in_the_knobs_and_a_value_in_each_readout_co
         assert app.candidate.design.transistor.tj_max == 125.0
         row = readout_row(app, "tj_max").split()
         assert row[:5] == ["tj_max", f"{limit:g}", "°C", "125", "°C"]
-        assert row[5:] == [f"{125 - limit:+g}", "K", "↓"]
+        assert row[5:] == [minus_signs(f"{125 - limit:+g}"), "K", "↓"]
         # The row typed "125" reads back the same, with its unit.
         await pilot.press("enter")
         await pilot.pause()

@@ -14,8 +14,8 @@ from test_workbench import LARGE, SMALL, knobs, settle
 from test_workbench_pictures import picture
 
 from model.advisor.sensitivity import sensitivity_matrix
-from tui.chart_scale import minus_signs
 from tui.launch import make_app
+from tui.minus_sign import minus_signs
 from tui.pictures import KNOB_EFFECTS, PICTURES
 from tui.sensitivity_text import cell as text_cell
 

@@ -15,6 +15,7 @@ from model.errors import StageledgerError
 from .advisor_screens import OptionsDialog, TargetPrompt
 from .fieldtext import field_text
 from .messages import OptionsReady
+from .minus_sign import minus_signs
 from .screens import NotePrompt
 
 
@@ -87,8 +88,8 @@ class AdvisorActions:
             self._say("the design changed while the options were found; ask again", error=True)
             return
         reached = [o for o in message.ways if o.reached]
-        lines = [f"{o.words(message.design)} (cost {o.cost:.2f})" for o in reached]
-        why = [o.words(message.design) for o in message.ways if not o.reached]
+        lines = [minus_signs(f"{o.words(message.design)} (cost {o.cost:.2f})") for o in reached]
+        why = [minus_signs(o.words(message.design)) for o in message.ways if not o.reached]
         t = message.target
 
         def chosen(index: int | None) -> None:

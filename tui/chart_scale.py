@@ -7,7 +7,6 @@ the axis ends, and tick values with labels that tell neighbours apart.
 from __future__ import annotations
 
 import math
-import re
 
 import numpy as np
 
@@ -114,15 +113,6 @@ def rounded_out(ends: tuple, values: list[float]) -> tuple:
     first, last = math.floor(ends[0] / step + 1e-9), math.ceil(ends[1] / step - 1e-9)
     ticks_out = [0.0 if k == 0 else k * step for k in range(first, last + 1)]
     return (first * step, last * step), ticks_out
-
-
-_HYPHEN_MINUS = re.compile(r"(?<![\w.])-(?=[\d.])")
-
-
-def minus_signs(text: str) -> str:
-    """Text with U+2212 for each hyphen that is a number's sign ("-0.26 %"),
-    leaving hyphens inside words ("cut-off") as they are."""
-    return _HYPHEN_MINUS.sub("\u2212", text)
 
 
 def minus(number: str) -> str:

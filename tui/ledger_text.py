@@ -11,22 +11,15 @@ separators (`` · `` between the parts, ``, `` inside a list), so that
 
 from __future__ import annotations
 
-import re
-
 from model.design.fields import FIELDS
 from model.files.ledger import HAND_EDIT, START, Entry
 
 from .consequences import compact_parts, show_value
 from .fieldtext import field_text
+from .minus_sign import SCREEN_MINUS, minus_signs
 from .safe_text import visible
 from .wrapping import KEEP, whole, wrap
 
-#: The screen's minus sign (as the pictures use it); the command line keeps
-#: ASCII "-", which scripts and float() read.
-SCREEN_MINUS = "\u2212"
-#: The sign of a number: a minus before a digit and after no letter, digit
-#: or point (so a date's 2026-12-03 and a name's "amp-2" keep their hyphens).
-_MINUS = re.compile(r"(?<![\w.])[-\u2212](?=\d)")
 #: Tables whose keys are not named by their last part alone (transistor2.beta
 #: beside transistor.beta; a spec's figure beside the figure itself).
 _FULL_KEY = ("transistor2", "tolerance", "spec")
@@ -34,7 +27,7 @@ _FULL_KEY = ("transistor2", "tolerance", "spec")
 
 def _piece(text: str, minus: str) -> str:
     """``text`` as one unbreakable piece, its numbers signed with ``minus``."""
-    return whole(_MINUS.sub(minus, text))
+    return whole(minus_signs(text, minus))
 
 
 def _key(key: str) -> str:
@@ -46,18 +39,12 @@ def _step(change, minus: str) -> str:
     """``re1 220 Ω→330 Ω``: one change as one piece (a name or notes change
     is the file's text, escaped)."""
     if change.key in FIELDS:
-        old, new = (visible(field_text(change.key, v)) + _unit(change.key, v) for v in (change.old, change.new))
+        old, new = (visible(field_text(change.key, v)) for v in (change.old, change.new))
     else:  # a tolerance or spec entry: a number or a range MIN..MAX, as set takes it
         old, new = (show_value(change.key, v) for v in (change.old, change.new))
     step = f"{_key(change.key)} {old}→{new}"
     # Text (a name, notes) is the user's, hyphens and all; only numbers take the minus.
     return whole(step) if isinstance(change.old, str) or isinstance(change.new, str) else _piece(step, minus)
-
-
-def _unit(key: str, value) -> str:
-    """The Knobs write a temperature without its °C (the row says it); a line does."""
-    field = FIELDS.get(key)
-    return " °C" if field is not None and field.unit == "°C" and isinstance(value, (int, float)) else ""
 
 
 def _action(e: Entry) -> str:

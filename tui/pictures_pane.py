@@ -16,8 +16,8 @@ from model.analyses.figures import Figures
 from model.design.stage import Design
 
 from .chart import render_stack
-from .chart_scale import minus_signs
 from .messages import PictureReady
+from .minus_sign import minus_signs
 from .pictures import KNOB_EFFECTS, LOAD_LINES, PICTURES, SPREAD, charts_for, pictures_for
 from .sensitivity_text import knob_effect_lines
 from .spread_picture import figure_choices

@@ -1,6 +1,7 @@
 """The readout's content as a Rich table: figures, and how a candidate or the
 present design moved against a reference (the committed design or a pinned
-baseline).  Pure rendering, so it is tested without the app."""
+baseline).  Pure rendering, so it is tested without the app.  Numbers take
+the screen's minus sign, as the Ledger and the pictures beside it do."""
 
 from __future__ import annotations
 
@@ -13,6 +14,7 @@ from model.analyses.midband import decibels
 from model.design.units import format_si
 
 from .consequences import moved, relative_change
+from .minus_sign import minus_signs
 from .report import db_text, gain_text, part_name
 
 #: (group heading, rows of (label, figure key, unit kind)).
@@ -130,7 +132,7 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
                 absent = key in FOLLOWER_KEYS and not (shown.two_transistors and reference.two_transistors)
                 moved = "" if absent or _nan(a) or _nan(b) else relative_change(b, a, key)
                 line += _right((moved + " " + _arrow(key, b, a)).strip(), _CHANGE)
-            out.append(line + "\n")
+            out.append(minus_signs(line) + "\n")
 
     for heading, rows in groups:
         group(heading, rows)
@@ -141,10 +143,10 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
             # second transistor raises.
             ends = [f"{way}: {why}" for way, why in zip(("up", "down"), shown.swing_limits) if why]
             out.append(f"  {' · '.join(ends)}\n")
-    out.append(_tj_max_row(tj_max, reference_tj_max if compare else None, compare, value_width))
+    out.append(minus_signs(_tj_max_row(tj_max, reference_tj_max if compare else None, compare, value_width)))
     if yields is not None:
         out.append("\nspread\n", style="italic")
-        out.append(_yield_rows(yields, compare, value_width))
+        out.append(minus_signs(_yield_rows(yields, compare, value_width)))
     out.append("\n")
     group(*NOISE_ROWS)
     return out

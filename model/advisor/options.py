@@ -108,11 +108,25 @@ def _shown(key: str, value: float) -> str:
 
 
 def _loss_words(loss: Loss) -> str:
+    """One loss in words, ASCII signs (the command line's; the workbench
+    draws its own minus)."""
     if loss.figure in ("swing_up", "swing_down"):
-        return f"{loss.figure} {loss.after - loss.before:+.2f} V".replace("-", "−")
+        return f"{loss.figure} {loss.after - loss.before:+.2f} V"
     if loss.figure in ("thd", "yield"):
-        return f"{loss.figure} {100 * loss.before:.3g} % → {100 * loss.after:.3g} %"
-    return f"{loss.figure} {100 * (loss.after / loss.before - 1):+.0f} %".replace("-", "−")
+        before, after = _distinct_percent(loss.before, loss.after)
+        return f"{loss.figure} {before} % → {after} %"
+    return f"{loss.figure} {100 * (loss.after / loss.before - 1):+.0f} %"
+
+
+def _distinct_percent(before: float, after: float) -> tuple[str, str]:
+    """Two fractions in per cent to three figures, or to as many more (up to
+    five) as it takes to tell them apart: a loss over NEGLIGIBLE never reads
+    "0.136 % → 0.136 %"."""
+    for digits in (3, 4, 5):
+        pair = f"{100 * before:.{digits}g}", f"{100 * after:.{digits}g}"
+        if pair[0] != pair[1]:
+            break
+    return pair
 
 
 def lines_for(design: Design) -> tuple[list, list]:

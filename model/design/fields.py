@@ -258,9 +258,9 @@ def check_value(key: str, topology: str, value: object) -> float | str:
     except UnitError as err:
         # A misspelt number (a 'meg', an unknown prefix) breaks only the
         # spelling rule, which names its fix; the limits are no part of it.
-        # No usable number at all gets the limits first, then why, so a
-        # status line cut short still shows them.
-        raise broken(f"{rule.text}; {err.reason}" if err.reason in NO_NUMBER else err.reason) from None
+        # No usable number at all gets what is wrong, then the limits a
+        # number must keep, so the user knows what to type instead.
+        raise broken(f"{err.reason}; {rule.text}" if err.reason in NO_NUMBER else err.reason) from None
     if rule.none_ok and number == 0.0:
         return 0.0  # also turns -0.0 into the one stored form of "none"
     too_low = number <= rule.low if rule.low_strict else number < rule.low

@@ -8,6 +8,10 @@ from textual.widgets.option_list import Option
 from ..ledger_text import ledger_lines, wrap_line
 
 
+#: What an empty ledger says (a disabled line, never an entry to select).
+EMPTY = "no entries yet: Enter commits a change, and each commit is logged here"
+
+
 class LedgerPane(OptionList):
     """The history; selecting an entry pins it as the baseline.
 
@@ -32,6 +36,8 @@ class LedgerPane(OptionList):
         if history:
             self.highlighted = len(history) - 1
             self.scroll_end(animate=False)
+        else:  # a new file or a demo: say what will appear here
+            self.add_option(Option(EMPTY, disabled=True))
 
     def _text_width(self) -> int:
         """The cells an option's text may take: the content region less the
