@@ -7,7 +7,6 @@ from textual.widgets.option_list import Option
 
 from ..ledger_text import ledger_lines, wrap_line
 
-
 #: What an empty ledger says (a disabled line, never an entry to select).
 EMPTY = "no entries yet: Enter commits a change, and each commit is logged here"
 
