@@ -15,7 +15,8 @@ from model.design.units import format_si
 
 from .consequences import moved, relative_change
 from .minus_sign import minus_signs
-from .report import db_text, gain_text, part_name
+from .report import db_text, gain_text, noise_shares, part_name
+from .wrapping import whole, wrap
 
 #: (group heading, rows of (label, figure key, unit kind)).
 ROWS = (
@@ -149,7 +150,17 @@ def readout_table(shown: Figures, reference: Figures | None, *, shown_label: str
         out.append(minus_signs(_yield_rows(yields, compare, value_width)))
     out.append("\n")
     group(*NOISE_ROWS)
+    out.append(_largest_sources(shown, _LABEL + value_width + (_VALUE + _CHANGE if compare else 0)))
     return out
+
+
+def _largest_sources(fig: Figures, width: int) -> str:
+    """The shown design's three largest noise sources, wrapped between them
+    to the table's ``width``: what to change to lower the noise.  "…" until
+    the sweep reports, so the readout keeps its height."""
+    shares = noise_shares(fig, 3) if fig.noise is not None else []
+    text = ", ".join(map(whole, shares)) or (PENDING if fig.noise is None else "none")
+    return "\n".join(wrap(text, width, " " * 4, "  largest: ")) + "\n"
 
 
 def _tj_max_row(shown: float, reference: float | None, compare: bool, value_width: int) -> str:

@@ -12,7 +12,7 @@ from model.design.stage import Design
 from model.design.units import format_si
 
 from .safe_text import visible
-from .wrapping import units_kept, wrap
+from .wrapping import units_kept, whole, wrap
 
 #: The words for a figure that is not a finite number: an infinite one is
 #: unbounded (a resistance with no path, a band with no upper corner); a NaN
@@ -111,7 +111,7 @@ def noise_lines(design: Design, fig: Figures) -> list:
     at = _si(design.source.freq, "Hz")
     band = (f"{_si(n.band[0], 'Hz')} – {_si(n.band[1], 'Hz')}" if math.isfinite(n.band[0])
             else "none: the stage has no −3 dB band")
-    top = [f"{name} {100 * share:.0f} %" for name, share in n.contributors[:5] if share >= 0.005]
+    first = f"  {'largest sources':<33}"
     return [
         "",
         f"Noise, input-referred (ambient {design.environment.ambient:g} °C)",
@@ -122,21 +122,16 @@ def noise_lines(design: Design, fig: Figures) -> list:
         f"{_si(n.rs_opt, 'Ω')}",
         f"  {'band':<33}{band}",
         f"  {'integrated':<33}{_si(n.vn_in_rms, 'V', NONE)} rms; SNR of vpk {_db_or_none(n.snr_db)}",
-        *_packed(top or [NONE], f"  {'largest sources':<33}", 78),
+        *wrap(", ".join(map(whole, noise_shares(fig, 5))) or NONE, 78, " " * len(first), first),
     ]
 
 
-def _packed(items: list, first: str, width: int) -> list:
-    """``items`` joined by ", " into lines of at most ``width``, never
-    breaking inside one (a name and its share stay together)."""
-    lines, line = [], first
-    for k, item in enumerate(items):
-        piece = item + ("," if k < len(items) - 1 else "")
-        if line.strip() and len(line) + 1 + len(piece) > width and line != first:
-            lines.append(line)
-            line = " " * len(first)
-        line += ("" if line.endswith(" ") or line == first else " ") + piece
-    return lines + [line]
+def noise_shares(fig: Figures, count: int) -> list:
+    """The ``count`` largest noise sources with their shares of the total
+    power ("rs thermal 56 %"), those under half a per cent left out."""
+    n = fig.noise
+    return [] if n is None else [f"{name} {100 * share:.0f} %" for name, share in n.contributors[:count]
+                                 if share >= 0.005]
 
 
 def _title(design: Design) -> str:
