@@ -85,11 +85,11 @@ class Fingerprint:
             mtime = inode = 0
         return Fingerprint(len(data), mtime, hashlib.sha256(data).hexdigest(), inode)
 
-    def describes(self, info: os.stat_result, data: bytes) -> bool:
-        """Whether a file with status ``info`` and content ``data`` is still the one read."""
-        return (len(data) == self.size == info.st_size
-                and self.mtime_ns in (0, info.st_mtime_ns) and self.inode in (0, info.st_ino)
-                and hashlib.sha256(data).hexdigest() == self.sha256)
+    def describes(self, info: os.stat_result, size: int, sha256: str) -> bool:
+        """Whether a file with status ``info``, whose ``size`` bytes read hash
+        to ``sha256``, is still the one read."""
+        return (size == self.size == info.st_size and sha256 == self.sha256
+                and self.mtime_ns in (0, info.st_mtime_ns) and self.inode in (0, info.st_ino))
 
 
 def _reason(err: OSError) -> str:
@@ -115,14 +115,15 @@ def unchanged_since(path: str, seen: Fingerprint | None) -> bool:
     try:
         with open(path, "rb") as handle:
             data = handle.read(seen.size + 1 if seen is not None else 1)
-            info = os.fstat(handle.fileno())
-        name_info = os.stat(path)
+            read_inode = os.fstat(handle.fileno()).st_ino
+        digest = hashlib.sha256(data).hexdigest()
+        info = os.stat(path)  # the last look at the file: a save's rename follows at once
     except FileNotFoundError:
         return seen is None
     if seen is None:
         return False
     # The name must still lead to the inode read (an editor may rename a new file over it meanwhile).
-    return name_info.st_ino == info.st_ino and seen.describes(name_info, data)
+    return info.st_ino == read_inode and seen.describes(info, len(data), digest)
 
 
 def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bool = False) -> Fingerprint:
