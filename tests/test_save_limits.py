@@ -20,7 +20,14 @@ from hypothesis import strategies as st
 from test_workbench import SMALL, status, type_into
 
 from model.design.stage import default_design
-from model.files.designfile import MAX_FILE_BYTES, MAX_LINE_CHARS, dumps_design, encode_for_save, read_document
+from model.files.designfile import (
+    MAX_FILE_BYTES,
+    MAX_LINE_CHARS,
+    dumps_design,
+    encode_for_save,
+    overlong_line,
+    read_document,
+)
 from model.files.savefile import SaveError
 from model.files.session import DesignSession
 from tui.cli import main
@@ -83,6 +90,19 @@ def test_a_note_that_is_not_unicode_text_is_refused_in_one_line(tmp_path, capsys
     assert_one_line_refusal(code, err)
     assert "history[2].note holds U+DCFF" in err
     assert path.read_bytes() == before
+
+
+_lengths = st.one_of(st.sampled_from([0, 1, MAX_LINE_CHARS - 1, MAX_LINE_CHARS, MAX_LINE_CHARS + 1,
+                                        2 * MAX_LINE_CHARS + 1]), st.integers(0, 3 * MAX_LINE_CHARS))
+
+
+@given(st.lists(_lengths, max_size=8), st.booleans())
+def test_the_line_rule_finds_the_first_long_line_as_a_plain_scan_does(lengths, final_newline):
+    """overlong_line crosses the text in strides; a plain split is the definition."""
+    text = "\n".join("é" * n for n in lengths) + ("\n" if final_newline else "")
+    plain = next(((n, len(line)) for n, line in enumerate(text.split("\n"), start=1)
+                  if len(line) > MAX_LINE_CHARS), None)
+    assert overlong_line(text) == plain
 
 
 def test_a_file_over_the_size_limit_is_refused_naming_size_and_limit():

@@ -161,12 +161,18 @@ def loads_document(text: str, path: str = "<string>") -> tuple:
 def overlong_line(text: str) -> tuple[int, int] | None:
     """(number from 1, length) of the first line of ``text`` longer than
     MAX_LINE_CHARS, or None: the one line rule, for the reader and the writer."""
-    # TOML counts lines by "\n" only, so split the same way to report the same numbers.
-    lines = text.split("\n")
-    if max(map(len, lines)) <= MAX_LINE_CHARS:
-        return None
-    number = next(n for n, line in enumerate(lines, start=1) if len(line) > MAX_LINE_CHARS)
-    return number, len(lines[number - 1])
+    # TOML counts lines by "\n" only, so look for that alone.  From the start
+    # of a line, the last newline within the next MAX_LINE_CHARS + 1
+    # characters ends a run of lines short enough; none there, and the line
+    # is too long.  So a long history is crossed in strides, not line by line.
+    start, end = 0, len(text)
+    while end - start > MAX_LINE_CHARS:
+        newline = text.rfind("\n", start, start + MAX_LINE_CHARS + 1)
+        if newline < 0:
+            stop = text.find("\n", start)
+            return text.count("\n", 0, start) + 1, (end if stop < 0 else stop) - start
+        start = newline + 1
+    return None
 
 
 def _nesting(data) -> int:
