@@ -21,6 +21,7 @@ import select
 import shutil
 import signal
 import socket
+import stat
 import subprocess
 import sys
 import tempfile
@@ -580,6 +581,65 @@ def test_a_file_changed_on_disk_is_not_overwritten(tmp_path, edit):
             assert path.read_bytes() == external
         assert s.design == design and s.history == history
         assert temporaries(path) == []
+
+
+def _edit_in_place_keeping_size_and_mtime(path: pathlib.Path) -> bytes:
+    info = os.stat(path)
+    data = path.read_bytes()
+    edited = data.replace(b"vcc = 9.0", b"vcc = 8.0", 1)
+    assert edited != data and len(edited) == len(data)
+    with open(path, "r+b") as handle:  # the same inode, as an editor that writes in place leaves it
+        handle.write(edited)
+    os.utime(path, ns=(info.st_atime_ns, info.st_mtime_ns))
+    return edited
+
+
+def _edit_by_rename_with_the_same_bytes(path: pathlib.Path) -> bytes:
+    # An editor's own atomic save that changed nothing but the inode: a new file, not the one read.
+    data = path.read_bytes()
+    other = path.with_name("editor-save.tmp")
+    other.write_bytes(data)
+    info = os.stat(path)
+    os.utime(other, ns=(info.st_atime_ns, info.st_mtime_ns))
+    os.replace(other, path)
+    return data
+
+
+def _edit_by_appending(path: pathlib.Path) -> bytes:
+    with open(path, "ab") as handle:
+        handle.write(b"\n")
+    return path.read_bytes()
+
+
+HAND_EDITS = {"in-place-same-size-same-mtime": _edit_in_place_keeping_size_and_mtime,
+              "rename-same-bytes": _edit_by_rename_with_the_same_bytes,
+              "append": _edit_by_appending}
+
+
+@pytest.mark.parametrize("edit", list(HAND_EDITS))
+def test_a_hand_edit_between_the_temporarys_fsync_and_the_rename_is_kept(tmp_path, monkeypatch, capsys, edit):
+    """Issue 16 item 2: the edit lands after the first check and after the
+    temporary is written and synced, just before the rename; the last look
+    before the rename must see it.  No timing: the edit runs inside fsync."""
+    path = copy_demo(tmp_path)
+    real_fsync, edited = os.fsync, []
+
+    def fsync_then_edit(fd):
+        real_fsync(fd)
+        if not edited and stat_is_regular(fd) and os.fstat(fd).st_ino != os.stat(path).st_ino:
+            edited.append(HAND_EDITS[edit](path))  # the temporary is synced: now the other writer
+
+    monkeypatch.setattr(savefile.os, "fsync", fsync_then_edit)
+    code, out, err = cli(capsys, "set", path, "stage.rc=10k")
+    assert edited, "the hand edit never ran: the save no longer syncs its temporary"
+    assert_one_line_refusal(code, err)
+    assert "changed on disk" in err and "not saved" in err
+    assert path.read_bytes() == edited[0]
+    assert temporaries(path) == []
+
+
+def stat_is_regular(fd: int) -> bool:
+    return stat.S_ISREG(os.fstat(fd).st_mode)
 
 
 # -- 5. bad input through `set` --------------------------------------------------------------

@@ -104,6 +104,7 @@ def _some(unit: str, rule: Rule, topologies) -> Field:
 
 _ANY_TEXT = Rule("must be text", kind="text")
 _POSITIVE_OHMS = _range("Ω", 0)
+_EXPONENT = Rule("must be finite, from -50 to 50", low=-50.0, high=50.0)
 _ABSOLUTE_ZERO = -273.15
 
 # The one table of every file key: unit and rule. Numbers must be finite
@@ -149,7 +150,7 @@ FIELDS: dict[str, Field] = {
     "source.noise_high": _both("Hz", Rule("must be greater than 0 Hz, or 'none' for the stage's f_high",
                                           low=0.0, low_strict=False, none_ok=True)),
     "load.rl": _both("Ω", _range("Ω", 0, open_ok=True)),
-    "load.cl": _both("F", _fitted("F")),
+    "load.cl": _both("F", _fitted("F", 1e3)),
     "transistor.polarity": _both("", _choice(POLARITIES)),
     # Lower bounds far below any real part, where a value stops being a
     # transistor and becomes a float's underflow (5e-324 overflows 1/β).
@@ -164,9 +165,11 @@ FIELDS: dict[str, Field] = {
     "transistor.pd_max": _both("W", _range("W", 0)),
     "transistor.theta_ja": _both("K/W", _range("K/W", 0)),
     "transistor.tj_max": _both("°C", _range("°C", _ABSOLUTE_ZERO)),
-    "transistor.xti": _both("", _range("")),
+    # Exponents of T/T0: a real part's XTI is about 3 and XTB about 1.5 (from
+    # memory); past ±50 the power overflows or underflows over the ambient range.
+    "transistor.xti": _both("", _EXPONENT),
     "transistor.eg": _both("eV", _range("eV", 0, 5, high_strict=True)),
-    "transistor.xtb": _both("", _range("")),
+    "transistor.xtb": _both("", _EXPONENT),
     # Noise only: the signal network has no rb (model.analyses.noise).
     "transistor.rb": _both("Ω", _range("Ω", 0, 1e6, low_strict=False)),
     "transistor.kf": _both("", _range("", 0, low_strict=False)),

@@ -21,7 +21,7 @@ from model.design.stage import Design, design_from_dict, design_to_dict
 from model.errors import DesignError, DesignFileError
 from model.files.historyfile import history_from_list
 from model.files.ledger import replay
-from model.files.savefile import Fingerprint
+from model.files.savefile import Fingerprint, SaveError
 
 # A design is a few kilobytes and each history entry under one; the caps keep
 # a wrong or hostile file from costing memory or time before the parser even
@@ -134,10 +134,9 @@ def loads_document(text: str, path: str = "<string>") -> tuple:
         raise DesignFileError(path, None, _too_large())
     if text.startswith(_BOM):
         raise DesignFileError(path, 1, "starts with a byte order mark; save it as UTF-8 without BOM")
-    # TOML counts lines by "\n" only, so split the same way to report the same numbers.
-    for number, line in enumerate(text.split("\n"), start=1):
-        if len(line) > MAX_LINE_CHARS:
-            raise DesignFileError(path, number, f"line is longer than {MAX_LINE_CHARS} characters")
+    long_line = overlong_line(text)
+    if long_line:
+        raise DesignFileError(path, long_line[0], f"line is longer than {MAX_LINE_CHARS} characters")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
@@ -157,6 +156,23 @@ def loads_document(text: str, path: str = "<string>") -> tuple:
                                           f"a design file needs at most {MAX_NESTING}")
     history = history_from_list(data.pop("history"), path) if "history" in data else []
     return design_from_dict(data, path), history
+
+
+def overlong_line(text: str) -> tuple[int, int] | None:
+    """(number from 1, length) of the first line of ``text`` longer than
+    MAX_LINE_CHARS, or None: the one line rule, for the reader and the writer."""
+    # TOML counts lines by "\n" only, so look for that alone.  From the start
+    # of a line, the last newline within the next MAX_LINE_CHARS + 1
+    # characters ends a run of lines short enough; none there, and the line
+    # is too long.  So a long history is crossed in strides, not line by line.
+    start, end = 0, len(text)
+    while end - start > MAX_LINE_CHARS:
+        newline = text.rfind("\n", start, start + MAX_LINE_CHARS + 1)
+        if newline < 0:
+            stop = text.find("\n", start)
+            return text.count("\n", 0, start) + 1, (end if stop < 0 else stop) - start
+        start = newline + 1
+    return None
 
 
 def _nesting(data) -> int:
@@ -194,6 +210,55 @@ def dumps_design(design: Design) -> str:
 def dumps_document(design: Design, entry_texts: list) -> str:
     """The design followed by its history, given each entry's TOML text."""
     return dumps_design(design) + "".join("\n" + t for t in entry_texts)
+
+
+def encode_for_save(text: str, path: str) -> bytes:
+    """The UTF-8 bytes a save of ``text`` writes to ``path``, checked first
+    against the reader's own limits: a save must never write a file that no
+    command opens again.  SaveError names the field at fault, its size and
+    the limit, and nothing is written."""
+    try:
+        data = text.encode("utf-8")
+    except UnicodeEncodeError as err:
+        field = _field_at(text, text.count("\n", 0, err.start) + 1)
+        raise SaveError(path, f"{field} holds U+{ord(text[err.start]):04X}, which is not a character "
+                              "(an undecodable byte on the command line?)") from None
+    long_line = overlong_line(text)
+    if long_line:
+        number, length = long_line
+        raise SaveError(path, f"{_field_at(text, number)} would be written as a line of {length:,} characters; "
+                              f"a line of a design file holds at most {MAX_LINE_CHARS:,}: shorten it")
+    if len(data) > MAX_FILE_BYTES:
+        raise SaveError(path, f"the file would be {len(data):,} bytes; a design file holds at most "
+                              f"{MAX_FILE_BYTES:,} ({MAX_FILE_BYTES >> 20} MiB): start a new file from this "
+                              f"design with: stageledger new NEW --from {path}")
+    return data
+
+
+_HEADER = re.compile(r"(\[\[?)([A-Za-z0-9_.-]+)\]\]?")
+_KEY = re.compile(r"\s*([A-Za-z0-9_-]+) = ")
+
+
+def _field_at(text: str, number: int) -> str:
+    """The key written on line ``number`` of ``text`` (as dumps_document lays
+    it out: every value on its key's line), named as the reader's messages
+    name it: ``notes``, ``history[3].note``, ``history[2].changes[1].new``."""
+    lines = text.split("\n", number)
+    shown, counts = "", {}
+    for line in lines[:number - 1]:
+        header = _HEADER.fullmatch(line)
+        if not header:
+            continue
+        name = header.group(2)
+        if header.group(1) == "[[":
+            counts = {k: v for k, v in counts.items() if not k.startswith(name + ".")}
+            counts[name] = counts.get(name, 0) + 1
+        parts = name.split(".")
+        shown = ".".join(f"{part}[{counts[p]}]" if (p := ".".join(parts[:i + 1])) in counts else part
+                         for i, part in enumerate(parts))
+    key = _KEY.match(lines[number - 1])
+    key = key.group(1) if key else f"line {number}"
+    return f"{shown}.{key}" if shown else key
 
 
 def comment_lines(text: str) -> tuple:

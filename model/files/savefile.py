@@ -67,19 +67,29 @@ def _holder_text(holder: dict) -> str:
 
 @dataclass(frozen=True)
 class Fingerprint:
-    """What a file was when it was read: size (bytes), mtime (ns) and SHA-256."""
+    """What a file was when it was read: size (bytes), mtime (ns), SHA-256
+    of the bytes read and inode (mtime and inode 0 where they could not be
+    had: then only size and hash decide)."""
 
     size: int
     mtime_ns: int
     sha256: str
+    inode: int = 0
 
     @staticmethod
     def of(path: str, data: bytes) -> "Fingerprint":
         try:
-            mtime = os.stat(path).st_mtime_ns
+            info = os.stat(path)
+            mtime, inode = info.st_mtime_ns, info.st_ino
         except OSError:
-            mtime = 0  # only the hash decides whether the file changed
-        return Fingerprint(len(data), mtime, hashlib.sha256(data).hexdigest())
+            mtime = inode = 0
+        return Fingerprint(len(data), mtime, hashlib.sha256(data).hexdigest(), inode)
+
+    def describes(self, info: os.stat_result, size: int, sha256: str) -> bool:
+        """Whether a file with status ``info``, whose ``size`` bytes read hash
+        to ``sha256``, is still the one read."""
+        return (size == self.size == info.st_size and sha256 == self.sha256
+                and self.mtime_ns in (0, info.st_mtime_ns) and self.inode in (0, info.st_ino))
 
 
 def _reason(err: OSError) -> str:
@@ -96,16 +106,24 @@ def _reason(err: OSError) -> str:
 
 
 def unchanged_since(path: str, seen: Fingerprint | None) -> bool:
-    """Whether ``path`` is still what ``seen`` describes (absent if ``seen`` is None)."""
+    """Whether ``path`` is still what ``seen`` describes (absent if ``seen`` is None).
+
+    Every part must agree: the hash catches an edit of the same size within
+    one mtime tick, the inode an editor's own rename, the mtime and size the
+    rest.  The status is taken after the read, so that a write during the
+    read moves the mtime the check then sees."""
     try:
         with open(path, "rb") as handle:
-            data = handle.read()
+            data = handle.read(seen.size + 1 if seen is not None else 1)
+            read_inode = os.fstat(handle.fileno()).st_ino
+        digest = hashlib.sha256(data).hexdigest()
+        info = os.stat(path)  # the last look at the file: a save's rename follows at once
     except FileNotFoundError:
         return seen is None
     if seen is None:
         return False
-    # The hash decides; size and mtime only make the common case cheap to explain.
-    return len(data) == seen.size and hashlib.sha256(data).hexdigest() == seen.sha256
+    # The name must still lead to the inode read (an editor may rename a new file over it meanwhile).
+    return info.st_ino == read_inode and seen.describes(info, len(data), digest)
 
 
 def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bool = False) -> Fingerprint:
@@ -127,9 +145,7 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
         target, info = os.path.abspath(path), None
     else:
         target = os.path.realpath(path)
-        if not unchanged_since(target, seen):
-            raise SaveError(path, "the file changed on disk since it was read; "
-                                  "reload it, or save your change to another file")
+        _refuse_changed(path, target, seen)
         try:
             info = os.stat(target)
         except FileNotFoundError:
@@ -163,6 +179,12 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
                 os.link(target, backup, follow_symlinks=False)
             except OSError:
                 backup = None  # a file system without hard links: no way back, as before
+        # The last look, as late as it can be: a hand edit made while the
+        # temporary was written and synced is kept, and this save refused.
+        # What remains is the time from the stat in unchanged_since to the
+        # rename (README, Saving safely).
+        if not create:
+            _refuse_changed(path, target, seen)
         os.replace(tmp, target)
         tmp = None
         try:
@@ -189,6 +211,16 @@ def atomic_write(path: str, data: bytes, seen: Fingerprint | None, *, create: bo
                 except OSError:
                     pass
     return Fingerprint.of(path, data)
+
+
+def _refuse_changed(path: str, target: str, seen: Fingerprint | None) -> None:
+    try:
+        unchanged = unchanged_since(target, seen)
+    except OSError as err:
+        raise SaveError(path, f"cannot check the file before saving: {_reason(err)}") from None
+    if not unchanged:
+        raise SaveError(path, "the file changed on disk since it was read; "
+                              "reload it, or save your change to another file")
 
 
 def _refuse_unwritable(path: str, target: str, info: os.stat_result) -> None:

@@ -15,7 +15,7 @@ from model.analyses.figures import Figures, analyse
 from model.design.stage import Design, with_values
 from model.errors import StageledgerError
 from model.files import ledger
-from model.files.designfile import Document, dumps_document, read_document
+from model.files.designfile import Document, dumps_document, encode_for_save, read_document
 from model.files.historyfile import entry_text
 from model.files.ledger import Entry
 from model.files.savefile import DesignLock, atomic_write
@@ -206,7 +206,7 @@ class DesignSession:
                                     yields=(self.yield_of(self.design), self.yield_of(design)))
         added = prefix + [entry]
         texts = self._texts + [entry_text(e) for e in added]
-        data = dumps_document(design, texts).encode("utf-8")
+        data = encode_for_save(dumps_document(design, texts), self.path)
         self.fingerprint = atomic_write(self.path, data, self.fingerprint)
         # Only now, with the file durably saved, does the session move on.
         self.design, self.figures = design, after
@@ -225,7 +225,7 @@ def create(path: str, design: Design, *, origin: str | None = None, note: str = 
     """
     entry = ledger.start_entry(design, analyse(design), origin=origin, note=note, yield_=ledger_yield(design),
                                changes=changes)
-    data = dumps_document(design, [entry_text(entry)]).encode("utf-8")
+    data = encode_for_save(dumps_document(design, [entry_text(entry)]), path)
     with DesignLock(path):
         atomic_write(path, data, None, create=True)
     return entry
