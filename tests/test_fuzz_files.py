@@ -360,3 +360,29 @@ def test_a_start_snapshot_with_a_value_out_of_bounds_is_refused_before_any_analy
 def test_values_at_the_new_bounds_still_get_a_report_without_warnings(tmp_path, capsys, demo, old, new):
     code, out, err, issued = run(capsys, "report", _demo_with(tmp_path, demo, old, new))
     assert (code, err, issued) == (0, "", [])
+
+
+@pytest.mark.parametrize("replacements", [
+    # Near absolute zero the scaled IS underflows to 0 (IS·(T/T0)^XTI·exp(EG/VT·(T/T0 − 1)),
+    # Getreu 1976); the junction's critical voltage once divided by it.
+    ((b"ambient = -10.0", b"ambient = -273.0"),),
+    ((b"ambient = -10.0", b"ambient = -200.0"), (b"xti = 3.0", b"xti = 50.0"), (b"eg = 1.11", b"eg = 4.99")),
+    ((b"ambient = [-25, 45]", b"ambient = [-273.1, 45]"),),
+])
+def test_a_junction_near_absolute_zero_gets_an_answer_without_warnings(tmp_path, capsys, replacements):
+    path = tmp_path / "design.toml"
+    data = (ROOT / "saved_designs" / "geophone_preamp.toml").read_bytes()
+    for old, new in replacements:
+        assert old in data
+        data = data.replace(old, new, 1)
+    path.write_bytes(data)
+    for command in ("report", "spread"):
+        code, out, err, issued = run(capsys, command, path)
+        assert code in (0, 2) and not issued, (command, code, err, issued)
+        assert len(err.splitlines()) == (code == 2), err
+
+
+def test_a_beta_spread_past_any_real_part_is_refused_with_its_bound(tmp_path, capsys):
+    path = _demo_with(tmp_path, "geophone_preamp.toml", b"beta = [100, 400]", b"beta = [0.001, 1e300]")
+    code, _, err, issued = run(capsys, "spread", path)
+    assert code == 2 and not issued and "tolerance.beta" in err and "at most 1e6" in err, err

@@ -172,4 +172,7 @@ def limit_junction(v_new, v_old, vt, v_crit):
 
 def critical_voltage(p: DeviceParams):
     """The junction voltage (V) where the diode current's curvature turns sharp."""
-    return p.vt * np.log(p.vt / (np.sqrt(2.0) * p.i_s))
+    # As a difference of logs, with IS no smaller than the least normal float:
+    # a cold junction's scaled IS can underflow (1e-30 A at -200 °C with a
+    # large EG), and VT/IS would then overflow.
+    return p.vt * (np.log(p.vt / np.sqrt(2.0)) - np.log(np.maximum(p.i_s, np.finfo(float).tiny)))

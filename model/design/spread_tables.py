@@ -190,7 +190,10 @@ def _number(key: str, value, unit: str, rule: str, *, percent: bool = False) -> 
 
 
 _RANGE_RULES = {
-    "beta": ("", 0.0, math.inf, "must be a range of forward β, both above 0"),
+    # A spread's β draws are squared by its statistics: 1e6 is far past any
+    # real part (a Darlington pair's β is some thousands, from memory) and
+    # keeps them finite.
+    "beta": ("", 0.0, 1e6, "must be a range of forward β, above 0 and at most 1e6"),
     "i_s": ("", 0.0, 100.0, "must be a range of factors on i_s, above 0 and at most 100"),
     "ambient": ("°C", -273.15, 300.0, "must be a range of ambient temperatures above -273.15 °C and at most 300 °C"),
 }
