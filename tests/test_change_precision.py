@@ -40,29 +40,28 @@ def test_a_change_is_shown_to_the_figures_own_resolution(key, before, after, sho
     assert moved(key, before, after) == (shown.split()[0] != "0")
 
 
+def _readout_warmer_by(kelvin: float) -> str:
+    """The readout of the default design against itself with a warmer ambient."""
+    before = default_design()
+    after = with_values(before, {"environment.ambient": before.environment.ambient + kelvin})
+    fb, fa = analyse(before, large_signal=False), analyse(after, large_signal=False)
+    return readout_table(fa, fb, shown_label="candidate", reference_label="committed",
+                         tj_max=before.transistor.tj_max).plain
+
+
 def _rows(text: str) -> dict:
     return {line.split()[0]: line for line in text.splitlines() if line.startswith("  ")}
 
 
 def test_the_readout_gives_noise_no_arrow_and_keeps_a_gap():
     """An ambient 0.001 K warmer moves tj by about 0.001 K: shown as 0, no arrow."""
-    before = default_design()
-    after = with_values(before, {"environment.ambient": before.environment.ambient + 0.001})
-    fb, fa = analyse(before, large_signal=False), analyse(after, large_signal=False)
-    text = readout_table(fa, fb, shown_label="candidate", reference_label="committed",
-                         tj_max=before.transistor.tj_max).plain
-    rows = _rows(text)
+    rows = _rows(_readout_warmer_by(0.001))
     assert rows["tj"].rstrip().endswith(" 0 K"), rows["tj"]
     assert "↑" not in rows["tj"] and "↓" not in rows["tj"]
     for line in rows.values():
         # Between every two cells at least one space: "26.1 °C" never runs into "-0.000706 K".
-        assert "°C-" not in line and "°C+" not in line and "Ω+" not in line and "Ω-" not in line, line
+        assert not any(f"{unit}{sign}" in line for unit in ("°C", "Ω") for sign in "+-\u2212"), line
 
 
 def test_a_change_that_shows_gets_its_arrow():
-    before = default_design()
-    after = with_values(before, {"environment.ambient": before.environment.ambient + 10})
-    fb, fa = analyse(before, large_signal=False), analyse(after, large_signal=False)
-    text = readout_table(fa, fb, shown_label="candidate", reference_label="committed",
-                         tj_max=before.transistor.tj_max).plain
-    assert _rows(text)["tj"].rstrip().endswith("K ↑")
+    assert _rows(_readout_warmer_by(10))["tj"].rstrip().endswith("K ↑")

@@ -17,6 +17,7 @@ import tempfile
 import pytest
 from hypothesis import HealthCheck, event, example, given, settings
 from hypothesis import strategies as st
+from test_reliability import assert_one_line_refusal, cli
 from test_workbench import SMALL, status, type_into
 
 from model.design.stage import default_design
@@ -30,7 +31,6 @@ from model.files.designfile import (
 )
 from model.files.savefile import SaveError
 from model.files.session import DesignSession
-from tui.cli import main
 from tui.launch import make_app
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
@@ -41,18 +41,6 @@ def copy_demo(folder: pathlib.Path) -> pathlib.Path:
     path = folder / "design.toml"
     shutil.copyfile(GEOPHONE, path)
     return path
-
-
-def cli(capsys, *args) -> tuple:
-    code = main([str(a) for a in args])
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-def assert_one_line_refusal(code: int, err: str) -> None:
-    assert code == 2, err
-    assert "Traceback" not in err
-    assert len(err.splitlines()) == 1 and err.startswith("stageledger: "), err
 
 
 @pytest.mark.parametrize("args, field", [
