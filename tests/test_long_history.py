@@ -185,6 +185,8 @@ def test_an_inconsistent_history_written_without_the_tool_gets_the_full_check(tm
 @pytest.mark.slow
 def test_the_quick_reader_reads_every_entry_as_the_toml_parser_does(long_file):
     doc = read_document(long_file)
+    steps = doc.steps()  # before the history is read whole, when it would be read from the Entries
+    alone = [doc.entry(n) for n in (1, 2, 3_001, 6_000)]
     chunks = ("\n" + doc.verified_text).split(historytext.ENTRY_HEADER)[1:]
     parsed = [tomllib.loads("[[history]]\n" + c)["history"][0] for c in chunks]
     quick = [historytext._parse_chunk(c) for c in chunks]
@@ -198,6 +200,8 @@ def test_the_quick_reader_reads_every_entry_as_the_toml_parser_does(long_file):
             fallbacks += 1
     assert fallbacks == 1
     assert doc.history == history_from_list(parsed)
+    assert [tuple(step) for step in steps] == [(e.number, e.action, e.reverses) for e in doc.history]
+    assert alone == [doc.history[n - 1] for n in (1, 2, 3_001, 6_000)]
 
 
 def _typed(value):

@@ -21,8 +21,15 @@ import tomli_w
 from model.design.stage import Design, design_from_dict, design_to_dict
 from model.errors import DesignError, DesignFileError
 from model.files.historyfile import _short, entry_text, history_from_list
-from model.files.historytext import DIGEST_TABLE, digest_text, quick_entries, verified_split
-from model.files.ledger import replay
+from model.files.historytext import (
+    DIGEST_TABLE,
+    digest_text,
+    quick_entries,
+    quick_entry,
+    quick_steps,
+    verified_split,
+)
+from model.files.ledger import Entry, replay
 from model.files.savefile import Fingerprint
 
 # A design is a few kilobytes and each history entry under one; the caps keep
@@ -82,6 +89,19 @@ class Document:
         if self.checked_entries is not None:
             return self.checked_entries
         return quick_entries(self.verified_text) if self.verified_text else []
+
+    def steps(self) -> list:
+        """Each entry's number, action and what it reverses (all that
+        ledger.stacks reads), without reading a verified history whole."""
+        if self.checked_entries is not None or "history" in self.__dict__ or not self.verified_text:
+            return list(self.history)
+        return quick_steps(self.verified_text)
+
+    def entry(self, number: int) -> Entry:
+        """History entry ``number`` (from 1), read alone from a verified history."""
+        if self.checked_entries is not None or "history" in self.__dict__:
+            return self.history[number - 1]
+        return quick_entry(self.verified_text, number)
 
     @functools.cached_property
     def history_text(self) -> str:

@@ -27,6 +27,7 @@ import hashlib
 import json
 import re
 import tomllib
+from typing import NamedTuple
 
 from model.files.ledger import Change, Entry
 
@@ -61,8 +62,44 @@ def verified_split(raw: bytes) -> tuple[str, str, int] | None:
 
 def quick_entries(history_text: str) -> list:
     """The Entries of a verified history text (see :func:`verified_split`)."""
-    chunks = ("\n" + history_text).split(ENTRY_HEADER)[1:]
-    return [_entry(_parse_chunk(chunk)) for chunk in chunks]
+    return [_entry(_parse_chunk(chunk)) for chunk in _chunks(history_text)]
+
+
+class Step(NamedTuple):
+    """What undo and redo need of an entry (see ledger.stacks)."""
+
+    number: int
+    action: str
+    reverses: int | None
+
+
+def quick_steps(history_text: str) -> list:
+    """The Steps of a verified history text, from the lines above each
+    entry's figures: undo needs no more of the entries it does not reverse."""
+    steps = []
+    for chunk in _chunks(history_text):
+        match = _STEP.match(chunk)
+        if match:
+            number, action, reverses = match.groups()
+            steps.append(Step(int(number), action, None if reverses is None else int(reverses)))
+        else:
+            table = _parse_chunk(chunk)
+            steps.append(Step(table["entry"], table["action"], table.get("reverses")))
+    return steps
+
+
+# The first lines of an entry as the writer orders them (entry_to_dict).
+_STEP = re.compile(r'entry = ([1-9][0-9]*)\ntime = [^\n]*\naction = "([a-z-]+)"\n(?:from = [^\n]*\n)?'
+                   r"(?:reverses = ([1-9][0-9]*)\n)?(?!reverses = )")
+
+
+def quick_entry(history_text: str, number: int) -> Entry:
+    """Entry ``number`` (from 1) of a verified history text."""
+    return _entry(_parse_chunk(_chunks(history_text)[number - 1]))
+
+
+def _chunks(history_text: str) -> list:
+    return ("\n" + history_text).split(ENTRY_HEADER)[1:]
 
 
 def _entry(d: dict) -> Entry:

@@ -170,19 +170,29 @@ class DesignSession:
         return self._commit(ledger.SET, design, changes, after, note, None)
 
     def undo(self, note: str = "") -> Entry:
-        undoable, _ = ledger.stacks(self._pending_history())
+        undoable, _ = ledger.stacks(self._steps())
         if not undoable:
             raise StageledgerError("nothing to undo")
         return self._reverse(undoable[-1], ledger.UNDO, note)
 
     def redo(self, note: str = "") -> Entry:
-        _, redoable = ledger.stacks(self._pending_history())
+        _, redoable = ledger.stacks(self._steps())
         if not redoable:
             raise StageledgerError("nothing to redo")
         return self._reverse(redoable[-1], ledger.REDO, note)
 
+    def _steps(self) -> list:
+        """What ledger.stacks needs of every entry, the owed ones included;
+        only the entry undone or redone is then read whole."""
+        return (self._entries if self._entries is not None else self._doc.steps()) + self._prefix()
+
+    def _entry(self, number: int) -> Entry:
+        if number > self._count:
+            return self._prefix()[number - self._count - 1]
+        return self._entries[number - 1] if self._entries is not None else self._doc.entry(number)
+
     def _reverse(self, target: int, action: str, note: str) -> Entry:
-        changes = ledger.inverse(self._pending_history()[target - 1].changes)
+        changes = ledger.inverse(self._entry(target).changes)
         ledger.check_changes_apply(self.design, changes)
         design = ledger.apply(self.design, changes)
         return self._commit(action, design, changes, analyse(design), note, target)
@@ -201,9 +211,6 @@ class DesignSession:
                                         note="changed in the file outside stageledger",
                                         yields=(self.yield_of(logged), self.yield_of(self.design)))]
         return []
-
-    def _pending_history(self) -> list:
-        return self.history + self._prefix()
 
     def _commit(self, action, design, changes, after, note, reverses) -> Entry:
         if self.read_only:
