@@ -91,7 +91,9 @@ class DesignSession:
         self._doc = doc
         self._entries: list | None = None
         self._count = doc.entry_count
-        self._texts = [doc.history_text] if doc.entry_count else []
+        # The entries' text, made only for a save: a verified file's is its own,
+        # while a fully checked one's must be serialised anew.
+        self._texts: list | None = None
         self._logged = doc.logged
         self.fingerprint = doc.fingerprint
         self.comment_lines = doc.comment_lines
@@ -223,6 +225,8 @@ class DesignSession:
                                     yields=(self.yield_of(self.design), self.yield_of(design)))
         added = prefix + [entry]
         # The entries already in the file are written as they were read: only the new ones are serialised.
+        if self._texts is None:
+            self._texts = [self._doc.history_text] if self._count else []
         texts = self._texts + [entry_text(e) for e in added]
         data = dumps_checked_document(design, texts, number).encode("utf-8")
         self.fingerprint = atomic_write(self.path, data, self.fingerprint)

@@ -45,8 +45,9 @@ CACHE = pathlib.Path(tempfile.gettempdir()) / "stageledger_bench_ledger"
 _DIGEST = re.compile(r"\n\[ledger_digest\]\n.*\Z", re.S)
 
 
-def command_seconds(command: str, path: pathlib.Path, entries: int, scratch: pathlib.Path, repeats: int) -> float:
-    """Median wall time of one whole command on ``path`` (s)."""
+def command_seconds(command: str, path: pathlib.Path, entries: int, scratch: pathlib.Path,
+                    repeats: int) -> float | None:
+    """Median wall time of one whole command on ``path`` (s); None if the command refused."""
     times = []
     for _ in range(repeats):
         target = path
@@ -57,10 +58,16 @@ def command_seconds(command: str, path: pathlib.Path, entries: int, scratch: pat
                 "set": ["set", target, "stage.rc=12k", "--note", "bench"], "undo": ["undo", target],
                 "diff": ["diff", f"{target}@{max(1, entries // 2)}", target]}[command]
         t = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "tui", *map(str, args)], cwd=ROOT, check=True,
-                       stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        done = subprocess.run([sys.executable, "-m", "tui", *map(str, args)], cwd=ROOT,
+                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         times.append(time.perf_counter() - t)
+        if done.returncode:
+            return None  # a benchmark reports, never fails: a one-entry file has nothing to undo
     return statistics.median(times)
+
+
+def _shown(seconds: float | None) -> str:
+    return "refused" if seconds is None else f"{seconds:.2f} s"
 
 
 def commit_times(path: pathlib.Path, count: int, known: bool) -> list:
@@ -92,14 +99,15 @@ def main() -> None:
             print(f"file_size_{n}_entries: {path.stat().st_size / 1024:.0f} KiB")
             for command in COMMANDS:
                 seconds[command, n] = command_seconds(command, path, n, scratch, 3 if n < 10_000 else 2)
-                print(f"command_{command}_{n}_entries: {seconds[command, n]:.2f} s")
+                print(f"command_{command}_{n}_entries: {_shown(seconds[command, n])}")
             if n > 1:
                 legacy = scratch / f"legacy_{n}.toml"
                 legacy.write_text(_DIGEST.sub("\n", path.read_text(encoding="utf-8")), encoding="utf-8")
-                print(f"command_report_{n}_entries_full_check: {command_seconds('report', legacy, n, scratch, 1):.2f} s")
+                print(f"command_report_{n}_entries_full_check: {_shown(command_seconds('report', legacy, n, scratch, 1))}")
         for command in COMMANDS:
-            ratio = seconds[command, 10_000] / seconds[command, 1000]
-            print(f"growth_{command}_10000_over_1000: {ratio:.2f} x (linear would be 10 x or less)")
+            if seconds[command, 10_000] and seconds[command, 1000]:
+                ratio = seconds[command, 10_000] / seconds[command, 1000]
+                print(f"growth_{command}_10000_over_1000: {ratio:.2f} x (linear would be 10 x or less)")
         for n in SIZES:
             path = scratch / f"commit_{n}.toml"
             count = 9 if n < 10_000 else 5
