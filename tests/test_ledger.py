@@ -81,10 +81,11 @@ def assert_warnings(entry, before: Figures | None, after: Figures, where=""):
 
 
 def history_text(path) -> str:
-    """The [[history]] part of a file (empty if it has none)."""
+    """The [[history]] part of a file (empty if it has none), without the
+    digest that ends it (rewritten by every save)."""
     text = pathlib.Path(path).read_text(encoding="utf-8")
     at = text.find("\n[[history]]")
-    return "" if at < 0 else text[at:]
+    return "" if at < 0 else text[at:].split("\n[ledger_digest]\n")[0]
 
 
 def hand_edit(path, old: str, new: str) -> None:

@@ -34,7 +34,13 @@ from hypothesis import strategies as st
 from model.design.stage import default_design
 from model.errors import StageledgerError
 from model.files import ledger, savefile
-from model.files.designfile import MAX_FILE_BYTES, comment_lines, dumps_document, read_document
+from model.files.designfile import (
+    MAX_FILE_BYTES,
+    comment_lines,
+    dumps_checked_document,
+    dumps_document,
+    read_document,
+)
 from model.files.historyfile import entry_text
 from model.files.savefile import LockHeld, SaveError
 from model.files.session import DesignSession, create
@@ -411,7 +417,7 @@ def test_short_writes_still_produce_the_whole_file(tmp_path, monkeypatch, logged
         monkeypatch.setattr(savefile, "os", faulty)
         s.commit({"stage.rc": "12k"})
         monkeypatch.setattr(savefile, "os", os)
-        expected = dumps_document(s.design, [entry_text(e) for e in s.history]).encode("utf-8")
+        expected = dumps_checked_document(s.design, [entry_text(e) for e in s.history]).encode("utf-8")
     assert faulty.calls["write"] == len(expected)
     assert path.read_bytes() == expected
     assert read_document(path).history == s.history
@@ -855,7 +861,9 @@ def test_generated_designs_and_histories_round_trip(plan):
         if doc.history:
             # A file the tool wrote: re-serialising what was read gives back the very bytes on
             # disk.  (A demo no step managed to change is still the hand-written original.)
-            again = dumps_document(doc.design, [entry_text(e) for e in doc.history]).encode("utf-8")
+            # The tool ends its saves with the digest; a hand edit the plan ends with has none.
+            dumps = dumps_checked_document if doc.verified_text is not None else dumps_document
+            again = dumps(doc.design, [entry_text(e) for e in doc.history]).encode("utf-8")
             assert again == path.read_bytes()
         if doc.history and not s.hand_edits:
             assert ledger.replay(doc.history) == doc.design

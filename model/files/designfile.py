@@ -9,18 +9,27 @@ DesignError (parsed, but a key breaks a rule).
 from __future__ import annotations
 
 import errno
+import functools
 import os
 import re
 import stat
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import tomli_w
 
 from model.design.stage import Design, design_from_dict, design_to_dict
 from model.errors import DesignError, DesignFileError
-from model.files.historyfile import history_from_list
-from model.files.ledger import replay
+from model.files.historyfile import _short, entry_text, history_from_list
+from model.files.historytext import (
+    DIGEST_TABLE,
+    digest_text,
+    quick_entries,
+    quick_entry,
+    quick_steps,
+    verified_split,
+)
+from model.files.ledger import Entry, replay
 from model.files.savefile import Fingerprint, SaveError
 
 # A design is a few kilobytes and each history entry under one; the caps keep
@@ -54,18 +63,54 @@ def _os_reason(err: OSError) -> str:
 
 @dataclass(frozen=True)
 class Document:
-    """A design file as read: the design, its history (a list of ledger
-    Entries, empty for a file never edited by the tool), the fingerprint of the
-    bytes read and the lines that hold hand-written comments."""
+    """A design file as read: the design, its history, the fingerprint of the
+    bytes read and the lines that hold hand-written comments.
+
+    The history is ``entry_count`` entries long.  A file whose digest
+    matched keeps it as the text it was read from (``verified_text``), and
+    :attr:`history` reads the Entries from it only when asked; one that had
+    the full check keeps the Entries it read (``checked_entries``).
+    ``logged`` is the design the history replays to (None without a
+    history): found once, by the full check or from the digest.
+    """
 
     path: str
     design: Design
-    history: list
+    entry_count: int
     fingerprint: Fingerprint
     comment_lines: tuple
-    #: The design the history replays to (None without a history): read once,
-    #: when the replay checks every entry's old values.
     logged: Design | None = None
+    verified_text: str | None = field(default=None, repr=False)
+    checked_entries: list | None = field(default=None, repr=False)
+
+    @functools.cached_property
+    def history(self) -> list:
+        """The ledger Entries (empty for a file never edited by the tool)."""
+        if self.checked_entries is not None:
+            return self.checked_entries
+        return quick_entries(self.verified_text) if self.verified_text else []
+
+    def steps(self) -> list:
+        """Each entry's number, action and what it reverses (all that
+        ledger.stacks reads), without reading a verified history whole."""
+        if self.checked_entries is not None or "history" in self.__dict__ or not self.verified_text:
+            return list(self.history)
+        return quick_steps(self.verified_text)
+
+    def entry(self, number: int) -> Entry:
+        """History entry ``number`` (from 1), read alone from a verified history."""
+        if self.checked_entries is not None or "history" in self.__dict__:
+            return self.history[number - 1]
+        return quick_entry(self.verified_text, number)
+
+    @functools.cached_property
+    def history_text(self) -> str:
+        """The entries' TOML, one after another with a blank line between, as
+        :func:`dumps_document` writes them: the file's own text where it was
+        verified, so that a save need not write the old entries anew."""
+        if self.verified_text is not None:
+            return self.verified_text
+        return "\n".join(entry_text(e) for e in self.history)
 
 
 def read_design(path: str | os.PathLike) -> Design:
@@ -83,8 +128,17 @@ def read_document(path: str | os.PathLike) -> Document:
         line = raw.count(b"\n", 0, err.start) + 1
         bad = raw[err.start:err.start + 1].hex()
         raise DesignFileError(name, line, f"is not valid UTF-8 text (byte 0x{bad})") from None
+    fingerprint = Fingerprint.of(name, raw)
+    _check_lines(text, name)
+    verified = verified_split(raw)
+    if verified is not None:
+        # What the tool wrote, after checking it: no replay, and no comments.
+        design_text, history_text, count = verified
+        design = design_from_dict(_parsed(design_text, name), name)
+        return Document(name, design, count, fingerprint, (), design, verified_text=history_text)
     design, history = loads_document(text, name)
-    return Document(name, design, history, Fingerprint.of(name, raw), comment_lines(text), _replayed(history, name))
+    return Document(name, design, len(history), fingerprint, comment_lines(text), _replayed(history, name),
+                    checked_entries=history)
 
 
 def _replayed(history: list, path: str) -> Design | None:
@@ -132,11 +186,32 @@ def loads_document(text: str, path: str = "<string>") -> tuple:
     """(Design, history entries) from TOML ``text``; ``path`` names it in errors."""
     if len(text) > MAX_FILE_BYTES:
         raise DesignFileError(path, None, _too_large())
+    _check_lines(text, path)
+    data = _parsed(text, path)
+    if DIGEST_TABLE in data:
+        _check_digest_table(data.pop(DIGEST_TABLE), path)
+    history = history_from_list(data.pop("history"), path) if "history" in data else []
+    return design_from_dict(data, path), history
+
+
+def _check_lines(text: str, path: str) -> None:
     if text.startswith(_BOM):
         raise DesignFileError(path, 1, "starts with a byte order mark; save it as UTF-8 without BOM")
     long_line = overlong_line(text)
     if long_line:
         raise DesignFileError(path, long_line[0], f"line is longer than {MAX_LINE_CHARS} characters")
+
+
+def _check_digest_table(table, path: str) -> None:
+    """Refuse a ``ledger_digest`` that is not one.  A digest that does not
+    match is no error: the file was edited by hand, and has had the full check."""
+    if not isinstance(table, dict) or set(table) - {"entries", "sha256"}:
+        raise DesignError(DIGEST_TABLE, _short(table), "must hold only entries and sha256, as stageledger writes "
+                          "it (delete the table: the next save writes it anew)").in_file(path)
+
+
+def _parsed(text: str, path: str) -> dict:
+    """The TOML ``text`` parsed, DesignFileError for text that is not TOML or nests too deeply."""
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
@@ -154,8 +229,7 @@ def loads_document(text: str, path: str = "<string>") -> tuple:
         # refused here, before any check recurses into it or quotes it.
         raise DesignFileError(path, None, f"tables nested {depth} deep (a long dotted key?); "
                                           f"a design file needs at most {MAX_NESTING}")
-    history = history_from_list(data.pop("history"), path) if "history" in data else []
-    return design_from_dict(data, path), history
+    return data
 
 
 def overlong_line(text: str) -> tuple[int, int] | None:
@@ -259,6 +333,16 @@ def _field_at(text: str, number: int) -> str:
     key = _KEY.match(lines[number - 1])
     key = key.group(1) if key else f"line {number}"
     return f"{shown}.{key}" if shown else key
+
+
+def dumps_checked_document(design: Design, entry_texts: list, entries: int | None = None) -> str:
+    """:func:`dumps_document` ended by the digest that spares the next read
+    the full check, so only for a history checked (or made) by the tool and
+    the design it replays to; ``entries`` counts the entries where one text
+    holds several (a history read back whole)."""
+    body = dumps_document(design, entry_texts)
+    count = len(entry_texts) if entries is None else entries
+    return body + digest_text(body, count) if count else body
 
 
 def comment_lines(text: str) -> tuple:

@@ -15,7 +15,7 @@ from model.analyses.figures import Figures, analyse
 from model.design.stage import Design, with_values
 from model.errors import StageledgerError
 from model.files import ledger
-from model.files.designfile import Document, dumps_document, encode_for_save, read_document
+from model.files.designfile import Document, dumps_checked_document, encode_for_save, read_document
 from model.files.historyfile import entry_text
 from model.files.ledger import Entry
 from model.files.savefile import DesignLock, atomic_write
@@ -88,20 +88,32 @@ class DesignSession:
 
     def _load(self, doc: Document) -> None:
         self.design = doc.design
-        self.history = list(doc.history)
-        self._texts = [entry_text(e) for e in self.history]
+        self._doc = doc
+        self._entries: list | None = None
+        self._count = doc.entry_count
+        # The entries' text, made only for a save: a verified file's is its own,
+        # while a fully checked one's must be serialised anew.
+        self._texts: list | None = None
+        self._logged = doc.logged
         self.fingerprint = doc.fingerprint
         self.comment_lines = doc.comment_lines
         self.figures = analyse(self.design)
         self._yields: dict = {}
-        self.hand_edits = self._hand_edits(doc.logged)
+        self.hand_edits = self._hand_edits()
 
-    def _hand_edits(self, logged=None) -> tuple:
-        """Changes made to the file by hand since its last logged entry;
-        ``logged`` the design the history replays to, if already known."""
-        if not self.history:
+    @property
+    def history(self) -> list:
+        """The ledger Entries, read from the file on first use: a commit
+        needs only their count, and the design they replay to."""
+        if self._entries is None:
+            self._entries = list(self._doc.history)
+        return self._entries
+
+    def _hand_edits(self) -> tuple:
+        """Changes made to the file by hand since its last logged entry."""
+        if not self._count:
             return ()
-        logged = logged if logged is not None else ledger.replay(self.history)
+        logged = self._logged
         if logged.topology != self.design.topology:
             # Key-by-key changes cannot express a new topology (its keys differ),
             # and logging them would leave a history that no longer replays.
@@ -160,19 +172,29 @@ class DesignSession:
         return self._commit(ledger.SET, design, changes, after, note, None)
 
     def undo(self, note: str = "") -> Entry:
-        undoable, _ = ledger.stacks(self._pending_history())
+        undoable, _ = ledger.stacks(self._steps())
         if not undoable:
             raise StageledgerError("nothing to undo")
         return self._reverse(undoable[-1], ledger.UNDO, note)
 
     def redo(self, note: str = "") -> Entry:
-        _, redoable = ledger.stacks(self._pending_history())
+        _, redoable = ledger.stacks(self._steps())
         if not redoable:
             raise StageledgerError("nothing to redo")
         return self._reverse(redoable[-1], ledger.REDO, note)
 
+    def _steps(self) -> list:
+        """What ledger.stacks needs of every entry, the owed ones included;
+        only the entry undone or redone is then read whole."""
+        return (self._entries if self._entries is not None else self._doc.steps()) + self._prefix()
+
+    def _entry(self, number: int) -> Entry:
+        if number > self._count:
+            return self._prefix()[number - self._count - 1]
+        return self._entries[number - 1] if self._entries is not None else self._doc.entry(number)
+
     def _reverse(self, target: int, action: str, note: str) -> Entry:
-        changes = ledger.inverse(self._pending_history()[target - 1].changes)
+        changes = ledger.inverse(self._entry(target).changes)
         ledger.check_changes_apply(self.design, changes)
         design = ledger.apply(self.design, changes)
         return self._commit(action, design, changes, analyse(design), note, target)
@@ -182,18 +204,15 @@ class DesignSession:
     def _prefix(self) -> list:
         """Entries owed before the next one: a start entry for a file never
         logged, or a hand-edit entry for changes made outside the tool."""
-        if not self.history:
+        if not self._count:
             return [ledger.start_entry(self.design, self.figures, yield_=self.yield_of(self.design))]
         if self.hand_edits:
-            logged = ledger.replay(self.history)
-            return [ledger.change_entry(len(self.history) + 1, ledger.HAND_EDIT, self.hand_edits,
+            logged = self._logged
+            return [ledger.change_entry(self._count + 1, ledger.HAND_EDIT, self.hand_edits,
                                         analyse(logged), self.figures,
                                         note="changed in the file outside stageledger",
                                         yields=(self.yield_of(logged), self.yield_of(self.design)))]
         return []
-
-    def _pending_history(self) -> list:
-        return self.history + self._prefix()
 
     def _commit(self, action, design, changes, after, note, reverses) -> Entry:
         if self.read_only:
@@ -201,17 +220,24 @@ class DesignSession:
         if self.comment_lines and not self.drop_comments:
             raise CommentsWouldBeLost(self.path, self.comment_lines)
         prefix = self._prefix()
-        number = len(self.history) + len(prefix) + 1
+        number = self._count + len(prefix) + 1
         entry = ledger.change_entry(number, action, changes, self.figures, after, note=note, reverses=reverses,
                                     yields=(self.yield_of(self.design), self.yield_of(design)))
         added = prefix + [entry]
+        # The entries already in the file are written as they were read: only the new ones are serialised.
+        if self._texts is None:
+            self._texts = [self._doc.history_text] if self._count else []
         texts = self._texts + [entry_text(e) for e in added]
-        data = encode_for_save(dumps_document(design, texts), self.path)
+        data = encode_for_save(dumps_checked_document(design, texts, number), self.path)
         self.fingerprint = atomic_write(self.path, data, self.fingerprint)
         # Only now, with the file durably saved, does the session move on.
-        self.design, self.figures = design, after
-        self.history += added
-        self._texts = texts
+        self.design, self.figures, self._logged = design, after, design
+        # The entries, if not read yet, are read from what was just written.
+        self._doc = Document(self.path, design, number, self.fingerprint, (), design,
+                             verified_text="\n".join(texts))
+        if self._entries is not None:
+            self._entries += added
+        self._texts, self._count = texts, number
         self.comment_lines = ()
         self.hand_edits = ()
         return entry
@@ -225,7 +251,7 @@ def create(path: str, design: Design, *, origin: str | None = None, note: str = 
     """
     entry = ledger.start_entry(design, analyse(design), origin=origin, note=note, yield_=ledger_yield(design),
                                changes=changes)
-    data = encode_for_save(dumps_document(design, [entry_text(entry)]), path)
+    data = encode_for_save(dumps_checked_document(design, [entry_text(entry)]), path)
     with DesignLock(path):
         atomic_write(path, data, None, create=True)
     return entry
@@ -238,5 +264,5 @@ def design_at(spec: str) -> tuple:
         doc = read_document(path)
         if not doc.history:
             raise StageledgerError(f"{path}: has no history, so there is no entry {number}")
-        return ledger.replay(doc.history, int(number)), spec
+        return ledger.replay(doc.history, int(number), checked=True), spec
     return read_document(spec).design, spec
