@@ -39,7 +39,9 @@ _TAIL = re.compile(rb'\n\[ledger_digest\]\nentries = ([1-9][0-9]{0,8})\nsha256 =
 
 def digest_text(body: str, entries: int) -> str:
     """The digest table that ends a file whose text above it is ``body``."""
-    sha = hashlib.sha256(body.encode("utf-8")).hexdigest()
+    # "surrogatepass": a lone surrogate (an undecodable byte from the command
+    # line) must reach encode_for_save, which refuses the save naming its field.
+    sha = hashlib.sha256(body.encode("utf-8", "surrogatepass")).hexdigest()
     return f'\n[{DIGEST_TABLE}]\nentries = {entries}\nsha256 = "{sha}"\n'
 
 
