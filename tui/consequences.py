@@ -218,16 +218,23 @@ def compact_parts(before: dict, after: dict, most: int = 3) -> list:
             continue
         if not isinstance(b, (int, float)) or not isinstance(a, (int, float)):
             continue
-        change = relative_change(b, a, key)
-        if not _shows(change):
-            continue  # a move below the figure's resolution is no consequence
-        text = f"{short} {change}"
         if key == "av_source":
-            parts.append(text)
+            change = relative_change(b, a, key)
+            if _shows(change):
+                parts.append(f"{short} {change}")
         elif b and math.isfinite(b) and math.isfinite(a):
-            ranked.append((abs((a - b) / b), text))
+            ranked.append((abs((a - b) / b), key, short, b, a))
+    # Largest first, and worded only until the line has its few: a long
+    # history words ten thousand entries.
     ranked.sort(key=lambda item: -item[0])
-    parts += [text for _, text in ranked[: most - len(parts) + 1]]
+    room = most - len(parts) + 1
+    for _, key, short, b, a in ranked:
+        if room <= 0:
+            break
+        change = relative_change(b, a, key)
+        if _shows(change):  # a move below the figure's resolution is no consequence
+            parts.append(f"{short} {change}")
+            room -= 1
     if before.get("region") != after.get("region") and "region" in after:
         parts.append(f"now {after['region']}")
     return parts or ["no change in the figures"]

@@ -11,6 +11,8 @@ separators (`` · `` between the parts, ``, `` inside a list), so that
 
 from __future__ import annotations
 
+import functools
+
 from model.design.fields import FIELDS
 from model.files.ledger import HAND_EDIT, START, Entry
 
@@ -35,11 +37,20 @@ def _key(key: str) -> str:
     return key if table in _FULL_KEY else name
 
 
+@functools.lru_cache(maxsize=4096)
+def _number_text(key: str, value: float) -> str:
+    """A number as the Knobs write it; remembered, because a history sets the
+    same few values again and again and finding the shortest exact text
+    takes a parse per digit."""
+    return field_text(key, value)
+
+
 def _step(change, minus: str) -> str:
     """``re1 220 Ω→330 Ω``: one change as one piece (a name or notes change
     is the file's text, escaped)."""
     if change.key in FIELDS:
-        old, new = (visible(field_text(change.key, v)) for v in (change.old, change.new))
+        old, new = (visible(field_text(change.key, v)) if isinstance(v, str) else _number_text(change.key, v)
+                    for v in (change.old, change.new))
     else:  # a tolerance or spec entry: a number or a range MIN..MAX, as set takes it
         old, new = (show_value(change.key, v) for v in (change.old, change.new))
     step = f"{_key(change.key)} {old}→{new}"
