@@ -20,6 +20,8 @@ import pytest
 from model.analyses.figures import analyse
 from model.design.stage import with_values
 from model.files.designfile import read_document
+from tui.minus_sign import minus_signs
+from tui.report import gain_text
 
 TMUX = shutil.which("tmux")
 COMMAND = shutil.which("stageledger")
@@ -95,8 +97,8 @@ def test_typing_a_resistor_and_committing_in_tmux(tmp_path):
         # The figures logged with the entry are the engine's for the new design
         # (the history keeps six significant figures).
         assert doc.history[-1].after["av_loaded"] == pytest.approx(analyse(expected).av_loaded, rel=1e-5)
-        # The readout on screen shows the committed gain.
-        assert f"{analyse(expected).av_loaded:+.4g}" in shown
+        # The readout on screen shows the committed gain, with the screen's minus.
+        assert minus_signs(gain_text(analyse(expected).av_loaded)) in shown
 
         # A burst in one send: Tab to re1, a value, Enter, then back to rc
         # and another.  Each value must be committed on its own row.

@@ -122,9 +122,12 @@ async def test_a_new_key_is_edited_and_committed_from_its_row(tmp_path, key, tex
 # -- 2. the follower's figures in the Readout ------------------------------------
 
 
-async def _readout_end(pilot) -> str:
-    """The bottom of the Readout (at 80×24 the follower rows are below the fold)."""
-    pilot.app.query_one("#readout-box").scroll_end(animate=False)
+async def _readout_below_the_fold(pilot, heading: str = "headroom") -> str:
+    """The Readout scrolled to put the group ``heading`` at its top (at 80×24
+    the headroom and follower rows are below the fold)."""
+    lines = str(pilot.app.query_one("#readout").content).splitlines()
+    top = next(n for n, line in enumerate(lines) if line.strip() == heading)
+    pilot.app.query_one("#readout-box").scroll_to(y=top, animate=False)
     await pilot.pause()
     return readout(pilot.app)
 
@@ -147,7 +150,7 @@ async def test_the_readout_shows_the_followers_figures_for_ce_follower(tmp_path)
     async with app.run_test(size=SMALL) as pilot:
         await settle(pilot)
         design, fig = app.design, analyse(app.design)
-        text = await _readout_end(pilot)
+        text = await _readout_below_the_fold(pilot)
         assert _row(text, "q2 region").endswith(fig.region2)
         ic2 = _value(_row(text, "q2 IC"), "q2 IC", "A")
         vce2 = _value(_row(text, "q2 VCE"), "q2 VCE", "V")
@@ -180,7 +183,7 @@ async def test_one_transistor_stages_show_no_follower_rows(tmp_path, topology):
     app = make_app(_design_file(tmp_path, topology))
     async with app.run_test(size=SMALL) as pilot:
         await settle(pilot)
-        text = await _readout_end(pilot)
+        text = await _readout_below_the_fold(pilot)
         assert "q2" not in text and "follower q2" not in text
         assert "tj_max" in text
 
@@ -195,7 +198,7 @@ async def test_the_follower_rows_fit_at_80x24_beside_a_candidate(tmp_path):
         box = app.query_one("#readout").content_region
         # Every line of the comparison, the widest the Readout gets, fits its box.
         assert max(cell_len(line) for line in table.plain.splitlines()) <= box.width
-        text = await _readout_end(pilot)
+        text = await _readout_below_the_fold(pilot)
         row = _row(text, "q2 IC")
         before, after = analyse(app.design, large_signal=False), app.candidate.figures
         # A lower β2 draws more base current from q1's collector, so IC2 falls
@@ -253,7 +256,7 @@ async def test_ctrl_r_changes_the_topology_as_one_logged_entry_and_undo_brings_i
         # The Knobs were rebuilt for the new stage, and the Readout has its follower.
         assert set(knobs(app).keys) == _knob_keys(CEF)
         await settle(pilot)
-        assert "q2 IC" in await _readout_end(pilot)
+        assert "q2 IC" in await _readout_below_the_fold(pilot)
 
         # Undo is a new entry that brings the old topology and its keys back.
         await pilot.press("f7")
@@ -263,7 +266,7 @@ async def test_ctrl_r_changes_the_topology_as_one_logged_entry_and_undo_brings_i
         assert set(knobs(app).keys) == _knob_keys(CE)
         assert read_document(path).design == old
         await settle(pilot)
-        assert "q2" not in await _readout_end(pilot)
+        assert "q2" not in await _readout_below_the_fold(pilot)
         # And redo goes forward again.
         await pilot.press("f8")
         await pilot.pause()
@@ -345,7 +348,7 @@ async def test_a_baseline_of_another_topology_shows_the_follower_rows_as_absent(
         await pilot.pause()
         await _choose(pilot, CEF)
         await settle(pilot)
-        text = await _readout_end(pilot)
+        text = await _readout_below_the_fold(pilot)
         row = _row(text, "q2 IC")
         cells = row.removeprefix("q2 IC").split()
         # baseline, now, change: the baseline had no q2, so no change is claimed.
@@ -439,9 +442,9 @@ async def test_the_readout_says_which_transistor_ends_the_swing(tmp_path):
         fig = app.figures
         ie2 = fig.ic2 + fig.ib2
         assert fig.swing_down == pytest.approx(ie2 * _par(design.stage.re, design.load.rl), rel=0.05)
-        text = await _readout_end(pilot)
+        text = await _readout_below_the_fold(pilot)
         assert "down: q2 cutoff" in text
     app = make_app(_design_file(tmp_path, CE))
     async with app.run_test(size=SMALL) as pilot:
         await settle(pilot)
-        assert "down:" not in readout(app) and "down:" not in await _readout_end(pilot)
+        assert "down:" not in readout(app) and "down:" not in await _readout_below_the_fold(pilot)
