@@ -16,7 +16,8 @@ import numpy as np
 
 from model.design.units import format_si
 
-from .chart_scale import axis_range, finite, minus, rounded_out, scaled, tick_labels, ticks
+from .chart_scale import axis_range, finite, rounded_out, scaled, tick_labels, ticks
+from .minus_sign import minus
 
 __all__ = ["Axis", "Series", "Marker", "Spot", "Chart", "render", "render_stack"]
 

@@ -12,6 +12,8 @@ import numpy as np
 
 from model.design.units import format_si
 
+from .minus_sign import minus
+
 #: Of the data span, left either side so extremes do not sit on the frame.
 MARGIN = 0.05
 
@@ -113,9 +115,3 @@ def rounded_out(ends: tuple, values: list[float]) -> tuple:
     first, last = math.floor(ends[0] / step + 1e-9), math.ceil(ends[1] / step - 1e-9)
     ticks_out = [0.0 if k == 0 else k * step for k in range(first, last + 1)]
     return (first * step, last * step), ticks_out
-
-
-def minus(number: str) -> str:
-    """A formatted number with the minus sign U+2212 for its hyphens (a sign,
-    or an exponent's): one minus sign in every picture."""
-    return number.replace("-", "\u2212")

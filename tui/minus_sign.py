@@ -12,6 +12,12 @@ SCREEN_MINUS = "\u2212"
 _SIGN = re.compile(r"(?<![\w.])[-\u2212](?=[\d.])")
 
 
-def minus_signs(text: str, minus: str = SCREEN_MINUS) -> str:
-    """``text`` with every number's sign written ``minus``."""
-    return _SIGN.sub(minus, text)
+def minus_signs(text: str, sign: str = SCREEN_MINUS) -> str:
+    """``text`` with every number's sign written ``sign``."""
+    return _SIGN.sub(sign, text)
+
+
+def minus(number: str) -> str:
+    """A formatted number with the minus sign U+2212 for its hyphens (a sign,
+    or an exponent's): one minus sign in every picture."""
+    return number.replace("-", SCREEN_MINUS)

@@ -158,8 +158,7 @@ def _largest_sources(fig: Figures, width: int) -> str:
     """The shown design's three largest noise sources, wrapped between them
     to the table's ``width``: what to change to lower the noise.  "…" until
     the sweep reports, so the readout keeps its height."""
-    shares = noise_shares(fig, 3) if fig.noise is not None else []
-    text = ", ".join(map(whole, shares)) or (PENDING if fig.noise is None else "none")
+    text = ", ".join(map(whole, noise_shares(fig, 3))) or (PENDING if fig.noise is None else "none")
     return "\n".join(wrap(text, width, " " * 4, "  largest: ")) + "\n"
 
 
