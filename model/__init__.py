@@ -6,10 +6,19 @@ The two calls most callers need::
 
     design = model.read_design("geophone_preamp.toml")
     figures = model.analyse(design)          # figures.to_dict() is `report --json`
+
+They are loaded on first use, so that a command that only reads a file
+(``history``) does not pay for importing the engine.
 """
 
-from model.analyses.figures import Figures, analyse
-from model.design.stage import Design
-from model.files.designfile import read_design
+import importlib
 
-__all__ = ["Design", "Figures", "analyse", "read_design"]
+_HOMES = {"Design": "model.design.stage", "Figures": "model.analyses.figures",
+          "analyse": "model.analyses.figures", "read_design": "model.files.designfile"}
+__all__ = list(_HOMES)
+
+
+def __getattr__(name: str):
+    if name not in _HOMES:
+        raise AttributeError(f"module 'model' has no attribute {name!r}")
+    return getattr(importlib.import_module(_HOMES[name]), name)

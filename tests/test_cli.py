@@ -100,7 +100,8 @@ def test_numbers_that_show_as_zero_carry_no_sign():
 def test_a_gain_just_under_one_shows_its_db_in_significant_figures():
     """20·log10(0.9944) = −0.0488 dB (arithmetic): one decimal would print
     the sign of nothing, −0.0."""
-    from tui.report import _gain, db_text
+    from tui.number_text import db_text
+    from tui.report import _gain
 
     assert _gain(0.9944) == "+0.9944 V/V (-0.049 dB)"
     assert db_text(-0.0488) == "-0.049" and db_text(27.44) == "+27.4" and db_text(-0.05) == "-0.1"
@@ -113,8 +114,8 @@ def test_a_gain_just_under_one_shows_its_db_in_significant_figures():
 def test_gains_side_by_side_are_shown_to_the_same_figures(gains, shown):
     """Four significant figures, trailing zeros kept: -10.00 beside -8.839, not -10."""
     from tui.consequences import show_figure
+    from tui.number_text import gain_text
     from tui.readout_table import show
-    from tui.report import gain_text
 
     assert tuple(gain_text(g) for g in gains) == shown
     assert tuple(show_figure("av_loaded", g) for g in gains) == tuple(f"{s} V/V" for s in shown)

@@ -48,3 +48,23 @@ def test_importing_model_loads_no_ui_module():
         cwd=MODEL_DIR.parent,
     )
     assert out.stdout.strip() == ""
+
+
+def test_reading_a_design_file_and_its_history_imports_no_engine():
+    # `history` reads a file and words its ledger; importing the engine
+    # (numpy and the analyses) would cost it a fifth of a second, so the file
+    # layer names the engine's types only for annotations.
+    code = (
+        "import sys, model, tui.history_command\n"
+        "print(','.join(m for m in sys.modules if m.split('.')[0] == 'numpy' or m.startswith('model.analyses.')"
+        " and m != 'model.analyses.checks' and m != 'model.analyses.regions'))\n"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                         cwd=MODEL_DIR.parent)
+    assert out.stdout.strip() == ""
+
+
+def test_the_engine_loads_on_first_use_of_its_names():
+    out = subprocess.run([sys.executable, "-c", "import model; print(model.analyse.__module__, model.Design.__name__)"],
+                         capture_output=True, text=True, check=True, cwd=MODEL_DIR.parent)
+    assert out.stdout.split() == ["model.analyses.figures", "Design"]

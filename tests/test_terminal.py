@@ -21,7 +21,7 @@ from model.analyses.figures import analyse
 from model.design.stage import with_values
 from model.files.designfile import read_document
 from tui.minus_sign import minus_signs
-from tui.report import gain_text
+from tui.number_text import gain_text
 
 TMUX = shutil.which("tmux")
 COMMAND = shutil.which("stageledger")

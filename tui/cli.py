@@ -150,6 +150,10 @@ def _volts(text: str) -> float:
 
 
 def _dispatch(args) -> int:
+    if args.command == "history":  # first: it reads the file alone, without the engine
+        from .history_command import cmd_history
+
+        return cmd_history(args.file, args.json, args.oneline)
     from . import subcommands
 
     if args.command == "report":
@@ -162,8 +166,6 @@ def _dispatch(args) -> int:
         return subcommands.cmd_set(args.file, args.assignments, args.note, args.dry_run, args.drop_comments)
     if args.command in ("undo", "redo"):
         return subcommands.cmd_reverse(args.file, args.command, args.note, args.drop_comments)
-    if args.command == "history":
-        return subcommands.cmd_history(args.file, args.json, args.oneline)
     if args.command == "diff":
         return subcommands.cmd_diff(args.a, args.b)
     if args.command in ("aim", "options"):

@@ -8,7 +8,7 @@ from model.design.stage import FIELDS
 from model.design.units import format_si
 from model.files.ledger import HEADLINE, Entry
 
-from .report import gain_text, signed
+from .number_text import gain_text, signed
 from .safe_text import visible
 
 #: How each headline figure is shown: (label, unit for format_si, or a special kind).

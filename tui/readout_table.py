@@ -15,7 +15,8 @@ from model.design.units import format_si
 
 from .consequences import moved, relative_change
 from .minus_sign import minus_signs
-from .report import db_text, gain_text, noise_shares, part_name
+from .number_text import db_text, gain_text
+from .report import noise_shares, part_name
 from .wrapping import whole, wrap
 
 #: (group heading, rows of (label, figure key, unit kind)).

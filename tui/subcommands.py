@@ -10,15 +10,11 @@ from model import analyse
 from model.design.fields import with_article
 from model.design.stage import TOPOLOGIES, default_design, with_values
 from model.errors import StageledgerError
-from model.files import plain_json
-from model.files.historyfile import entry_to_dict
 from model.files.ledger import changes_between, headline, warning_codes
 from model.files.session import NOTHING_TO_COMMIT, DesignSession, create, design_at
 
 from .consequences import render_changes, render_consequences, render_entry
-from .ledger_text import ledger_lines
 from .safe_text import visible
-from .wrapping import plain
 
 
 def parse_assignments(items: list) -> dict:
@@ -85,36 +81,6 @@ def cmd_reverse(path: str, which: str, note: str, drop_comments: bool) -> int:
 def _print_entry(path: str, entry) -> None:
     print("\n".join(render_entry(entry)))
     print(f"saved {visible(path)} (entry {entry.number})")
-
-
-def cmd_history(path: str, as_json: bool, oneline: bool = False) -> int:
-    with DesignSession(path, lock=False) as s:
-        history, hand = s.history, s.hand_edits
-    if oneline:
-        # The Ledger's own lines, with the command line's ASCII minus.
-        for line in ledger_lines(history, minus="-"):
-            print(plain(line))
-        if hand:
-            print(f"(changed by hand since entry {len(history)}: {', '.join(c.key for c in hand)})" if history
-                  else f"(changed by hand: {', '.join(c.key for c in hand)})")
-        return 0
-    if as_json:
-        items = []
-        for e in history:
-            d = entry_to_dict(e)
-            d["time"] = e.time.isoformat().replace("+00:00", "Z")
-            items.append(d)
-        data = {"entries": items, "unlogged_hand_edits": [vars(c) for c in hand]}
-        print(plain_json.dumps(data))
-        return 0
-    if not history:
-        print(f"{visible(path)}: no history yet; the first change will start it")
-    for e in history:
-        print("\n".join(render_entry(e)))
-    if hand:
-        print("changed by hand since the last entry (logged with the next change):")
-        print("\n".join(render_changes(hand)))
-    return 0
 
 
 def cmd_diff(a: str, b: str) -> int:

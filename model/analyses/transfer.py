@@ -19,14 +19,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from model.analyses.regions import ACTIVE, CUTOFF, SATURATION
 from model.circuit.device import critical_voltage
 from model.circuit.newton import OperatingPoint, sweep_reduction
 from model.circuit.topologies import EMF, TRANSISTOR, StageCircuit
 
 VBC_SATURATION = 0.4  # V
 IC_CUTOFF = 10e-9  # A
-
-ACTIVE, SATURATION, CUTOFF = "active", "saturation", "cutoff"
 
 #: Samples per period for the distortion FFT; harmonics up to 127 are resolved.
 FFT_POINTS = 256

@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 import tomli_w
 
 from model.design.stage import Design, design_from_dict, design_to_dict
-from model.errors import DesignError, DesignFileError
+from model.errors import DesignError, DesignFileError, StageledgerError
 from model.files.historyfile import _short, entry_text, history_from_list
 from model.files.historytext import (
     DIGEST_TABLE,
@@ -29,7 +29,7 @@ from model.files.historytext import (
     quick_steps,
     verified_split,
 )
-from model.files.ledger import Entry, replay
+from model.files.ledger import Entry, changes_between, replay
 from model.files.savefile import Fingerprint, SaveError
 
 # A design is a few kilobytes and each history entry under one; the caps keep
@@ -102,6 +102,22 @@ class Document:
         if self.checked_entries is not None or "history" in self.__dict__:
             return self.history[number - 1]
         return quick_entry(self.verified_text, number)
+
+    def hand_edits(self) -> tuple:
+        """The changes made to the file by hand since its last logged entry;
+        StageledgerError for a topology changed by hand, which the ledger
+        cannot log key by key."""
+        if not self.entry_count:
+            return ()
+        logged = self.logged
+        if logged.topology != self.design.topology:
+            # Key-by-key changes cannot express a new topology (its keys differ),
+            # and logging them would leave a history that no longer replays.
+            raise StageledgerError(
+                f"{self.path}: topology changed by hand from {logged.topology} to "
+                f"{self.design.topology} since the last history entry, which the ledger "
+                f"cannot log; start a new file from it with: stageledger new NEW --from {self.path}")
+        return changes_between(logged, self.design)
 
     @functools.cached_property
     def history_text(self) -> str:

@@ -30,14 +30,12 @@ import math
 import tomli_w
 
 from model.analyses.checks import CODES
-from model.analyses.transfer import ACTIVE, CUTOFF, SATURATION
+from model.analyses.regions import REGIONS
 from model.design.spread_tables import is_spread_key
 from model.design.stage import CE, NONE, check_key, check_known, check_value, design_from_dict, knows, with_article
 from model.errors import DesignError
 from model.files.ledger import ACTIONS, HEADLINE, REDO, START, UNDO, Change, Entry
 
-#: The regions a recorded figure may name (model.analyses.transfer).
-REGIONS = (ACTIVE, SATURATION, CUTOFF)
 _ENTRY_KEYS = ("entry", "time", "action", "from", "reverses", "note", "changes", "raised",
                "cleared", "before", "after", "design")
 

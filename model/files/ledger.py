@@ -12,8 +12,8 @@ from __future__ import annotations
 import datetime as _dt
 import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
-from model.analyses.figures import Figures
 from model.design.stage import (
     NONE,
     Design,
@@ -26,6 +26,9 @@ from model.design.stage import (
     with_values,
 )
 from model.errors import DesignError, StageledgerError
+
+if TYPE_CHECKING:  # only named: reading a design file needs no engine
+    from model.analyses.figures import Figures
 
 #: Entry kinds, in the words the file uses.
 START, SET, UNDO, REDO, HAND_EDIT = "start", "set", "undo", "redo", "hand-edit"

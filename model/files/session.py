@@ -99,7 +99,7 @@ class DesignSession:
         self.comment_lines = doc.comment_lines
         self.figures = analyse(self.design)
         self._yields: dict = {}
-        self.hand_edits = self._hand_edits()
+        self.hand_edits = doc.hand_edits()
 
     @property
     def history(self) -> list:
@@ -108,20 +108,6 @@ class DesignSession:
         if self._entries is None:
             self._entries = list(self._doc.history)
         return self._entries
-
-    def _hand_edits(self) -> tuple:
-        """Changes made to the file by hand since its last logged entry."""
-        if not self._count:
-            return ()
-        logged = self._logged
-        if logged.topology != self.design.topology:
-            # Key-by-key changes cannot express a new topology (its keys differ),
-            # and logging them would leave a history that no longer replays.
-            raise StageledgerError(
-                f"{self.path}: topology changed by hand from {logged.topology} to "
-                f"{self.design.topology} since the last history entry, which the ledger "
-                f"cannot log; start a new file from it with: stageledger new NEW --from {self.path}")
-        return ledger.changes_between(logged, self.design)
 
     def close(self) -> None:
         if self._lock is not None:
