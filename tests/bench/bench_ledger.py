@@ -5,7 +5,7 @@ Two parts, side by side for histories of 1,000, 3,000 and 10,000 entries
 folder, since 10,000 take half a minute):
 
 * whole commands, as a person runs them: ``python -m tui report|set|
-  history|undo|diff FILE`` in a subprocess, so interpreter start, reading,
+  history [--oneline]|undo|diff FILE`` in a subprocess, so interpreter start, reading,
   the work and the save are all in the figure; ``set`` and ``undo`` on a
   fresh copy each run.  The ratio 10,000/1,000 shows how they grow (10 x
   would be linear; start-up and the analysis are the same at every size,
@@ -20,6 +20,7 @@ folder, since 10,000 take half a minute):
 
 from __future__ import annotations
 
+import os
 import pathlib
 import re
 import shutil
@@ -40,8 +41,13 @@ from model.files.session import DesignSession  # noqa: E402
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
 SIZES = (1000, 3000, 10_000)
-COMMANDS = ("report", "set", "history", "undo", "diff")
+COMMANDS = ("report", "set", "history", "history_oneline", "undo", "diff")
 CACHE = pathlib.Path(tempfile.gettempdir()) / "stageledger_bench_ledger"
+# As an installed tool runs: pip compiles the sources to bytecode when it
+# installs them, so the commands must not compile every module on every run
+# (a shell with PYTHONDONTWRITEBYTECODE set would make them).
+COMMAND_ENV = {**{k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"},
+               "PYTHONPYCACHEPREFIX": str(CACHE / "bytecode")}
 _DIGEST = re.compile(r"\n\[ledger_digest\]\n.*\Z", re.S)
 
 
@@ -55,10 +61,11 @@ def command_seconds(command: str, path: pathlib.Path, entries: int, scratch: pat
             target = scratch / "copy.toml"
             shutil.copy(path, target)
         args = {"report": ["report", target], "history": ["history", target],
+                "history_oneline": ["history", target, "--oneline"],
                 "set": ["set", target, "stage.rc=12k", "--note", "bench"], "undo": ["undo", target],
                 "diff": ["diff", f"{target}@{max(1, entries // 2)}", target]}[command]
         t = time.perf_counter()
-        done = subprocess.run([sys.executable, "-m", "tui", *map(str, args)], cwd=ROOT,
+        done = subprocess.run([sys.executable, "-m", "tui", *map(str, args)], cwd=ROOT, env=COMMAND_ENV,
                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         times.append(time.perf_counter() - t)
         if done.returncode:
@@ -94,6 +101,8 @@ def main() -> None:
     files = {n: cached_long_file(CACHE, n) for n in (1, *SIZES)}
     with tempfile.TemporaryDirectory() as tmp:
         scratch = pathlib.Path(tmp)
+        for command in COMMANDS:  # untimed: the first run of each writes its bytecode
+            command_seconds(command, files[1], 1, scratch, 1)
         seconds = {}
         for n, path in files.items():
             print(f"file_size_{n}_entries: {path.stat().st_size / 1024:.0f} KiB")
