@@ -23,13 +23,14 @@ it catches edits and damage, not someone who recomputes it on purpose
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import hashlib
 import json
 import re
 import tomllib
 from typing import NamedTuple
 
-from model.files.ledger import Change, Entry
+from model.files.ledger import HEADLINE, Change, Entry
 
 DIGEST_TABLE = "ledger_digest"
 #: Where each entry starts in the text the writer produces.
@@ -132,14 +133,18 @@ def _parse_chunk(chunk: str) -> dict:
 #: Reads a raw tab in a string, as TOML does.
 _JSON = json.JSONDecoder(strict=False)
 _SECTIONS = {"history.before": "before", "history.after": "after"}
-_KEY = re.compile(r"([a-z_0-9]+) = (.+)")
 _CHANGE = re.compile(r'    \{ key = ("[^"\\]*"), old = ([^,{}\[\]]+), new = ([^,{}\[\]]+) \},')
 _ITEM = re.compile(r'    ("[^"\\]*"),')
-# A TOML decimal that JSON reads as the same int or float.
-_NUMBER_TEXT = r"-?(?:0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?"
-_NUMBER = re.compile(_NUMBER_TEXT)
-_FIGURE = rf'[a-z_0-9]+ = (?:{_NUMBER_TEXT}|"[a-z]+")'
-_FIGURES = re.compile(rf"(?:{_FIGURE}\n)*{_FIGURE}\n*")
+# A TOML decimal int or float, which Python's int and float read alike.
+_NUMBER = re.compile(r"-?(?:0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?")
+#: A character no figures table of the writer's holds: with none of them
+#: (no comma, colon, bracket, brace, backslash, tab, capital but the
+#: exponent's E), the JSON text _figures makes can only be an object of
+#: one name and one number, string, true or false per line (null is looked
+#: for apart), each of which TOML reads alike.
+_NOT_FIGURES = re.compile(r'[^a-z0-9_ =.+\-"\nE]')
+#: The names a figures table may have: bare keys, so TOML reads them as JSON does.
+_FIGURE_NAMES = frozenset(HEADLINE)
 _TIME = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2} [0-9]{2}:[0-9]{2}:[0-9]{2}(?:\.[0-9]{1,6})?(?:Z|[+-][0-9]{2}:[0-9]{2})")
 # The escapes the writer uses (TOML's, minus \U and surrogates), which JSON reads alike.
 _STRING = re.compile(r'"(?:[^"\\\x00-\x08\x0a-\x1f\x7f]|\\["\\bfnrt]|\\u(?![dD][89abAB])[0-9a-fA-F]{4})*"')
@@ -154,7 +159,8 @@ def _quick_chunk(chunk: str) -> dict:
         key = _SECTIONS.get(name)
         if key is None or key in table:
             raise _NotQuick
-        table[key] = _figures(body)
+        # A copy: the tables remembered are shared, an Entry's are its own.
+        table[key] = dict(_figures(body))
     return table
 
 
@@ -162,23 +168,30 @@ def _head(text: str) -> dict:
     table: dict = {}
     lines = iter(text.split("\n"))
     for line in lines:
-        match = _KEY.fullmatch(line)
-        if match is None or match.group(1) in table:
+        key, _, value = line.partition(" = ")
+        # An ASCII identifier is a bare key that TOML reads as itself.
+        if not (value and key.isascii() and key.isidentifier()) or key in table:
             raise _NotQuick
-        key, value = match.groups()
         table[key] = _array(lines, key) if value == "[" else _scalar(value)
     return table
 
 
+@functools.lru_cache(maxsize=256)
 def _figures(text: str) -> dict:
     """A table of figures, one ``name = number`` (or region) a line: the
-    bulk of every entry, read by the JSON reader, whose numbers are TOML's."""
-    if not _FIGURES.fullmatch(text):
-        raise _NotQuick
+    bulk of every entry, read by the JSON reader, whose numbers are TOML's.
+    Remembered, since an entry's figures before are the figures after the
+    entry above it, and a history comes back to the same designs."""
     text = text.rstrip("\n")
-    table = _JSON.decode('{"' + text.replace(" = ", '": ').replace("\n", ', "') + "}")
-    if len(table) != text.count("\n") + 1:
-        raise _NotQuick  # a name given twice, which TOML refuses
+    if _NOT_FIGURES.search(text) or "null" in text:
+        raise _NotQuick
+    try:
+        table = _JSON.decode('{"' + text.replace(" = ", '": ').replace("\n", ', "') + "}")
+    except ValueError:  # not JSON either: a value TOML has and JSON has not (inf, nan), or no table
+        raise _NotQuick from None
+    # Fewer names than lines: a name given twice, which TOML refuses.
+    if len(table) != text.count("\n") + 1 or not table.keys() <= _FIGURE_NAMES:
+        raise _NotQuick
     return table
 
 
@@ -198,14 +211,27 @@ def _array(lines, key: str) -> list:
 
 def _scalar(text: str):
     if text.startswith('"'):
+        inner = text[1:-1]
+        # The usual string first: no escape, no quote, no control character.
+        if len(text) > 1 and text.endswith('"') and inner.isprintable() and '"' not in inner and "\\" not in inner:
+            return inner
         if not _STRING.fullmatch(text):
             raise _NotQuick
         return text[1:-1] if "\\" not in text else _JSON.decode(text)
+    if text.isdigit() and text.isascii() and (text[0] != "0" or text == "0"):
+        return int(text)  # the usual int: plain digits, as TOML reads them
+    if ":" in text:  # of all the values, a time alone has a colon
+        if _TIME.fullmatch(text):
+            return _dt.datetime.fromisoformat(text)
+        raise _NotQuick
+    try:  # the usual float: its repr, as the writer writes it, which TOML reads as the same float
+        if repr(number := float(text)) == text:
+            return number
+    except ValueError:
+        pass
     number = _NUMBER.fullmatch(text)
     if number:
         return float(text) if number.group(1) or number.group(2) else int(text)
     if text in ("inf", "-inf", "+inf"):
         return float(text)
-    if _TIME.fullmatch(text):
-        return _dt.datetime.fromisoformat(text)
     raise _NotQuick
