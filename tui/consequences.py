@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+import functools
 import math
+import operator
 
 from model.design.stage import FIELDS
 from model.design.units import format_si
 from model.files.ledger import HEADLINE, Entry
 
-from .number_text import gain_text, signed
+from .number_text import gain_text
 from .safe_text import visible
 
 #: How each headline figure is shown: (label, unit for format_si, or a special kind).
@@ -70,15 +72,14 @@ _FIGURES = {"gain": 4, "gain_at_freq": 4}
 _TEMPERATURES = ("tj", "tj2")
 
 
-def _kind(key: str) -> str | None:
-    return _SHOW[key][1] if key in _SHOW else None
+#: The kind of each headline figure (its unit for format_si, or "gain").
+_KINDS = {key: show[1] for key, show in _SHOW.items()}
 
 
-def _resolution(key: str, before: float) -> float:
+def _resolution(key: str, before: float, kind: str | None) -> float:
     """The smallest step of ``before`` as it is shown, in the unit its change
     is shown in: dB for gains and dB figures, K for temperatures, points for
-    the yield, else per cent of ``before``."""
-    kind = _kind(key)
+    the yield, else per cent of ``before`` (``kind``: the figure's, see _KINDS)."""
     if kind == "dB":
         return 0.01  # shown to two places
     if key in _TEMPERATURES:
@@ -102,7 +103,7 @@ def _to_resolution(change: float, resolution: float, unit: str) -> str:
     if change:
         figures = max(0, 2 - math.floor(math.log10(abs(change))))
         places = min(places, max(figures, 2 if unit == "dB" else 0))
-    text = signed(change, f"+.{places}f")
+    text = format(change, f"+.{places}f")  # "-0.00" too is a plain 0
     return f"{'0' if float(text) == 0 else text} {unit}"
 
 
@@ -112,27 +113,33 @@ def relative_change(before, after, key: str = "") -> str:
     in K for temperatures, in points for the yield, else in per cent; always
     to the resolution ``before`` is shown to, so a move smaller than its last
     figure reads as 0."""
-    if not all(isinstance(v, (int, float)) for v in (before, after)):
+    if not (isinstance(before, (int, float)) and isinstance(after, (int, float))):
         return "" if before == after else "changed"
     if not (math.isfinite(before) and math.isfinite(after)):
         # "none → none" is no change at all, not a 0 % one; NaN ≠ NaN, so
         # compare what the table shows.
         same = key in _SHOW and show_figure(key, before) == show_figure(key, after)
         return "unchanged" if same or before == after else "—"
-    kind = _kind(key)
+    return _finite_change(before, after, key, _KINDS.get(key))
+
+
+@functools.lru_cache(maxsize=4096, typed=True)
+def _finite_change(before: float, after: float, key: str, kind: str | None) -> str:
+    """relative_change of two finite numbers (``kind``: the figure's, see
+    _KINDS); remembered, since a history comes back to the same designs."""
     if kind == "gain" and before and after:
-        return _to_resolution(20.0 * math.log10(abs(after) / abs(before)), _resolution(key, before), "dB")
+        return _to_resolution(20.0 * math.log10(abs(after) / abs(before)), _resolution(key, before, kind), "dB")
     if kind == "dB":  # already a ratio: its change is a difference
-        return _to_resolution(after - before, _resolution(key, before), "dB")
+        return _to_resolution(after - before, _resolution(key, before, kind), "dB")
     if key in _TEMPERATURES:  # a per cent of a Celsius reading means nothing
-        return _to_resolution(after - before, _resolution(key, before), "K")
+        return _to_resolution(after - before, _resolution(key, before, kind), "K")
     if key == "yield":  # a change of a fraction, in percentage points
-        return _to_resolution(100.0 * (after - before), _resolution(key, before) if before else 0.1, "pts")
+        return _to_resolution(100.0 * (after - before), _resolution(key, before, kind) if before else 0.1, "pts")
     if before == after:
         return "0 %"
     if before == 0:
         return "—"
-    return _to_resolution(100.0 * (after - before) / abs(before), _resolution(key, before), "%")
+    return _to_resolution(100.0 * (after - before) / abs(before), _resolution(key, before, kind), "%")
 
 
 def moved(key: str, before, after) -> bool:
@@ -202,6 +209,8 @@ def render_entry(e: Entry) -> list:
 _COMPACT = (("av_source", "gain"), ("yield", "yield"), ("rin", "rin"), ("rout", "rout"), ("swing_up", "swing↑"),
             ("swing_down", "swing↓"), ("thd", "thd"), ("p_supply", "p_supply"), ("tj", "tj"),
             ("ic", "ic"), ("vce", "vce"), ("f_low", "f_low"), ("f_high", "f_high"))
+_COMPACT_KEYS = tuple(key for key, _ in _COMPACT)
+_SIZE = operator.itemgetter(0)
 
 
 def compact_parts(before: dict, after: dict, most: int = 3) -> list:
@@ -211,10 +220,11 @@ def compact_parts(before: dict, after: dict, most: int = 3) -> list:
     changes. A move below a figure's resolution is left out.
     """
     parts, ranked = [], []
-    for key, short in _COMPACT:
-        b, a = before.get(key), after.get(key)
-        if before and (b is None) != (a is None):
-            parts.append(f"{short} {'none' if a is None else 'back'}")
+    # The figures fetched by map, not looked up one by one: a long history words ten thousand entries.
+    for (key, short), b, a in zip(_COMPACT, map(before.get, _COMPACT_KEYS), map(after.get, _COMPACT_KEYS)):
+        if (b is None) != (a is None):
+            if before:
+                parts.append(f"{short} {'none' if a is None else 'back'}")
             continue
         if not isinstance(b, (int, float)) or not isinstance(a, (int, float)):
             continue
@@ -224,14 +234,13 @@ def compact_parts(before: dict, after: dict, most: int = 3) -> list:
                 parts.append(f"{short} {change}")
         elif b and math.isfinite(b) and math.isfinite(a):
             ranked.append((abs((a - b) / b), key, short, b, a))
-    # Largest first, and worded only until the line has its few: a long
-    # history words ten thousand entries.
-    ranked.sort(key=lambda item: -item[0])
+    # Largest first (a tie in the table's order), and worded only until the line has its few.
+    ranked.sort(key=_SIZE, reverse=True)
     room = most - len(parts) + 1
     for _, key, short, b, a in ranked:
         if room <= 0:
             break
-        change = relative_change(b, a, key)
+        change = _finite_change(b, a, key, _KINDS.get(key))
         if _shows(change):  # a move below the figure's resolution is no consequence
             parts.append(f"{short} {change}")
             room -= 1

@@ -29,6 +29,8 @@ _FULL_KEY = ("transistor2", "tolerance", "spec")
 
 def _piece(text: str, minus: str) -> str:
     """``text`` as one unbreakable piece, its numbers signed with ``minus``."""
+    if minus == "-" and SCREEN_MINUS not in text:
+        return whole(text)  # signed with "-" already: the numbers are formatted so
     return whole(minus_signs(text, minus))
 
 
