@@ -9,9 +9,12 @@ dB = 20·log10 of the ratio), worked by hand in the comments.
 from __future__ import annotations
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from model import analyse
 from model.design.stage import default_design, with_values
+from tui import consequences
 from tui.consequences import moved, relative_change
 from tui.readout_table import readout_table
 
@@ -65,3 +68,21 @@ def test_the_readout_gives_noise_no_arrow_and_keeps_a_gap():
 
 def test_a_change_that_shows_gets_its_arrow():
     assert _rows(_readout_warmer_by(10))["tj"].rstrip().endswith("K ↑")
+
+
+_KEYS = st.sampled_from(["av_source", "rin", "tj", "yield", "nf_db", "f_high", "thd"])
+#: Numbers equal to others of them: 0 == 0.0 == -0.0, 1 == 1.0, -2 == -2.0.
+_NUMBERS = (0, 0.0, -0.0, 1, 1.0, -2, -2.0, 2.5, 1e-9)
+
+
+@settings(max_examples=300, deadline=None)
+@given(key=_KEYS, before=st.sampled_from(_NUMBERS), after=st.sampled_from(_NUMBERS))
+def test_a_remembered_change_is_the_one_worked_out_afresh(key, before, after):
+    """Changes are remembered by value: one remembered for an equal pair
+    (another type, the other zero) is the one worked out for this pair."""
+    afresh = consequences._finite_change.__wrapped__(before, after, key, consequences._KINDS.get(key))
+    for twin_b in (v for v in _NUMBERS if v == before):
+        for twin_a in (v for v in _NUMBERS if v == after):
+            consequences._finite_change.cache_clear()
+            relative_change(twin_b, twin_a, key)
+            assert relative_change(before, after, key) == afresh, (twin_b, twin_a)

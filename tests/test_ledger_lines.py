@@ -10,16 +10,21 @@ import subprocess
 import sys
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from rich.cells import cell_len
 
 from model.design.stage import default_design
 from model.files.designfile import read_document
 from model.files.session import DesignSession, create
+from tui import ledger_text
 from tui.cli import main
+from tui.consequences import compact_parts
 from tui.launch import make_app
 from tui.ledger_text import ledger_lines, wrap_line
+from tui.minus_sign import SCREEN_MINUS, minus_signs
 from tui.widgets.ledger_pane import LedgerPane
-from tui.wrapping import plain
+from tui.wrapping import plain, whole
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 
@@ -170,3 +175,19 @@ def test_a_spread_change_is_a_line_too(tmp_path, capsys):
     out = capsys.readouterr().out.splitlines()
     assert re.match(r"#2 \d\d:\d\d set tolerance\.", out[1]), out
     assert "tolerance.ambient none→0..40" in out[1] and "tolerance.resistors none→0.01" in out[1]
+
+
+@settings(max_examples=300, deadline=None)
+@given(text=st.text("-−0123456789.a éΩ", max_size=20))
+def test_the_command_lines_pieces_skip_the_minus_pass_only_where_it_changes_nothing(text):
+    """With ASCII "-" asked for, a piece with no U+2212 in it is left as it is."""
+    assert ledger_text._piece(text, "-") == whole(minus_signs(text, "-"))
+    assert ledger_text._piece(text, SCREEN_MINUS) == whole(minus_signs(text, SCREEN_MINUS))
+
+
+def test_equal_moves_are_named_in_the_tables_order():
+    """Ties in size keep the order of the figures a line may mention, gain first."""
+    before = {"av_source": -10.0, "thd": 0.01, "rout": 100.0, "rin": 2000.0, "ic": 1e-3}
+    after = {"av_source": -20.0, "thd": 0.02, "rout": 200.0, "rin": 4000.0, "ic": 1.5e-3}
+    names = [part.split()[0] for part in compact_parts(before, after)]
+    assert names == ["gain", "rin", "rout", "thd"]  # ic moved least, and the line has room for three

@@ -22,7 +22,7 @@ import sys
 import tomllib
 
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from model.analyses.checks import CODES
@@ -318,3 +318,98 @@ def test_loading_grows_linearly_with_the_history(tmp_path):
         counts = [_calls(lambda: action(n)) for n in sizes]
         first, second = counts[1] - counts[0], counts[2] - counts[1]
         assert second <= 2.1 * first + 1000, (action.__name__, counts)
+
+
+# -- the quick reader's shortcuts refuse what TOML would read otherwise ---------------
+
+def _toml_value(text: str):
+    """What TOML reads ``text`` as, as the value of a key; None when it refuses it."""
+    try:
+        return _typed(tomllib.loads(f"x = {text}\n")["x"])
+    except tomllib.TOMLDecodeError:
+        return None
+
+
+def _agrees(quick, text: str, toml) -> None:
+    """``quick(text)`` is what TOML reads, or a refusal, never another value."""
+    try:
+        got = _typed(quick(text))
+    except historytext._NotQuick:
+        return
+    assert toml is not None, text
+    # NaN is not equal to itself: compare its type and its text.
+    assert repr(got) == repr(toml), text
+
+
+# Values as a hand or another program might write them, beside the writer's.
+_ODD_VALUES = st.sampled_from([
+    "1e5", "1E5", "1e+05", "-0", "-0.0", "+0.0", "+1", "01", "00", "1_000", "1.", ".5", "1.e5", "1e400", "5e-324",
+    "inf", "-inf", "+inf", "nan", "+nan", "-nan", "Infinity", "NaN", "0x10", "1 ", " 1", "true", "false", "null",
+    "١٢", "²", "2026-12-01 20:31:00+00:00", "2026-12-01 20:31:00Z", "2026-12-01T20:31:00+00:00", "2026-12-01 20:31",
+    '"a"', '""', '"a\\tb"', '"a\tb"', '"\\u00e9"', '"\\ud800"', '"a"b"', '"a', '"\x7f"', '"\x85"', '"\u00a0"', '"é"',
+    "'a'", "[1]", "{ a = 1 }", "1 # a", '"a = b"'])
+_VALUE_TEXTS = st.one_of(
+    _ODD_VALUES, st.floats().map(repr), st.integers(-10**20, 10**20).map(str),
+    st.text(st.characters(codec="utf-8", exclude_categories=("Cs",)), max_size=12).map(lambda s: f'"{s}"'),
+    st.text("0123456789eE+-._:ninf \"", max_size=10),
+)
+
+
+@settings(max_examples=400, deadline=None)
+@given(text=_VALUE_TEXTS)
+def test_a_scalar_read_quickly_is_read_as_toml_reads_it(text):
+    _agrees(historytext._scalar, text, _toml_value(text))
+
+
+_NAMES = st.one_of(st.sampled_from(["ic", "vce", "region", "f_high", "yield"]),
+                   st.sampled_from(["Ic", "ic.x", "i c", "", "1x", "x-y", "+x", "entry", "null", '"ic"']))
+_LINES = st.tuples(_NAMES, st.one_of(st.just(" = "), st.sampled_from(["=", " =  ", "  = "])),
+                   st.one_of(_ODD_VALUES, _VALUE_TEXTS)).map("".join)
+
+
+@settings(max_examples=400, deadline=None)
+@given(lines=st.lists(_LINES, min_size=1, max_size=3), tail=st.sampled_from(["", "\n", "\n\n"]))
+@example(lines=["ic = null"], tail="")
+@example(lines=["ic = 1", "ic = 2"], tail="")
+@example(lines=["ic.x = 1"], tail="")
+@example(lines=["ic = true"], tail="")
+@example(lines=["f_high = inf"], tail="\n")
+@example(lines=["ic = NaN", "vce = -Infinity"], tail="")
+@example(lines=['region = "\\ud800"'], tail="")
+def test_a_figures_table_read_quickly_is_read_as_toml_reads_it(lines, tail):
+    """The JSON reader takes what a character and name check let through: a
+    name twice, a dotted or quoted name, null, inf, a value JSON and TOML
+    read differently must all be refused."""
+    text = "\n".join(lines) + tail
+    try:
+        toml = _typed(tomllib.loads(text))
+    except tomllib.TOMLDecodeError:
+        toml = None
+    _agrees(historytext._figures, text, toml)
+
+
+@settings(max_examples=300, deadline=None)
+@given(lines=st.lists(_LINES, min_size=1, max_size=4))
+@example(lines=["entry = 1", "entry = 2"])
+@example(lines=["Entry = 1", "_x = 2"])
+@example(lines=["1x = 1"])
+def test_an_entrys_head_read_quickly_is_read_as_toml_reads_it(lines):
+    """Keys the partition takes apart: given twice, with spaces, dotted,
+    capitals (read as TOML reads them), digits first (refused)."""
+    text = "\n".join(lines)
+    try:
+        toml = _typed(tomllib.loads(text))
+    except tomllib.TOMLDecodeError:
+        toml = None
+    _agrees(historytext._head, text, toml)
+
+
+def test_the_shortcuts_read_the_writers_usual_values():
+    """Not refusals all round: the common shapes are read without a pattern."""
+    assert _typed(historytext._head('entry = 12\naction = "set"\nreverses = 0')) == _typed(
+        {"entry": 12, "action": "set", "reverses": 0})
+    for text in ("470.0", "1e-05", "-0.0", "1e+20", "5e-324"):
+        assert _typed(historytext._scalar(text)) == _typed(float(text))
+    assert historytext._scalar("2026-12-01 20:31:00+00:00") == dt.datetime(2026, 12, 1, 20, 31, tzinfo=dt.timezone.utc)
+    figures = historytext._figures('ic = 0.000408306\nregion = "active"\ntj = -9.60353\n')
+    assert _typed(figures) == _typed({"ic": 0.000408306, "region": "active", "tj": -9.60353})
