@@ -159,8 +159,7 @@ def _quick_chunk(chunk: str) -> dict:
         key = _SECTIONS.get(name)
         if key is None or key in table:
             raise _NotQuick
-        # A copy: the tables remembered are shared, an Entry's are its own.
-        table[key] = dict(_figures(body))
+        table[key] = _figures(body)
     return table
 
 
@@ -176,13 +175,20 @@ def _head(text: str) -> dict:
     return table
 
 
-@functools.lru_cache(maxsize=256)
 def _figures(text: str) -> dict:
     """A table of figures, one ``name = number`` (or region) a line: the
-    bulk of every entry, read by the JSON reader, whose numbers are TOML's.
-    Remembered, since an entry's figures before are the figures after the
-    entry above it, and a history comes back to the same designs."""
-    text = text.rstrip("\n")
+    bulk of every entry, read by the JSON reader, whose numbers are TOML's."""
+    # Without the blank line that ends all but the last table, an entry's
+    # figures before are the text of the figures after of the entry above.
+    # A copy: the tables remembered are shared, an Entry's are its own.
+    return dict(_remembered_figures(text.rstrip("\n")))
+
+
+@functools.lru_cache(maxsize=256)
+def _remembered_figures(text: str) -> dict:
+    """_figures of a text without trailing newlines; remembered, since an
+    entry's figures before are the ones after the entry above it, and a
+    history comes back to the same designs."""
     if _NOT_FIGURES.search(text) or "null" in text:
         raise _NotQuick
     try:
