@@ -139,7 +139,7 @@ _ITEM = re.compile(r'    ("[^"\\]*"),')
 _NUMBER = re.compile(r"-?(?:0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?")
 #: A character no figures table of the writer's holds: with none of them
 #: (no comma, colon, bracket, brace, backslash, tab, capital but the
-#: exponent's E), the JSON text _figures makes can only be an object of
+#: exponent's E), the JSON text made of a figures table can only be an object of
 #: one name and one number, string, true or false per line (null is looked
 #: for apart), each of which TOML reads alike.
 _NOT_FIGURES = re.compile(r'[^a-z0-9_ =.+\-"\nE]')
@@ -178,8 +178,8 @@ def _head(text: str) -> dict:
 def _figures(text: str) -> dict:
     """A table of figures, one ``name = number`` (or region) a line: the
     bulk of every entry, read by the JSON reader, whose numbers are TOML's."""
-    # Without the blank line that ends all but the last table, an entry's
-    # figures before are the text of the figures after of the entry above.
+    # Without its trailing newline (an entry's last table has one, the others
+    # not), an entry's figures before are the text of the entry above's after.
     # A copy: the tables remembered are shared, an Entry's are its own.
     return dict(_remembered_figures(text.rstrip("\n")))
 
