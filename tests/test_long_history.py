@@ -413,3 +413,32 @@ def test_the_shortcuts_read_the_writers_usual_values():
     assert historytext._scalar("2026-12-01 20:31:00+00:00") == dt.datetime(2026, 12, 1, 20, 31, tzinfo=dt.timezone.utc)
     figures = historytext._figures('ic = 0.000408306\nregion = "active"\ntj = -9.60353\n')
     assert _typed(figures) == _typed({"ic": 0.000408306, "region": "active", "tj": -9.60353})
+
+
+def test_any_entry_read_alone_is_the_one_read_with_the_rest(tmp_path):
+    # The last entry, which every commit reads, is found from the end of the text.
+    path = tmp_path / "d.toml"
+    create(str(path), default_design(CE))
+    with DesignSession(str(path)) as s:
+        for rc in ("10k", "12k", "15k"):
+            s.commit({"stage.rc": rc}, note=f"rc {rc}")
+    doc = read_document(path)
+    assert doc.verified_text is not None
+    every = quick_entries(doc.verified_text)
+    assert [doc.entry(n) for n in range(1, 5)] == every == read_document(without_digest(path, "full.toml")).history
+
+
+def test_a_file_with_characters_of_several_bytes_is_split_where_its_bytes_are(tmp_path):
+    # The digest is found in the bytes and the history in the text: a note of
+    # two- and three-byte characters must not move one against the other.
+    path = tmp_path / "d.toml"
+    create(str(path), default_design(CE), note="Ω é — " * 50)
+    with DesignSession(str(path)) as s:
+        s.commit({"stage.rc": "10k"}, note="µ→ " * 40)
+    text = path.read_text(encoding="utf-8")
+    design_text, history_text, count = historytext.verified_split(path.read_bytes(), text)
+    assert design_text + history_text == text[:text.rindex("\n[ledger_digest]\n")] and count == 2
+    assert history_text.startswith("[[history]]\nentry = 1\n")
+    doc = read_document(path)
+    assert doc.history == read_document(without_digest(path, "full.toml")).history
+    assert doc.history[-1].note == "µ→ " * 40

@@ -101,7 +101,7 @@ class Document:
         """History entry ``number`` (from 1), read alone from a verified history."""
         if self.checked_entries is not None or "history" in self.__dict__:
             return self.history[number - 1]
-        return quick_entry(self.verified_text, number)
+        return quick_entry(self.verified_text, number, self.entry_count)
 
     def hand_edits(self) -> tuple:
         """The changes made to the file by hand since its last logged entry;
@@ -146,7 +146,7 @@ def read_document(path: str | os.PathLike) -> Document:
         raise DesignFileError(name, line, f"is not valid UTF-8 text (byte 0x{bad})") from None
     fingerprint = Fingerprint.of(name, raw)
     _check_lines(text, name)
-    verified = verified_split(raw)
+    verified = verified_split(raw, text)
     if verified is not None:
         # What the tool wrote, after checking it: no replay, and no comments.
         design_text, history_text, count = verified

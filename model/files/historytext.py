@@ -46,15 +46,19 @@ def digest_text(body: str, entries: int) -> str:
     return f'\n[{DIGEST_TABLE}]\nentries = {entries}\nsha256 = "{sha}"\n'
 
 
-def verified_split(raw: bytes) -> tuple[str, str, int] | None:
+def verified_split(raw: bytes, text: str) -> tuple[str, str, int] | None:
     """(design text, history text, entry count) of a file whose digest
-    matches, the history text starting with its first entry's header; None
-    for any file whose digest is missing or does not match."""
-    start = raw.rfind(b"\n[" + DIGEST_TABLE.encode() + b"]\n")
+    matches (``text``: ``raw`` decoded), the history text starting with its
+    first entry's header; None for any file whose digest is missing or does
+    not match."""
+    marker = f"\n[{DIGEST_TABLE}]\n"
+    start = raw.rfind(marker.encode())
     tail = _TAIL.fullmatch(raw, start) if start >= 0 else None
     if tail is None or hashlib.sha256(raw[:start]).hexdigest() != tail.group(2).decode():
         return None
-    body = raw[:start].decode("utf-8")
+    # UTF-8 never makes an ASCII byte inside a character, so the last marker
+    # in the text is the one in the bytes.
+    body = text[:text.rfind(marker)]
     entries = int(tail.group(1))
     # The writer escapes every newline inside a string, so each header line is an entry's.
     first = body.find(ENTRY_HEADER)
@@ -96,9 +100,14 @@ _STEP = re.compile(r'entry = ([1-9][0-9]*)\ntime = [^\n]*\naction = "([a-z-]+)"\
                    r"(?:reverses = ([1-9][0-9]*)\n)?(?!reverses = )")
 
 
-def quick_entry(history_text: str, number: int) -> Entry:
-    """Entry ``number`` (from 1) of a verified history text."""
-    return _entry(_parse_chunk(_chunks(history_text)[number - 1]))
+def quick_entry(history_text: str, number: int, count: int) -> Entry:
+    """Entry ``number`` (from 1) of a verified history text of ``count``
+    entries; the last, which every commit reads, without splitting the rest."""
+    if number == count:
+        chunk = ("\n" + history_text).rpartition(ENTRY_HEADER)[2]
+    else:
+        chunk = _chunks(history_text)[number - 1]
+    return _entry(_parse_chunk(chunk))
 
 
 def _chunks(history_text: str) -> list:
