@@ -54,17 +54,18 @@ def verified_split(raw: bytes, text: str) -> tuple[str, str, int] | None:
     marker = f"\n[{DIGEST_TABLE}]\n"
     start = raw.rfind(marker.encode())
     tail = _TAIL.fullmatch(raw, start) if start >= 0 else None
-    if tail is None or hashlib.sha256(raw[:start]).hexdigest() != tail.group(2).decode():
+    # A view, not a copy: the bytes above the digest are most of the file.
+    if tail is None or hashlib.sha256(memoryview(raw)[:start]).hexdigest() != tail.group(2).decode():
         return None
     # UTF-8 never makes an ASCII byte inside a character, so the last marker
     # in the text is the one in the bytes.
-    body = text[:text.rfind(marker)]
+    end = text.rfind(marker)
     entries = int(tail.group(1))
     # The writer escapes every newline inside a string, so each header line is an entry's.
-    first = body.find(ENTRY_HEADER)
-    if first < 0 or body.count(ENTRY_HEADER) != entries:
+    first = text.find(ENTRY_HEADER, 0, end)
+    if first < 0 or text.count(ENTRY_HEADER, 0, end) != entries:
         return None
-    return body[:first + 1], body[first + 1:], entries
+    return text[:first + 1], text[first + 1:end], entries
 
 
 def quick_entries(history_text: str) -> list:
@@ -104,7 +105,9 @@ def quick_entry(history_text: str, number: int, count: int) -> Entry:
     """Entry ``number`` (from 1) of a verified history text of ``count``
     entries; the last, which every commit reads, without splitting the rest."""
     if number == count:
-        chunk = ("\n" + history_text).rpartition(ENTRY_HEADER)[2]
+        # The first entry's header starts the text, without the newline before it.
+        last = history_text.rfind(ENTRY_HEADER)
+        chunk = history_text[last + len(ENTRY_HEADER):] if last >= 0 else history_text.removeprefix(ENTRY_HEADER[1:])
     else:
         chunk = _chunks(history_text)[number - 1]
     return _entry(_parse_chunk(chunk))
