@@ -54,10 +54,12 @@ def test_reading_a_design_file_and_its_history_imports_no_engine():
     # `history` reads a file and words its ledger; importing the engine
     # (numpy and the analyses) would cost it a fifth of a second, so the file
     # layer names the engine's types only for annotations.
+    light = ("model.analyses.checks", "model.analyses.regions")  # warning codes and region names
     code = (
         "import sys, model, tui.history_command\n"
-        "print(','.join(m for m in sys.modules if m.split('.')[0] == 'numpy' or m.startswith('model.analyses.')"
-        " and m != 'model.analyses.checks' and m != 'model.analyses.regions'))\n"
+        f"engine = [m for m in sys.modules if m.split('.')[0] == 'numpy'"
+        f" or (m.startswith('model.analyses.') and m not in {light!r})]\n"
+        "print(','.join(engine))\n"
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
                          cwd=MODEL_DIR.parent)
