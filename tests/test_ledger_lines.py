@@ -17,14 +17,14 @@ from rich.cells import cell_len
 from model.design.stage import default_design
 from model.files.designfile import read_document
 from model.files.session import DesignSession, create
-from tui import ledger_text
+from tui import minus_sign
 from tui.cli import main
 from tui.consequences import compact_parts
 from tui.launch import make_app
 from tui.ledger_text import ledger_lines, wrap_line
 from tui.minus_sign import SCREEN_MINUS, minus_signs
 from tui.widgets.ledger_pane import LedgerPane
-from tui.wrapping import plain, whole
+from tui.wrapping import plain
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 
@@ -179,10 +179,10 @@ def test_a_spread_change_is_a_line_too(tmp_path, capsys):
 
 @settings(max_examples=300, deadline=None)
 @given(text=st.text("-−0123456789.a éΩ", max_size=20))
-def test_the_command_lines_pieces_skip_the_minus_pass_only_where_it_changes_nothing(text):
-    """With ASCII "-" asked for, a piece with no U+2212 in it is left as it is."""
-    assert ledger_text._piece(text, "-") == whole(minus_signs(text, "-"))
-    assert ledger_text._piece(text, SCREEN_MINUS) == whole(minus_signs(text, SCREEN_MINUS))
+def test_the_ascii_minus_skips_the_pass_only_where_it_changes_nothing(text):
+    """With ASCII "-" asked for, a text with no U+2212 in it is left as it is."""
+    assert minus_signs(text, "-") == minus_sign._SIGN.sub("-", text)
+    assert minus_signs(text, SCREEN_MINUS) == minus_sign._SIGN.sub(SCREEN_MINUS, text)
 
 
 def test_equal_moves_are_named_in_the_tables_order():

@@ -29,8 +29,6 @@ _FULL_KEY = ("transistor2", "tolerance", "spec")
 
 def _piece(text: str, minus: str) -> str:
     """``text`` as one unbreakable piece, its numbers signed with ``minus``."""
-    if minus == "-" and SCREEN_MINUS not in text:
-        return whole(text)  # minus_signs would only write "-" for "-": there is no U+2212 to replace
     return whole(minus_signs(text, minus))
 
 

@@ -14,6 +14,8 @@ _SIGN = re.compile(r"(?<![\w.])[-\u2212](?=[\d.])")
 
 def minus_signs(text: str, sign: str = SCREEN_MINUS) -> str:
     """``text`` with every number's sign written ``sign``."""
+    if sign == "-" and SCREEN_MINUS not in text:
+        return text  # every sign is already ASCII: a long history's lines skip the pass
     return _SIGN.sub(sign, text)
 
 

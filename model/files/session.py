@@ -109,7 +109,7 @@ class DesignSession:
         Only where that record is certainly this engine's: the file is as
         stageledger wrote it (its digest matched), nothing was changed by
         hand since, and the entry's other figures are exactly this analysis's."""
-        if not self._count or doc.verified_text is None or self.hand_edits:
+        if not (self._count and self.design.spec) or doc.verified_text is None or self.hand_edits:
             return {}
         after = doc.entry(self._count).after
         recorded = after.get("yield")
